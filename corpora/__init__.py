@@ -1,0 +1,1 @@
+"""Collections: the invented demo generator and loaders for open labeled corpora."""

@@ -1,0 +1,3 @@
+from pilewise.cli import main
+
+main()

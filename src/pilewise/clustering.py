@@ -1,0 +1,54 @@
+"""Clustering stage: seeded k-means over the clustering space, and distances to the centroids."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from sklearn.cluster import KMeans
+from sklearn.preprocessing import normalize
+
+
+@dataclass(frozen=True)
+class Clustering:
+    """k-means result over the distinct texts.
+
+    Attributes
+    ----------
+    labels : ndarray of int, shape (n_texts,)
+        Cluster of each distinct text, numbered by size (0 = largest).
+    centroids : ndarray, shape (k, n_dims)
+        Unit-length centroid directions.
+    distances : ndarray, shape (n_texts,)
+        Cosine distance of each text to its own cluster's centroid.
+    """
+
+    labels: np.ndarray
+    centroids: np.ndarray
+    distances: np.ndarray
+    inertia: float
+
+
+def kmeans_clusters(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int, n_init: int
+) -> Clustering:
+    """Seeded k-means (k-means++ starts) with duplicate counts as sample weights."""
+    model = KMeans(n_clusters=k, n_init=n_init, random_state=seed)
+    raw_labels = model.fit_predict(space, sample_weight=weights)
+    # Number clusters by weighted size, largest first; ties by smallest original label.
+    sizes = np.bincount(raw_labels, weights=weights, minlength=k)
+    order = sorted(range(k), key=lambda c: (-sizes[c], c))
+    remap = np.empty(k, dtype=int)
+    remap[order] = np.arange(k)
+    labels = remap[raw_labels]
+    centroids = normalize(np.asarray(model.cluster_centers_)[order])
+    similarity = np.asarray(_row_dot(space, centroids[labels]))
+    distances = np.clip(1.0 - similarity, 0.0, 2.0)
+    return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=float(model.inertia_))
+
+
+def _row_dot(space: np.ndarray | sp.csr_matrix, other: np.ndarray) -> np.ndarray:
+    if sp.issparse(space):
+        return np.asarray(space.multiply(other).sum(axis=1)).ravel()
+    return np.einsum("ij,ij->i", np.asarray(space), other)

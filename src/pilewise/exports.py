@@ -1,0 +1,166 @@
+"""Exports of a run: assignments.csv, clusters.json, manifest.json, ingest-report.csv.
+
+The formats are described in docs/outputs.md; a test keeps the two in step.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import platform
+from dataclasses import asdict
+from datetime import UTC, datetime
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from pilewise.model import ClusterSummary, TermScore
+
+if TYPE_CHECKING:
+    from pilewise.pipeline import RunResult
+
+EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv")
+LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "beautifulsoup4",
+             "charset-normalizer", "typer")
+
+
+def write_exports(folder: Path, result: RunResult) -> None:
+    """Write every export of `result` into `folder`."""
+    write_assignments(folder / "assignments.csv", result)
+    _write_json(folder / "clusters.json", clusters_document(result))
+    _write_json(folder / "manifest.json", manifest_document(result))
+    write_ingest_report(folder / "ingest-report.csv", result)
+
+
+def write_assignments(path: Path, result: RunResult) -> None:
+    """One row per document, in reading order; metadata columns of table inputs follow."""
+    docs = result.collection.documents
+    extra = sorted({name for doc in docs for name, _ in doc.metadata})
+    labels = result.clustering.labels
+    distances = result.clustering.distances
+    text_of_doc = result.collection.text_of_doc
+    copies = result.collection.copies
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(["doc_id", "source", "title", "cluster", "distance", "date", "copies", *extra])
+        for i, doc in enumerate(docs):
+            t = text_of_doc[i]
+            meta = dict(doc.metadata)
+            writer.writerow([
+                doc.doc_id, doc.source, doc.title, int(labels[t]), f"{distances[t]:.6f}", doc.date,
+                int(copies[t]), *(meta.get(name, "") for name in extra),
+            ])
+
+
+def write_ingest_report(path: Path, result: RunResult) -> None:
+    """Every file (and table row) that was read, skipped or noted, with its reason."""
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(["source", "status", "reason", "detail"])
+        for entry in result.ingested.entries:
+            writer.writerow([entry.source, entry.status, entry.reason, entry.detail])
+
+
+def _round(value: float | None, places: int = 6) -> float | None:
+    return None if value is None else round(float(value), places)
+
+
+def _term_record(term: TermScore, statistic: str) -> dict[str, Any]:
+    record: dict[str, Any] = {"term": term.term}
+    if statistic == "chi2":
+        record["score"] = _round(term.score, 4)
+    else:
+        record["log_odds"] = _round(term.score, 4)
+        record["z"] = _round(term.z, 4)
+    record.update(docs_in=term.docs_in, docs_out=term.docs_out,
+                  share_in=_round(term.share_in, 4), share_out=_round(term.share_out, 4))
+    return record
+
+
+def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
+    docs = result.collection.documents
+    exemplar = docs[cluster.nearest[0].doc_index]
+    return {
+        "id": cluster.cluster_id,
+        "size": cluster.size,
+        "share": _round(cluster.share, 4),
+        "distinct_texts": cluster.distinct_texts,
+        "headline": cluster.headline,
+        "exemplar": {"doc_id": exemplar.doc_id, "title": exemplar.title,
+                     "distance": _round(cluster.nearest[0].distance)},
+        "nearest": [{"doc_id": docs[n.doc_index].doc_id, "title": docs[n.doc_index].title,
+                     "distance": _round(n.distance)} for n in cluster.nearest],
+        "terms": {
+            "chi2": [_term_record(t, "chi2") for t in cluster.chi2_terms],
+            "log_odds": [_term_record(t, "log_odds") for t in cluster.log_odds_terms],
+        },
+        "kwic": [{"term": line.term, "left": line.left, "match": line.match, "right": line.right,
+                  "doc_id": line.doc_id} for line in cluster.kwic],
+        "mean_distance": _round(cluster.mean_distance),
+        "silhouette": _round(cluster.silhouette),
+    }
+
+
+def clusters_document(result: RunResult) -> dict[str, Any]:
+    q = result.quality
+    return {
+        "run": result.options.run_name,
+        "k": result.options.k,
+        "documents": len(result.collection.documents),
+        "quality": {
+            "silhouette_cosine": _round(q.silhouette),
+            "silhouette_reading": q.silhouette_reading,
+            "silhouette_sample": q.silhouette_sample,
+            "calinski_harabasz": _round(q.calinski_harabasz, 4),
+            "davies_bouldin": _round(q.davies_bouldin),
+        },
+        "clusters": [cluster_record(c, result) for c in result.clusters],
+    }
+
+
+def build_time() -> str:
+    """UTC time of the build, from SOURCE_DATE_EPOCH when set (reproducible builds)."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    moment = datetime.fromtimestamp(int(epoch), UTC) if epoch and epoch.isdigit() else datetime.now(UTC)
+    return moment.replace(microsecond=0).isoformat().replace("+00:00", "Z")
+
+
+def library_versions() -> dict[str, str]:
+    found = {"python": platform.python_version()}
+    for name in LIBRARIES:
+        try:
+            found[name] = version(name)
+        except PackageNotFoundError:
+            found[name] = "not installed"
+    return found
+
+
+def manifest_document(result: RunResult) -> dict[str, Any]:
+    options = asdict(result.options)
+    parameters = {key: (str(value) if isinstance(value, Path) else value) for key, value in options.items()
+                  if key not in {"quiet", "extra"}}
+    ingested = result.ingested
+    return {
+        "tool": "pilewise",
+        "run": result.options.run_name,
+        "created": build_time(),
+        "method": "k-means",
+        "seed": result.options.seed,
+        "parameters": parameters,
+        "input": {
+            "fingerprint": result.fingerprint,
+            "files_found": ingested.files_found,
+            "documents": len(ingested.documents),
+            "distinct_texts": int(result.collection.copies.size),
+            "skipped": len(ingested.skipped()),
+            "notes": list(ingested.notes),
+        },
+        "vectors": result.vectors.facts,
+        "libraries": library_versions(),
+        "timings_seconds": dict(result.timings),
+    }
+
+
+def _write_json(path: Path, document: dict[str, Any]) -> None:
+    path.write_text(json.dumps(document, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")

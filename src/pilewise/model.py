@@ -1,0 +1,107 @@
+"""Plain typed records passed between the stages."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+@dataclass(frozen=True)
+class Document:
+    """One document read from the source.
+
+    ``doc_id`` is the user's id (an id column) or the path relative to SOURCE, with a row
+    number for tables. ``source`` says where the text came from.
+    """
+
+    doc_id: str
+    source: str
+    title: str
+    text: str
+    date: str = ""
+    metadata: tuple[tuple[str, str], ...] = ()
+
+
+@dataclass(frozen=True)
+class IngestEntry:
+    """One line of the ingest report: a file (or a table row) and what became of it."""
+
+    source: str
+    status: str  # "document", "skipped" or "note"
+    reason: str
+    detail: str = ""
+
+
+@dataclass(frozen=True)
+class Ingested:
+    """Everything the reading stage found."""
+
+    documents: tuple[Document, ...]
+    entries: tuple[IngestEntry, ...]
+    notes: tuple[str, ...] = ()
+    files_found: int = 0
+
+    def skipped(self) -> tuple[IngestEntry, ...]:
+        return tuple(e for e in self.entries if e.status == "skipped")
+
+
+@dataclass(frozen=True)
+class TermScore:
+    """A discriminating term with its statistic and document counts in and out of the cluster."""
+
+    term: str
+    key: str
+    score: float
+    docs_in: int
+    docs_out: int
+    share_in: float
+    share_out: float
+    z: float | None = None
+
+
+@dataclass(frozen=True)
+class KwicLine:
+    """A keyword-in-context line: fixed-width left and right context around the match."""
+
+    term: str
+    left: str
+    match: str
+    right: str
+    doc_id: str
+    doc_index: int
+
+
+@dataclass(frozen=True)
+class Neighbour:
+    """A member document and its cosine distance to the cluster centroid."""
+
+    doc_index: int
+    distance: float
+
+
+@dataclass(frozen=True)
+class ClusterSummary:
+    """Everything pilewise says about one cluster."""
+
+    cluster_id: int
+    size: int
+    share: float
+    distinct_texts: int
+    headline: str
+    nearest: tuple[Neighbour, ...]
+    chi2_terms: tuple[TermScore, ...]
+    log_odds_terms: tuple[TermScore, ...]
+    kwic: tuple[KwicLine, ...]
+    mean_distance: float
+    silhouette: float | None
+
+
+@dataclass(frozen=True)
+class QualityScores:
+    """Collection-level figures of a clustering; None when undefined."""
+
+    silhouette: float | None
+    silhouette_sample: int
+    calinski_harabasz: float | None
+    davies_bouldin: float | None
+    silhouette_reading: str = ""
+    per_cluster_silhouette: tuple[float, ...] = field(default_factory=tuple)

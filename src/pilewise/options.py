@@ -1,0 +1,109 @@
+"""Run options and their validation, in one place against one table of limits."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from pilewise.errors import PilewiseError
+
+# option name -> (lowest allowed, highest allowed, the CLI flag that sets it)
+LIMITS: dict[str, tuple[float, float, str]] = {
+    "k": (2, 1000, "--k"),
+    "lsa_components": (0, 1000, "--lsa-components"),
+    "max_file_mb": (0.001, 10_000, "--max-file-mb"),
+    "max_doc_chars": (100, 100_000_000, "--max-doc-chars"),
+    "max_documents": (2, 100_000_000, "--max-documents"),
+    "top_terms": (1, 100, "--top-terms"),
+    "n_init": (1, 100, "--n-init"),
+}
+
+
+@dataclass(frozen=True)
+class RunOptions:
+    """Every setting of one run; the defaults are the measured ones (docs/vectorizing.md).
+
+    Parameters
+    ----------
+    source : Path
+        A folder (read recursively) or one table file.
+    k : int
+        Number of clusters, 2 <= k < number of distinct documents.
+    out : Path
+        The site's root folder; the run goes into ``out/runs/<name>``.
+    seed : int
+        Seeds every random stage.
+    name : str
+        Run folder name; default ``k<k>``.
+    """
+
+    source: Path
+    k: int
+    out: Path = Path("pilewise-site")
+    seed: int = 0
+    name: str = ""
+    text_column: str | None = None
+    title_column: str | None = None
+    id_column: str | None = None
+    date_column: str | None = None
+    stop_words_file: Path | None = None
+    stem: bool = False
+    bigrams_in_space: bool = False
+    lsa_components: int = 100
+    min_df: int | None = None
+    max_df: float = 0.5
+    n_init: int = 4
+    top_terms: int = 15
+    max_file_mb: float = 100.0
+    max_doc_chars: int = 1_000_000
+    max_documents: int = 2_000_000
+    quiet: bool = False
+    extra: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def run_name(self) -> str:
+        return self.name or f"k{self.k}"
+
+
+def validate(options: RunOptions) -> None:
+    """Check every option against LIMITS and report all problems in one message."""
+    problems: list[str] = []
+    for attr, (low, high, flag) in LIMITS.items():
+        value = getattr(options, attr)
+        if not low <= value <= high:
+            problems.append(f"{flag}={value} is out of range; use a value from {low:g} to {high:g}")
+    if not 0.0 < options.max_df <= 1.0:
+        problems.append(f"--max-df={options.max_df} is out of range; use a share above 0 and at most 1")
+    if options.min_df is not None and options.min_df < 1:
+        problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
+    name = options.run_name
+    if not name.replace("-", "").replace("_", "").replace(".", "").isalnum() or name.startswith("."):
+        problems.append(f"--name {name!r} is not a safe folder name; use letters, digits, '-', '_' or '.'")
+    if not options.source.exists():
+        problems.append(f"source {str(options.source)!r} does not exist; pass a folder or a table file")
+    if options.stop_words_file is not None and not options.stop_words_file.is_file():
+        problems.append(f"--stop-words {str(options.stop_words_file)!r} is not a file; pass a text file")
+    if options.source.exists():
+        src = options.source.resolve()
+        out = options.out.resolve()
+        if src.is_dir() and (out == src or src in out.parents):
+            problems.append(
+                f"--out {str(options.out)!r} lies inside the source folder, so the next run would read "
+                "its own pages; choose an output folder outside the source"
+            )
+    if problems:
+        raise PilewiseError("; ".join(problems))
+
+
+def check_k(k: int, distinct_documents: int) -> None:
+    """Validate k against the collection before any heavy work."""
+    if distinct_documents < 3:
+        raise PilewiseError(
+            f"found {distinct_documents} distinct document(s); clustering needs at least 3, "
+            "so add documents or point SOURCE at a larger collection"
+        )
+    if not 2 <= k < distinct_documents:
+        raise PilewiseError(
+            f"k={k} must be at least 2 and less than the {distinct_documents} distinct documents found; "
+            f"pass --k between 2 and {distinct_documents - 1}"
+        )

@@ -1,0 +1,170 @@
+"""The one path from a source to a written run: read, vectorize, cluster, describe, assess, write.
+
+Everything is computed into typed summaries first; the exports and the site are written from
+them into a temporary folder that replaces the run's folder only when complete.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shutil
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from pilewise.clustering import Clustering, kmeans_clusters
+from pilewise.describe import Collection, describe_clusters
+from pilewise.errors import PilewiseError
+from pilewise.exports import write_exports
+from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
+from pilewise.options import RunOptions, check_k, validate
+from pilewise.progress import Reporter
+from pilewise.quality import assess
+from pilewise.reading import ReadLimits, read_source
+from pilewise.site import render_root_index, render_run_site
+from pilewise.tables import ColumnChoice
+from pilewise.text import Analyzer, load_stop_words
+from pilewise.vectors import VectorSettings, Vectorized, vectorize
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """Everything computed for one run, ready to be written."""
+
+    options: RunOptions
+    ingested: Ingested
+    collection: Collection
+    vectors: Vectorized
+    clustering: Clustering
+    quality: QualityScores
+    clusters: tuple[ClusterSummary, ...]
+    analyzer: Analyzer
+    fingerprint: str
+    timings: dict[str, float]
+
+
+@dataclass(frozen=True)
+class RunOutcome:
+    """Where a run was written and what it found."""
+
+    run_folder: Path
+    index_page: Path
+    root_index: Path
+    documents: int
+    skipped: int
+    clusters: int
+
+
+def run_collection(options: RunOptions, reporter: Reporter | None = None) -> RunOutcome:
+    """Read, cluster and describe SOURCE, then write the run's site and exports under OUT."""
+    reporter = reporter or Reporter(quiet=options.quiet)
+    result = compute_run(options, reporter)
+    with reporter.stage("writing site"):
+        run_folder = options.out / "runs" / options.run_name
+        _write_atomically(run_folder, lambda folder: _write_run(folder, result))
+        root_index = render_root_index(options.out)
+    return RunOutcome(
+        run_folder=run_folder,
+        index_page=run_folder / "index.html",
+        root_index=root_index,
+        documents=len(result.ingested.documents),
+        skipped=len(result.ingested.skipped()),
+        clusters=len(result.clusters),
+    )
+
+
+def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
+    """All computation of a run, no writing."""
+    validate(options)
+    with reporter.stage("reading"):
+        limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
+        columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
+        ingested = read_source(options.source, columns, limits)
+        if len(ingested.documents) > options.max_documents:
+            raise PilewiseError(
+                f"found {len(ingested.documents):,} documents, more than --max-documents "
+                f"{options.max_documents:,}; raise --max-documents or point SOURCE at fewer files"
+            )
+        for note in ingested.notes:
+            reporter.say(note)
+        collection = collect_distinct(ingested.documents)
+        reporter.say(
+            f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
+            f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
+        )
+    check_k(options.k, int(collection.copies.size))
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    with reporter.stage("vectorizing"):
+        texts = [collection.documents[i].text for i in collection.first_doc_of_text]
+        settings = VectorSettings(
+            min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
+            lsa_components=options.lsa_components, seed=options.seed,
+        )
+        vectors = vectorize(texts, analyzer, settings, progress=reporter.say)
+    with reporter.stage("clustering"):
+        clustering = kmeans_clusters(
+            vectors.space, collection.copies.astype(float), k=options.k, seed=options.seed, n_init=options.n_init
+        )
+    with reporter.stage("assessing"):
+        quality = assess(vectors.space, clustering.labels, k=options.k, seed=options.seed)
+    with reporter.stage("describing"):
+        clusters = describe_clusters(collection, vectors, clustering, quality, analyzer, top_terms=options.top_terms)
+    return RunResult(
+        options=options, ingested=ingested, collection=collection, vectors=vectors, clustering=clustering,
+        quality=quality, clusters=clusters, analyzer=analyzer, fingerprint=fingerprint(ingested.documents),
+        timings=reporter.timings,
+    )
+
+
+def collect_distinct(documents: tuple[Document, ...]) -> Collection:
+    """Group exact duplicate texts (after collapsing whitespace) so that each is clustered once."""
+    index_of: dict[str, int] = {}
+    text_of_doc = np.empty(len(documents), dtype=np.int64)
+    first: list[int] = []
+    for i, doc in enumerate(documents):
+        key = " ".join(doc.text.split())
+        t = index_of.setdefault(key, len(first))
+        if t == len(first):
+            first.append(i)
+        text_of_doc[i] = t
+    copies = np.bincount(text_of_doc, minlength=len(first))
+    return Collection(documents, text_of_doc, np.asarray(first, dtype=np.int64), copies)
+
+
+def fingerprint(documents: tuple[Document, ...]) -> str:
+    """SHA-256 over every document's id and text, in reading order."""
+    digest = hashlib.sha256()
+    for doc in documents:
+        digest.update(doc.doc_id.encode("utf-8", "surrogatepass"))
+        digest.update(b"\0")
+        digest.update(doc.text.encode("utf-8", "surrogatepass"))
+        digest.update(b"\0")
+    return "sha256:" + digest.hexdigest()
+
+
+def _write_run(folder: Path, result: RunResult) -> None:
+    write_exports(folder, result)
+    render_run_site(folder, result)
+
+
+def _write_atomically(target: Path, write: object) -> None:
+    """Build into a temporary sibling folder and move it into place only when complete."""
+    assert callable(write)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
+    try:
+        write(staging)
+        os.chmod(staging, 0o755)
+        if target.exists():
+            retired = Path(tempfile.mkdtemp(prefix=f".{target.name}-old-", dir=target.parent))
+            os.replace(target, retired / target.name)
+            os.replace(staging, target)
+            shutil.rmtree(retired, ignore_errors=True)
+        else:
+            os.replace(staging, target)
+    finally:
+        if staging.exists():
+            shutil.rmtree(staging, ignore_errors=True)

@@ -1,0 +1,221 @@
+"""Reading stage: turn a folder or a table file into documents and an ingest report.
+
+Every file found is either a document or an entry of the report with its reason; nothing is
+dropped silently.
+"""
+
+from __future__ import annotations
+
+import email
+import email.policy
+import os
+import re
+from dataclasses import dataclass
+from email.message import EmailMessage
+from pathlib import Path
+
+from bs4 import BeautifulSoup
+
+from pilewise.errors import PilewiseError
+from pilewise.model import Document, Ingested, IngestEntry
+from pilewise.plaintext import decode_bytes, first_line_title
+from pilewise.tables import TABLE_SUFFIXES, ColumnChoice, read_table
+
+TEXT_SUFFIXES = {".txt", ".md", ".markdown", ".text"}
+HTML_SUFFIXES = {".html", ".htm", ".xhtml"}
+MAIL_SUFFIXES = {".eml"}
+_INVISIBLE_TAGS = ("script", "style", "noscript", "template", "nav", "head", "svg", "iframe", "object")
+
+
+@dataclass(frozen=True)
+class ReadLimits:
+    """Size limits applied while reading."""
+
+    max_file_bytes: int = 100 * 1024 * 1024
+    max_doc_chars: int = 1_000_000
+
+
+def read_source(source: Path, columns: ColumnChoice, limits: ReadLimits) -> Ingested:
+    """Read SOURCE (a folder, read recursively, or one file) into documents.
+
+    Raises
+    ------
+    PilewiseError
+        When SOURCE is missing or holds no readable document at all.
+    """
+    if not source.exists():
+        raise PilewiseError(f"source {str(source)!r} does not exist; pass a folder or a table file")
+    documents: list[Document] = []
+    entries: list[IngestEntry] = []
+    notes: list[str] = []
+    if source.is_file():
+        paths = [(source, source.name)]
+    else:
+        paths, walk_entries = _discover(source)
+        entries.extend(walk_entries)
+    for path, rel in paths:
+        docs, file_entries, file_notes = _read_one(path, rel, columns, limits, single=source.is_file())
+        documents.extend(docs)
+        entries.extend(file_entries)
+        notes.extend(file_notes)
+    files_found = len(paths) + sum(1 for e in entries if e.status == "skipped" and e.reason.startswith("link"))
+    if not documents:
+        reasons = _reason_counts(entries)
+        where = f"{len(paths)} file(s) in {str(source)!r}" if source.is_dir() else repr(str(source))
+        raise PilewiseError(
+            f"no documents found in {where} ({reasons or 'nothing readable'}); point SOURCE at "
+            "a folder of .txt/.md/.html/.eml files or a .csv/.tsv/.json/.jsonl/.parquet table"
+        )
+    return Ingested(tuple(documents), tuple(entries), tuple(notes), files_found)
+
+
+def _reason_counts(entries: list[IngestEntry]) -> str:
+    counts: dict[str, int] = {}
+    for entry in entries:
+        if entry.status == "skipped":
+            counts[entry.reason] = counts.get(entry.reason, 0) + 1
+    return ", ".join(f"{n} {reason}" for reason, n in sorted(counts.items()))
+
+
+def _discover(folder: Path) -> tuple[list[tuple[Path, str]], list[IngestEntry]]:
+    """List files under `folder`, sorted; symbolic links to folders are reported, not followed."""
+    found: list[tuple[Path, str]] = []
+    entries: list[IngestEntry] = []
+
+    def onerror(err: OSError) -> None:
+        where = _relative(Path(err.filename or folder), folder)
+        entries.append(IngestEntry(where, "skipped", "unreadable", f"folder cannot be listed: {err.strerror}"))
+
+    for root, dirs, files in os.walk(folder, onerror=onerror, followlinks=False):
+        root_path = Path(root)
+        dirs.sort()
+        for d in list(dirs):
+            if (root_path / d).is_symlink():
+                rel = _relative(root_path / d, folder)
+                entries.append(IngestEntry(rel, "skipped", "link to a folder", "not followed"))
+        for name in sorted(files):
+            path = root_path / name
+            found.append((path, _relative(path, folder)))
+    return found, entries
+
+
+def _relative(path: Path, folder: Path) -> str:
+    try:
+        return path.relative_to(folder).as_posix()
+    except ValueError:
+        return path.as_posix()
+
+
+def _read_one(
+    path: Path, rel: str, columns: ColumnChoice, limits: ReadLimits, *, single: bool
+) -> tuple[list[Document], list[IngestEntry], list[str]]:
+    suffix = path.suffix.lower()
+    try:
+        size = path.stat().st_size
+    except OSError as err:
+        return [], [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))], []
+    if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES | TABLE_SUFFIXES:
+        if single:
+            raise PilewiseError(
+                f"{rel!r} is not a supported file type; pass a folder, or a .csv/.tsv/.json/.jsonl/.parquet table"
+            )
+        return [], [IngestEntry(rel, "skipped", "unsupported", f"file type {suffix or '(none)'}")], []
+    if size == 0:
+        return [], [IngestEntry(rel, "skipped", "empty", "0 bytes")], []
+    if size > limits.max_file_bytes:
+        limit_mb = limits.max_file_bytes / 1024 / 1024
+        detail = f"{size / 1024 / 1024:.1f} MB; raise --max-file-mb (now {limit_mb:g}) to read it"
+        return [], [IngestEntry(rel, "skipped", "too large", detail)], []
+    if suffix in TABLE_SUFFIXES:
+        return read_table(path, rel, columns, limits.max_doc_chars)
+    try:
+        raw = path.read_bytes()
+    except OSError as err:
+        return [], [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))], []
+    if suffix in MAIL_SUFFIXES:
+        title, text, note = _read_mail(raw)
+    else:
+        if _looks_binary(raw):
+            return [], [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")], []
+        decoded, note = decode_bytes(raw)
+        if suffix in HTML_SUFFIXES:
+            title, text = html_to_text(decoded)
+        else:
+            title, text = "", decoded
+    text = text.strip()
+    if not text:
+        return [], [IngestEntry(rel, "skipped", "empty", "no visible text")], []
+    entries = []
+    text, cut = _truncate(text, limits.max_doc_chars)
+    if cut:
+        entries.append(IngestEntry(rel, "note", "truncated", cut))
+    doc = Document(doc_id=rel, source=rel, title=title.strip() or first_line_title(text), text=text)
+    entries.insert(0, IngestEntry(rel, "document", "read", note))
+    return [doc], entries, []
+
+
+def _truncate(text: str, max_chars: int) -> tuple[str, str]:
+    if len(text) <= max_chars:
+        return text, ""
+    return text[:max_chars], f"kept the first {max_chars:,} of {len(text):,} characters; raise --max-doc-chars"
+
+
+def _looks_binary(raw: bytes) -> bool:
+    head = raw[:8192]
+    if head.startswith((b"\xff\xfe", b"\xfe\xff", b"\xef\xbb\xbf")):
+        return False
+    if b"\x00" in head:
+        return True
+    control = sum(1 for b in head if b < 9 or 13 < b < 32)
+    return control > len(head) * 0.1
+
+
+
+def html_to_text(markup: str) -> tuple[str, str]:
+    """Visible text of an HTML page and its title (<title>, else the first heading)."""
+    soup = BeautifulSoup(markup, "lxml")
+    title_tag = soup.find("title")
+    title = title_tag.get_text(" ", strip=True) if title_tag else ""
+    for tag in soup.find_all(_INVISIBLE_TAGS):
+        tag.decompose()
+    if not title:
+        heading = soup.find(re.compile(r"^h[1-6]$"))
+        title = heading.get_text(" ", strip=True) if heading else ""
+    text = soup.get_text("\n")
+    lines = [re.sub(r"[ \t\r\f\v]+", " ", line).strip() for line in text.splitlines()]
+    return title, "\n".join(line for line in lines if line)
+
+
+_REPLY_INTRO = re.compile(r"^\s*(on .{3,200} wrote:|-+\s*original message\s*-+)\s*$", re.IGNORECASE)
+
+
+def _read_mail(raw: bytes) -> tuple[str, str, str]:
+    msg = email.message_from_bytes(raw, policy=email.policy.default)
+    assert isinstance(msg, EmailMessage)
+    subject = str(msg.get("subject", "") or "")
+    body_part = msg.get_body(preferencelist=("plain", "html"))
+    note = ""
+    if body_part is None:
+        return subject, "", "no text part"
+    try:
+        content = body_part.get_content()
+    except (LookupError, UnicodeDecodeError, AssertionError):
+        payload = body_part.get_payload(decode=True)
+        content, note = decode_bytes(payload if isinstance(payload, bytes) else b"")
+    if not isinstance(content, str):
+        content, note = decode_bytes(bytes(content))
+    if body_part.get_content_type() == "text/html":
+        _, content = html_to_text(content)
+    return subject, strip_mail_quotes(content), note
+
+
+def strip_mail_quotes(body: str) -> str:
+    """Drop quoted reply lines, the line introducing them, and everything after a '-- ' signature line."""
+    kept: list[str] = []
+    for line in body.splitlines():
+        if line.rstrip("\r") == "-- ":
+            break
+        if line.lstrip().startswith(">") or _REPLY_INTRO.match(line):
+            continue
+        kept.append(line)
+    return "\n".join(kept).strip()

@@ -1,0 +1,224 @@
+"""Site writer: renders a run's pages and the root index from computed summaries.
+
+Templates get display-ready context and never compute. Autoescape is on for every template:
+pages show raw document text, which is never trusted HTML.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Sequence
+from dataclasses import dataclass
+from importlib.resources import files
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from jinja2 import Environment, PackageLoader, StrictUndefined
+
+from pilewise.model import ClusterSummary, Document
+
+if TYPE_CHECKING:
+    from pilewise.pipeline import RunResult
+
+DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
+MEMBERS_PER_PAGE = 500
+MARKED_TERMS = 12
+STYLESHEET = "pilewise.css"
+
+CAUTION = (
+    "These pages contain the documents' own text. Share them only as your data-protection rules allow. "
+    "Clusters are an exploratory view of the text, not facts about the people who wrote it; do not use them "
+    "as the sole basis for decisions about individuals."
+)
+
+
+def _environment() -> Environment:
+    env = Environment(
+        loader=PackageLoader("pilewise.site", "templates"),
+        autoescape=True,
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters["num"] = lambda v, places=0: "–" if v is None else f"{v:,.{places}f}"
+    env.filters["pct"] = lambda v: f"{100 * v:.1f}%"
+    return env
+
+
+def _copy_stylesheet(folder: Path) -> None:
+    source = files("pilewise.site").joinpath("static", STYLESHEET)
+    (folder / STYLESHEET).write_bytes(source.read_bytes())
+
+
+@dataclass(frozen=True)
+class Segment:
+    """A piece of a document's text; marked pieces are the cluster's top terms."""
+
+    text: str
+    marked: bool
+
+
+def cluster_page_name(cluster_id: int, page: int = 1) -> str:
+    return f"cluster-{cluster_id:02d}.html" if page == 1 else f"cluster-{cluster_id:02d}-members-{page}.html"
+
+
+def doc_page_name(doc_index: int) -> str:
+    return f"docs/d{doc_index:07d}.html"
+
+
+def render_run_site(folder: Path, result: RunResult) -> None:
+    """Write index.html, one page per cluster (members paged), document pages and the ingest page."""
+    env = _environment()
+    _copy_stylesheet(folder)
+    docs = result.collection.documents
+    with_doc_pages = len(docs) <= DOC_PAGE_CAP
+    common = {
+        "run": result.options.run_name,
+        "caution": CAUTION,
+        "css": STYLESHEET,
+        "k": result.options.k,
+        "documents": len(docs),
+        "distinct": int(result.collection.copies.size),
+        "skipped": len(result.ingested.skipped()),
+        "quality": result.quality,
+        "with_doc_pages": with_doc_pages,
+        "doc_page_cap": DOC_PAGE_CAP,
+    }
+    cards = [_card(c, result) for c in result.clusters]
+    _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
+    _write(folder / "ingest.html", env.get_template("ingest.html").render(
+        common, entries=result.ingested.entries, notes=result.ingested.notes,
+        files_found=result.ingested.files_found, up=""))
+    members_by_cluster = _members_nearest_first(result)
+    for cluster, card in zip(result.clusters, cards, strict=True):
+        members = members_by_cluster[cluster.cluster_id]
+        pages = max(1, -(-len(members) // MEMBERS_PER_PAGE))
+        for page in range(1, pages + 1):
+            chunk = members[(page - 1) * MEMBERS_PER_PAGE : page * MEMBERS_PER_PAGE]
+            rows = [_member_row(i, dist, docs[i], with_doc_pages) for i, dist in chunk]
+            context = {
+                "card": card,
+                "cluster": cluster,
+                "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages)
+                            for n in cluster.nearest],
+                "kwic": [{"line": line, "href": doc_page_name(line.doc_index) if with_doc_pages else None}
+                         for line in cluster.kwic],
+                "members": rows,
+                "page": page,
+                "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
+                "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
+                "up": "",
+            }
+            _write(folder / cluster_page_name(cluster.cluster_id, page),
+                   env.get_template("cluster.html").render(common, **context))
+    if with_doc_pages:
+        (folder / "docs").mkdir()
+        template = env.get_template("document.html")
+        keys_by_cluster = {c.cluster_id: [t.key for t in c.chi2_terms[:MARKED_TERMS]] for c in result.clusters}
+        for i, doc in enumerate(docs):
+            t = result.collection.text_of_doc[i]
+            cluster_id = int(result.clustering.labels[t])
+            segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
+            _write(folder / doc_page_name(i), template.render(
+                common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
+                cluster_href="../" + cluster_page_name(cluster_id), distance=float(result.clustering.distances[t]),
+                copies=int(result.collection.copies[t]), up="../"))
+
+
+def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
+    largest = max(c.share for c in result.clusters)
+    return {
+        "id": cluster.cluster_id,
+        "href": cluster_page_name(cluster.cluster_id),
+        "headline": cluster.headline,
+        "size": cluster.size,
+        "share": cluster.share,
+        "bar": round(100 * cluster.share / largest, 1),
+        "terms": [t.term for t in cluster.chi2_terms[:8]],
+        "silhouette": cluster.silhouette,
+    }
+
+
+def _member_row(doc_index: int, distance: float, doc: Document, with_pages: bool) -> dict[str, Any]:
+    return {
+        "doc_id": doc.doc_id,
+        "title": doc.title,
+        "distance": distance,
+        "href": doc_page_name(doc_index) if with_pages else None,
+        "snippet": " ".join(doc.text.split())[:160],
+    }
+
+
+def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float]]]:
+    """Every document of every cluster, nearest to the centroid first (copies next to each other)."""
+    import numpy as np
+
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    distances = result.clustering.distances[result.collection.text_of_doc]
+    order = np.lexsort((np.arange(labels.size), distances, labels))
+    grouped: dict[int, list[tuple[int, float]]] = {c.cluster_id: [] for c in result.clusters}
+    for i in order:
+        grouped[int(labels[i])].append((int(i), float(distances[i])))
+    return grouped
+
+
+def mark_terms(text: str, spans: Sequence[tuple[int, int, str]], keys: Sequence[str]) -> list[Segment]:
+    """Split `text` into segments, marking words and two-word phrases that are among `keys`."""
+    words = {k for k in keys if " " not in k}
+    phrases = {tuple(k.split(" ")) for k in keys if " " in k}
+    marks: list[tuple[int, int]] = []
+    for j, (start, end, term) in enumerate(spans):
+        if j + 1 < len(spans) and (term, spans[j + 1][2]) in phrases:
+            marks.append((start, spans[j + 1][1]))
+        elif term in words:
+            marks.append((start, end))
+    segments: list[Segment] = []
+    cursor = 0
+    for start, end in marks:
+        if start < cursor:
+            continue
+        if start > cursor:
+            segments.append(Segment(text[cursor:start], False))
+        segments.append(Segment(text[start:end], True))
+        cursor = end
+    if cursor < len(text):
+        segments.append(Segment(text[cursor:], False))
+    return segments
+
+
+def _write(path: Path, content: str) -> None:
+    path.write_text(content, encoding="utf-8")
+
+
+def render_root_index(out: Path) -> Path:
+    """(Re)write OUT/index.html listing every run found under OUT/runs."""
+    env = _environment()
+    out.mkdir(parents=True, exist_ok=True)
+    runs = []
+    runs_folder = out / "runs"
+    for folder in sorted(runs_folder.iterdir()) if runs_folder.is_dir() else []:
+        manifest_path = folder / "manifest.json"
+        clusters_path = folder / "clusters.json"
+        if folder.name.startswith(".") or not manifest_path.is_file() or not clusters_path.is_file():
+            continue
+        try:
+            manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+            clusters = json.loads(clusters_path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        runs.append({
+            "name": folder.name,
+            "href": f"runs/{folder.name}/index.html",
+            "k": clusters.get("k"),
+            "documents": clusters.get("documents"),
+            "silhouette": clusters.get("quality", {}).get("silhouette_cosine"),
+            "reading": clusters.get("quality", {}).get("silhouette_reading", ""),
+            "created": manifest.get("created", ""),
+            "source": manifest.get("parameters", {}).get("source", ""),
+            "headlines": [c.get("headline", "") for c in clusters.get("clusters", [])[:3]],
+        })
+    _copy_stylesheet(out)
+    page = out / "index.html"
+    _write(page, env.get_template("root_index.html").render(runs=runs, caution=CAUTION, css=STYLESHEET, up=""))
+    return page

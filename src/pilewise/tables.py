@@ -1,0 +1,205 @@
+"""Reading table exports (.csv/.tsv/.json/.jsonl/.parquet): one row, one document."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from pilewise.errors import PilewiseError
+from pilewise.model import Document, IngestEntry
+from pilewise.plaintext import decode_bytes, first_line_title
+
+TABLE_SUFFIXES = {".csv", ".tsv", ".json", ".jsonl", ".ndjson", ".parquet"}
+
+TEXT_NAMES = ("text", "body", "message", "content", "description", "comment", "answer", "response", "review")
+TITLE_NAMES = ("title", "subject", "headline", "summary", "topic")
+ID_NAMES = ("id", "doc_id", "document_id", "message_id", "ticket_id", "ticket", "uuid", "key")
+DATE_NAMES = ("date", "created", "created_at", "received", "timestamp", "time", "sent", "submitted")
+
+
+@dataclass(frozen=True)
+class ColumnChoice:
+    """The user's column options; None means guess."""
+
+    text: str | None = None
+    title: str | None = None
+    id: str | None = None
+    date: str | None = None
+
+
+def read_table(
+    path: Path, rel: str, choice: ColumnChoice, max_doc_chars: int
+) -> tuple[list[Document], list[IngestEntry], list[str]]:
+    """Read one table; rows without text become report entries, never silent drops."""
+    frame, entries = _load_frame(path, rel)
+    if frame is None:
+        return [], entries, []
+    columns = [str(c) for c in frame.columns]
+    frame.columns = pd.Index(columns)
+    text_col, title_col, id_col, date_col, notes = _choose_columns(frame, rel, choice)
+    documents: list[Document] = []
+    extra_cols = [c for c in columns if c not in {text_col, title_col, id_col, date_col}]
+    seen_ids: set[str] = set()
+    records = frame.to_dict("records")
+    for row_number, record in enumerate(records, start=1):
+        where = f"{rel}#row{row_number}"
+        text = _cell(record.get(text_col)).strip()
+        if not text:
+            entries.append(IngestEntry(where, "skipped", "empty", f"column {text_col!r} is empty"))
+            continue
+        if len(text) > max_doc_chars:
+            entries.append(IngestEntry(where, "note", "truncated", f"kept the first {max_doc_chars:,} characters"))
+            text = text[:max_doc_chars]
+        doc_id = _cell(record.get(id_col)).strip() if id_col else ""
+        if not doc_id or doc_id in seen_ids:
+            if doc_id:
+                entries.append(IngestEntry(where, "note", "duplicate id", f"id {doc_id!r} repeats; used {where}"))
+            doc_id = where
+        seen_ids.add(doc_id)
+        title = _cell(record.get(title_col)).strip() if title_col else ""
+        documents.append(
+            Document(
+                doc_id=doc_id,
+                source=where,
+                title=" ".join(title.split())[:200] or first_line_title(text),
+                text=text,
+                date=_cell(record.get(date_col)).strip() if date_col else "",
+                metadata=tuple((c, _cell(record.get(c))) for c in extra_cols),
+            )
+        )
+    summary = f"{len(documents)} of {len(records)} rows became documents (text column {text_col!r})"
+    entries.insert(0, IngestEntry(rel, "document", "table", summary))
+    return documents, entries, [f"{rel}: {note}" for note in notes]
+
+
+def _cell(value: object) -> str:
+    if value is None:
+        return ""
+    try:
+        if pd.isna(value):  # type: ignore[call-overload]
+            return ""
+    except (TypeError, ValueError):
+        pass
+    return str(value)
+
+
+def _load_frame(path: Path, rel: str) -> tuple[pd.DataFrame | None, list[IngestEntry]]:
+    suffix = path.suffix.lower()
+    entries: list[IngestEntry] = []
+    try:
+        if suffix == ".parquet":
+            return pd.read_parquet(path), entries
+        raw = path.read_bytes()
+        text, note = decode_bytes(raw)
+        if note:
+            entries.append(IngestEntry(rel, "note", "encoding", note))
+        if suffix in {".csv", ".tsv"}:
+            sep = "\t" if suffix == ".tsv" else ","
+            frame = pd.read_csv(
+                io.StringIO(text), sep=sep, dtype=str, keep_default_na=False, on_bad_lines="warn",
+                engine="python",
+            )
+            expected = _count_csv_records(text, sep)
+            if expected > len(frame):
+                entries.append(
+                    IngestEntry(rel, "skipped", "malformed rows", f"{expected - len(frame)} ragged row(s) skipped")
+                )
+            return frame, entries
+        if suffix in {".jsonl", ".ndjson"}:
+            return _read_json_lines(text, rel, entries), entries
+        data = json.loads(text)
+        if isinstance(data, dict):
+            lists = [v for v in data.values() if isinstance(v, list)]
+            data = lists[0] if len(lists) == 1 else [data]
+        if not isinstance(data, list):
+            raise ValueError("top level is neither a list of records nor an object holding one")
+        return pd.DataFrame([r if isinstance(r, dict) else {"text": r} for r in data]), entries
+    except (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError) as err:
+        message = str(err).splitlines()[0][:200] if str(err) else type(err).__name__
+        entries.append(IngestEntry(rel, "skipped", "unreadable table", message))
+        return None, entries
+    except ImportError as err:  # parquet engine missing
+        entries.append(IngestEntry(rel, "skipped", "unreadable table", str(err)[:200]))
+        return None, entries
+
+
+def _count_csv_records(text: str, sep: str) -> int:
+    rows = list(csv.reader(io.StringIO(text), delimiter=sep))
+    return max(0, len([r for r in rows if r]) - 1)
+
+
+def _read_json_lines(text: str, rel: str, entries: list[IngestEntry]) -> pd.DataFrame:
+    records: list[dict[str, object]] = []
+    for line_number, line in enumerate(text.splitlines(), start=1):
+        if not line.strip():
+            continue
+        try:
+            value = json.loads(line)
+        except json.JSONDecodeError as err:
+            entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", err.msg))
+            continue
+        if not isinstance(value, dict):
+            entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", "not an object"))
+            continue
+        records.append(value)
+    return pd.DataFrame(records)
+
+
+def _choose_columns(
+    frame: pd.DataFrame, rel: str, choice: ColumnChoice
+) -> tuple[str, str | None, str | None, str | None, list[str]]:
+    columns = list(frame.columns)
+    listing = ", ".join(columns) or "none"
+    for flag, name in (("--text-column", choice.text), ("--title-column", choice.title),
+                       ("--id-column", choice.id), ("--date-column", choice.date)):
+        if name is not None and name not in columns:
+            raise PilewiseError(f"{flag} {name!r} is not a column of {rel}; pass one of: {listing}")
+    notes: list[str] = []
+    lower = {c.lower(): c for c in columns}
+    text_col = choice.text
+    if text_col is None:
+        named = [lower[n] for n in TEXT_NAMES if n in lower]
+        text_col = named[0] if len(named) == 1 else _longest_text_column(frame, named or columns)
+        if text_col is None:
+            raise PilewiseError(f"no text column found in {rel}; pass --text-column (columns: {listing})")
+        notes.append(f"guessed text column {text_col!r}")
+
+    def guess(given: str | None, names: tuple[str, ...], kind: str) -> str | None:
+        if given is not None:
+            return given
+        hits = [lower[n] for n in names if n in lower and lower[n] != text_col]
+        if len(hits) == 1:
+            notes.append(f"guessed {kind} column {hits[0]!r}")
+            return hits[0]
+        return None
+
+    title_col = guess(choice.title, TITLE_NAMES, "title")
+    id_col = guess(choice.id, ID_NAMES, "id")
+    if id_col is None and choice.id is None:
+        suffixed = [c for c in columns if c.lower().endswith("_id") and c != text_col]
+        if len(suffixed) == 1:
+            id_col = suffixed[0]
+            notes.append(f"guessed id column {id_col!r}")
+    date_col = guess(choice.date, DATE_NAMES, "date")
+    return text_col, title_col, id_col, date_col, notes
+
+
+def _longest_text_column(frame: pd.DataFrame, candidates: list[str]) -> str | None:
+    """The column whose cells are clearly the longest text (twice the runner-up), else None."""
+    lengths: list[tuple[float, str]] = []
+    for col in candidates:
+        values = frame[col].dropna().astype(str)
+        if len(values) == 0:
+            continue
+        lengths.append((float(values.str.len().mean()), col))
+    lengths.sort(reverse=True)
+    if not lengths or lengths[0][0] < 20:
+        return None
+    if len(lengths) == 1 or lengths[0][0] >= 2 * lengths[1][0]:
+        return lengths[0][1]
+    return None

@@ -1,0 +1,108 @@
+"""Tokenizing, stop words and stemming, with the surface word to show for every stem.
+
+Only nltk code that needs no downloaded data is used: the regular-expression tokenizer and the
+Snowball stemmer. The English stop-word list is scikit-learn's (built in, no download).
+"""
+
+from __future__ import annotations
+
+import re
+from collections import Counter
+from pathlib import Path
+
+from nltk.stem.snowball import SnowballStemmer
+from nltk.tokenize import RegexpTokenizer
+from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
+
+from pilewise.errors import PilewiseError
+
+# Words of two or more letters; inner apostrophes and hyphens kept ("don't", "log-in").
+TOKEN_PATTERN = r"[^\W\d_](?:[^\W\d_]|['\-](?=[^\W\d_]))+"
+# The placeholder redaction puts in place of personal data; never a term.
+PLACEHOLDER_PREFIX = "xredacted"
+
+
+def load_stop_words(extra_file: Path | None) -> frozenset[str]:
+    """scikit-learn's English stop words plus one word per line from `extra_file` ('#' starts a comment)."""
+    words = set(ENGLISH_STOP_WORDS)
+    if extra_file is not None:
+        try:
+            lines = extra_file.read_text(encoding="utf-8", errors="replace").splitlines()
+        except OSError as err:
+            raise PilewiseError(f"cannot read --stop-words file {str(extra_file)!r}: {err.strerror}") from err
+        for line in lines:
+            word = line.split("#", 1)[0].strip().lower()
+            if word:
+                words.add(word)
+    return frozenset(words)
+
+
+class Analyzer:
+    """Turns a text into its list of normalized terms (lower-case, stop words out, optionally stemmed).
+
+    Stems are computed once per distinct word and cached; ``surface`` maps every stem to the word
+    form seen most often, which is what users are shown.
+    """
+
+    def __init__(self, *, stop_words: frozenset[str], stem: bool) -> None:
+        self.stop_words = stop_words
+        self.stem = stem
+        self._tokenizer = RegexpTokenizer(TOKEN_PATTERN)
+        self._stemmer = SnowballStemmer("english") if stem else None
+        self._cache: dict[str, str | None] = {}
+        self._surface_counts: dict[str, Counter[str]] = {}
+
+    def normalize(self, word: str) -> str | None:
+        """The term for one lower-cased word, or None for a stop word."""
+        cached = self._cache.get(word, "")
+        if cached != "":
+            return cached
+        if word in self.stop_words or word.startswith(PLACEHOLDER_PREFIX) or len(word) < 2:
+            term = None
+        elif self._stemmer is not None:
+            term = self._stemmer.stem(word.replace("'", ""))
+        else:
+            term = word
+        self._cache[word] = term
+        return term
+
+    def terms(self, text: str) -> list[str]:
+        """Normalized terms of `text` in order."""
+        out: list[str] = []
+        surface = self._surface_counts
+        for word in self._tokenizer.tokenize(text.lower()):
+            term = self.normalize(word)
+            if term is not None:
+                out.append(term)
+                if self._stemmer is not None:
+                    surface.setdefault(term, Counter())[word] += 1
+        return out
+
+    def spans(self, text: str) -> list[tuple[int, int, str]]:
+        """(start, end, term) of every kept word of `text`, for marking and keyword-in-context lines."""
+        lowered = text.lower()
+        out = []
+        for start, end in self._tokenizer.span_tokenize(lowered):
+            term = self.normalize(lowered[start:end])
+            if term is not None:
+                out.append((start, end, term))
+        return out
+
+    def surface(self, term: str) -> str:
+        """The word to show for a term: for a stem, its most frequent surface form; bigrams word by word."""
+        if self._stemmer is None:
+            return term
+        return " ".join(self._surface_one(part) for part in term.split(" "))
+
+    def _surface_one(self, stem: str) -> str:
+        counts = self._surface_counts.get(stem)
+        if not counts:
+            return stem
+        # most frequent, ties broken alphabetically so that output is reproducible
+        return min(counts.items(), key=lambda item: (-item[1], item[0]))[0]
+
+
+def words_pattern(words: str) -> re.Pattern[str]:
+    """A case-insensitive whole-word pattern for a shown term (one or two words)."""
+    parts = [re.escape(w) for w in words.split()]
+    return re.compile(r"\b" + r"\W+".join(parts) + r"\b", re.IGNORECASE)
