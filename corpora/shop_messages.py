@@ -1097,9 +1097,7 @@ def _build_email(rng: Random, m: _Message, *, multipart: bool) -> bytes:
     msg["Message-ID"] = f"<{m.message_id}.{m.day:%Y%m%d}@example.org>"
     msg.set_content(text)
     if multipart:
-        paragraphs = [p for p in m.body.split("\n\n") if p.strip()]
-        html_body = "".join(f"<p>{html.escape(p, quote=False).replace(chr(10), '<br>')}</p>\n" for p in paragraphs)
-        msg.add_alternative(f"<html><body>\n{html_body}</body></html>\n", subtype="html")
+        msg.add_alternative(f"<html><body>\n{_paragraphs_html(m.body)}</body></html>\n", subtype="html")
         msg.set_boundary(f"==tendrilwick-{m.message_id}==")
     return msg.as_bytes()
 
@@ -1132,10 +1130,15 @@ _SCRIPT = (
 )
 
 
+def _paragraphs_html(text: str) -> str:
+    """`text` as HTML paragraphs: blank lines separate paragraphs, single newlines become <br>."""
+    paragraphs = [p for p in text.split("\n\n") if p.strip()]
+    return "".join(f"<p>{html.escape(p, quote=False).replace(chr(10), '<br>')}</p>\n" for p in paragraphs)
+
+
 def _build_html(m: _Message) -> str:
     subject = m.subject or "Contact form message"
-    paragraphs = [p for p in m.body.split("\n\n") if p.strip()]
-    body_html = "".join(f"<p>{html.escape(p, quote=False).replace(chr(10), '<br>')}</p>\n" for p in paragraphs)
+    body_html = _paragraphs_html(m.body)
     return (
         "<!DOCTYPE html>\n"
         '<html lang="en">\n'
@@ -1164,7 +1167,7 @@ def _main(argv: list[str] | None = None) -> int:
     )
     parser.add_argument("folder", type=Path, help="output folder (created if missing)")
     parser.add_argument("--seed", type=int, default=7, help="random seed (default: 7)")
-    parser.add_argument("-n", "--n-messages", type=int, default=1500, help="number of messages (default: 1500)")
+    parser.add_argument("-n", "--n-messages", type=int, default=1500, help="message count (default 1500)")
     args = parser.parse_args(argv)
     folder = write_demo_collection(args.folder, seed=args.seed, n_messages=args.n_messages)
     resolved = folder.resolve()

@@ -18,7 +18,8 @@ _ALLOWED_DOMAINS = {"example.org", "example.com", "example.net"}
 
 
 def _snapshot(folder: Path) -> dict[str, bytes]:
-    files = {p.relative_to(folder).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+    paths = sorted(p for p in folder.rglob("*") if p.is_file())
+    files = {p.relative_to(folder).as_posix(): p.read_bytes() for p in paths}
     key = folder.parent / f"{folder.name}-planted_themes.csv"
     files["<answer key>"] = key.read_bytes()
     return files

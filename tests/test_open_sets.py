@@ -151,6 +151,6 @@ def test_missing_files_in_existing_cache_name_the_fetch_command(
 def test_collection_is_frozen_and_checks_alignment() -> None:
     collection = LabeledCollection("x", ("a b",), ("l",), ("t",), "here", "none")
     with pytest.raises(dataclasses.FrozenInstanceError):
-        collection.name = "y"  # type: ignore[misc]
+        collection.__setattr__("name", "y")
     with pytest.raises(ValueError, match="texts"):
         LabeledCollection("x", ("a", "b"), ("l",), ("t",), "here", "none")

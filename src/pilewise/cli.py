@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
-import sys
+import functools
+from collections.abc import Callable
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, TypeVar
 
 import typer
 
@@ -24,6 +25,26 @@ SeedOption = Annotated[int, typer.Option("--seed", help="Seed for every random s
 QuietOption = Annotated[bool, typer.Option("--quiet", help="Print only the result and errors.")]
 
 
+F = TypeVar("F", bound=Callable[..., None])
+
+
+def user_errors(command: F) -> F:
+    """Turn a PilewiseError into one line on standard error and exit status 1, never a traceback."""
+
+    @functools.wraps(command)
+    def wrapper(*args: object, **kwargs: object) -> None:
+        try:
+            command(*args, **kwargs)
+        except PilewiseError as err:
+            typer.echo(f"pilewise: error: {err}", err=True)
+            raise typer.Exit(1) from None
+        except KeyboardInterrupt:
+            typer.echo("pilewise: interrupted; the previous site is unchanged", err=True)
+            raise typer.Exit(130) from None
+
+    return wrapper  # type: ignore[return-value]
+
+
 def _print_outcome(outcome: RunOutcome) -> None:
     typer.echo(
         f"{outcome.documents:,} documents in {outcome.clusters} clusters; "
@@ -34,6 +55,7 @@ def _print_outcome(outcome: RunOutcome) -> None:
 
 
 @app.command()
+@user_errors
 def run(
     source: Annotated[Path, typer.Argument(help="A folder (read recursively) or one table file.")],
     k: Annotated[int, typer.Option("--k", help="Number of clusters (2 <= k < distinct documents).")],
@@ -75,6 +97,7 @@ def run(
 
 
 @app.command()
+@user_errors
 def demo(
     out: OutOption = Path("pilewise-site"),
     k: Annotated[int, typer.Option("--k", help="Number of clusters.")] = 9,
@@ -91,24 +114,5 @@ def demo(
 
 
 def main() -> None:
-    """Entry point: user errors become one line and exit status 1, never a traceback."""
-    try:
-        app(standalone_mode=False)
-    except PilewiseError as err:
-        typer.echo(f"pilewise: error: {err}", err=True)
-        sys.exit(1)
-    except KeyboardInterrupt:
-        typer.echo("pilewise: interrupted; the previous site is unchanged", err=True)
-        sys.exit(130)
-    except typer.Exit as exit_:
-        sys.exit(exit_.exit_code)
-    except Exception as err:  # click usage errors
-        import click
-
-        if isinstance(err, click.ClickException):
-            err.show()
-            sys.exit(err.exit_code)
-        if isinstance(err, click.exceptions.Abort):
-            typer.echo("pilewise: interrupted; the previous site is unchanged", err=True)
-            sys.exit(130)
-        raise
+    """Entry point of the console script."""
+    app()

@@ -43,12 +43,15 @@ def kmeans_clusters(
     remap[order] = np.arange(k)
     labels = remap[raw_labels]
     centroids = normalize(np.asarray(model.cluster_centers_)[order])
-    similarity = np.asarray(_row_dot(space, centroids[labels]))
+    similarity = cosine_rowwise(space, centroids[labels])
     distances = np.clip(1.0 - similarity, 0.0, 2.0)
     return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=float(model.inertia_))
 
 
-def _row_dot(space: np.ndarray | sp.csr_matrix, other: np.ndarray) -> np.ndarray:
+def cosine_rowwise(space: np.ndarray | sp.csr_matrix, other: np.ndarray) -> np.ndarray:
+    """Cosine similarity of each row of `space` with the same row of `other`."""
+    space = normalize(space)
+    other = normalize(other)
     if sp.issparse(space):
         return np.asarray(space.multiply(other).sum(axis=1)).ravel()
     return np.einsum("ij,ij->i", np.asarray(space), other)

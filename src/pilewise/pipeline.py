@@ -27,7 +27,7 @@ from pilewise.reading import ReadLimits, read_source
 from pilewise.site import render_root_index, render_run_site
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import VectorSettings, Vectorized, vectorize
+from pilewise.vectors import Vectorized, VectorSettings, vectorize
 
 
 @dataclass(frozen=True)

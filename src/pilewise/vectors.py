@@ -60,6 +60,11 @@ def default_min_df(n_texts: int) -> int:
     return max(2, math.ceil(n_texts / 20_000))
 
 
+def tfidf_weights(counts: sp.spmatrix, *, sublinear: bool = True) -> sp.csr_matrix:
+    """L2-normalized TF-IDF rows: tf = 1 + ln(count) when sublinear, idf = ln((1 + n) / (1 + df)) + 1."""
+    return sp.csr_matrix(TfidfTransformer(sublinear_tf=sublinear).fit_transform(counts))
+
+
 def with_phrases(terms: list[str]) -> list[str]:
     """Terms followed by the two-word phrases of adjacent kept terms."""
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]
@@ -92,8 +97,7 @@ def vectorize(
     space_columns = np.arange(len(terms)) if settings.bigrams_in_space else np.flatnonzero(~is_phrase)
     if space_columns.size == 0:
         raise PilewiseError("no single words are left to cluster on; lower --min-df or raise --max-df")
-    tfidf = TfidfTransformer(sublinear_tf=True).fit_transform(counts[:, space_columns])
-    tfidf = sp.csr_matrix(tfidf)
+    tfidf = tfidf_weights(counts[:, space_columns])
     empty_rows = int(np.sum(tfidf.getnnz(axis=1) == 0))
     facts: dict[str, float | int | str | bool] = {
         "min_df": min_df,
