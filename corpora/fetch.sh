@@ -47,7 +47,12 @@ mkdir -p "$CACHE"
 CACHE="$(cd -- "$CACHE" && pwd)"
 WORK="$(mktemp -d "${TMPDIR:-/tmp}/pilewise-fetch.XXXXXX")"
 STAGE=""
+CURRENT=""
 cleanup() {
+    local rc=$?
+    if [[ $rc -ne 0 && -n "$CURRENT" ]]; then
+        echo "$CURRENT: FAILED (exit $rc); nothing kept for it, rerun to retry" >&2
+    fi
     rm -rf "$WORK"
     if [[ -n "$STAGE" ]]; then rm -rf "$STAGE"; fi
 }
@@ -122,6 +127,7 @@ begin() {
         echo "$name: present ($CACHE/$name)"
         return 1
     fi
+    CURRENT="$name"
     STAGE="$CACHE/.partial-$name.$$"
     rm -rf "$STAGE"
     mkdir -p "$STAGE"
@@ -136,6 +142,7 @@ finish() {
     rm -rf "${CACHE:?}/$name"
     mv "$STAGE" "$CACHE/$name"
     STAGE=""
+    CURRENT=""
     echo "$name: fetched (downloaded $(human "$downloaded"), kept $(human "$(bytes_of "$CACHE/$name")"), $(elapsed "$T0") s)"
 }
 

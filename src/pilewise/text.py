@@ -57,13 +57,21 @@ class Analyzer:
         cached = self._cache.get(word, "")
         if cached != "":
             return cached
-        if word in self.stop_words or word.startswith(PLACEHOLDER_PREFIX) or len(word) < 2:
+        original = word
+        if word.endswith("'s"):
+            word = word[:-2]  # possessive: "courier's" counts as "courier"
+        if (
+            word in self.stop_words
+            or word.startswith(PLACEHOLDER_PREFIX)
+            or len(word) < 2
+            or ("'" in word and (word.endswith("n't") or word.split("'", 1)[0] in self.stop_words))
+        ):  # negated auxiliaries and contractions of stop words: doesn't, we'd, it's
             term = None
         elif self._stemmer is not None:
             term = self._stemmer.stem(word.replace("'", ""))
         else:
             term = word
-        self._cache[word] = term
+        self._cache[original] = term
         return term
 
     def terms(self, text: str) -> list[str]:
