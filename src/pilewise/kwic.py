@@ -35,8 +35,13 @@ def kwic_window(text: str, start: int, end: int, width: int = CONTEXT_CHARS) -> 
     Whitespace runs become one space; the left context is right-aligned so that every match
     starts in the same column.
     """
-    left = _flat(text[max(0, start - 4 * width) : start])[-width:].rjust(width)
-    right = _flat(text[end : end + 4 * width])[:width].ljust(width)
+    left = _flat(text[max(0, start - 4 * width) : start])
+    if len(left) < width and start > 4 * width:  # long whitespace runs: look further back
+        left = _flat(text[:start])
+    right = _flat(text[end : end + 4 * width])
+    if len(right) < width and len(text) > end + 4 * width:
+        right = _flat(text[end:])
+    left, right = left[-width:].rjust(width), right[:width].ljust(width)
     return left, _flat(text[start:end]), right
 
 

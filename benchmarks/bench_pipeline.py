@@ -1,0 +1,479 @@
+"""Benchmark: pilewise end to end against the bare scikit-learn pipeline it is built on.
+
+What it measures
+----------------
+A synthetic collection is generated inside this script (seeded numpy): N documents of 30-200
+made-up pronounceable words, ~60% drawn from one of 20 planted topics (150 topic words each) and
+~40% from a Zipf-like background vocabulary of 30,000 words. It is written as a CSV
+(``doc_id,text``); the planted topic of every document is kept in a separate file.
+
+Three pipelines then run over that CSV, each in its own fresh subprocess, so that every figure
+is that pipeline's alone:
+
+a. ``bare``     pandas.read_csv, TfidfVectorizer(stop_words="english", sublinear_tf=True,
+                min_df=<pilewise's default for N>, max_df=0.5), KMeans(20, n_init=4) fit_predict,
+                labels written to CSV;
+b. ``bare+lsa`` the same with TruncatedSVD(100) and Normalizer before KMeans (the fairer
+                reference: pilewise clusters in an LSA space too);
+c. ``pilewise`` ``pilewise run <csv> --k 20 --out <dir> --quiet``, exports and site included;
+                its own stage timings are read from ``<dir>/runs/k20/manifest.json``.
+
+For each: wall time (process start to exit, interpreter start and imports included), peak
+resident memory of the process (``ru_maxrss`` of that one child, from ``os.wait4``), and the
+normalized mutual information of its clusters with the planted topics. The script prints the
+machine, a Markdown table, the ratios pilewise / bare, and writes every figure to
+``benchmarks/.out/bench-<N>.json``.
+
+How to run
+----------
+    python benchmarks/bench_pipeline.py --docs 10000           # quick check, well under a minute
+    python benchmarks/bench_pipeline.py                        # 100,000 documents, several minutes
+    python benchmarks/bench_pipeline.py --docs 20000 --profile # also profile pilewise with cProfile
+
+Options: ``--workdir DIR`` keeps the generated CSV and the outputs there (default: a temporary
+folder, removed at the end); ``--repeat R`` runs every pipeline R times and reports the median
+time and the largest peak memory; ``--seed S`` changes the synthetic collection.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import os
+import platform
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import asdict, dataclass, field
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+K = 20
+N_INIT = 4
+LSA_COMPONENTS = 100
+MAX_DF = 0.5
+BACKGROUND_WORDS = 30_000
+TOPICS = 20
+TOPIC_WORDS = 150
+TOPIC_SHARE = 0.6
+MIN_WORDS, MAX_WORDS = 30, 200
+TARGET_RATIO = 1.5
+OUT_FOLDER = Path(__file__).resolve().parent / ".out"
+LIBRARIES = ("numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "pyarrow", "pilewise")
+
+ONSETS = ("b", "d", "f", "g", "k", "l", "m", "n", "p", "r", "s", "t", "v", "z", "ch", "sh", "th", "br", "dr",
+          "gl", "kr", "pl", "st", "tr", "")
+VOWELS = ("a", "e", "i", "o", "u", "ai", "ou", "ea")
+CODAS = ("", "", "", "n", "r", "l", "s", "m", "k", "t")
+
+
+# --------------------------------------------------------------------------------------------
+# Synthetic collection
+# --------------------------------------------------------------------------------------------
+
+
+def make_words(count: int, rng: np.random.Generator, banned: frozenset[str]) -> list[str]:
+    """`count` distinct made-up words of 2-4 syllables, none of them in `banned`."""
+    words: list[str] = []
+    seen: set[str] = set(banned)
+    while len(words) < count:
+        batch = count - len(words) + 1000
+        syllables = rng.integers(2, 5, size=batch)
+        for n_syl in syllables:
+            parts = []
+            for _ in range(int(n_syl)):
+                parts.append(ONSETS[rng.integers(len(ONSETS))])
+                parts.append(VOWELS[rng.integers(len(VOWELS))])
+                parts.append(CODAS[rng.integers(len(CODAS))])
+            word = "".join(parts)
+            if len(word) >= 3 and word not in seen:
+                seen.add(word)
+                words.append(word)
+                if len(words) == count:
+                    break
+    return words
+
+
+def zipf_weights(n: int, exponent: float, shift: float) -> np.ndarray:
+    """Zipf-Mandelbrot probabilities p(r) ~ 1 / (r + shift) ** exponent for ranks 1..n."""
+    weights = 1.0 / (np.arange(1, n + 1) + shift) ** exponent
+    return weights / weights.sum()
+
+
+@dataclass(frozen=True)
+class Collection:
+    csv_path: Path
+    topics_path: Path
+    documents: int
+    words: int
+    bytes: int
+    seconds: float
+
+
+def generate_collection(n_docs: int, folder: Path, seed: int) -> Collection:
+    """Write `folder`/synthetic-N.csv (doc_id,text) and `folder`/synthetic-N-topics.csv (doc_id,topic)."""
+    from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
+
+    start = time.perf_counter()
+    rng = np.random.default_rng(seed)
+    vocabulary = make_words(BACKGROUND_WORDS + TOPICS * TOPIC_WORDS, rng, frozenset(ENGLISH_STOP_WORDS))
+    background = np.array(vocabulary[:BACKGROUND_WORDS], dtype=object)
+    topic_vocab = np.array(vocabulary[BACKGROUND_WORDS:], dtype=object).reshape(TOPICS, TOPIC_WORDS)
+    background_p = zipf_weights(BACKGROUND_WORDS, 1.05, 2.7)
+    topic_p = zipf_weights(TOPIC_WORDS, 0.8, 1.0)
+
+    topics = rng.integers(0, TOPICS, size=n_docs)
+    lengths = rng.integers(MIN_WORDS, MAX_WORDS + 1, size=n_docs)
+    total = int(lengths.sum())
+    from_topic = rng.random(total) < TOPIC_SHARE
+    background_draws = background[rng.choice(BACKGROUND_WORDS, size=total, p=background_p)]
+    topic_ranks = rng.choice(TOPIC_WORDS, size=total, p=topic_p)
+    doc_of_word = np.repeat(np.arange(n_docs), lengths)
+    topic_draws = topic_vocab[topics[doc_of_word], topic_ranks]
+    tokens = np.where(from_topic, topic_draws, background_draws).tolist()
+    # sentences of 6-18 words: a capital letter at the start and a full stop at the end
+    sentence_lengths = rng.integers(6, 19, size=total // 6 + n_docs)
+
+    csv_path = folder / f"synthetic-{n_docs}.csv"
+    topics_path = folder / f"synthetic-{n_docs}-topics.csv"
+    bounds = np.concatenate([[0], np.cumsum(lengths)])
+    next_sentence = 0
+    with csv_path.open("w", encoding="utf-8", newline="") as text_out, topics_path.open(
+        "w", encoding="utf-8", newline=""
+    ) as topic_out:
+        text_writer = csv.writer(text_out, lineterminator="\n")
+        topic_writer = csv.writer(topic_out, lineterminator="\n")
+        text_writer.writerow(["doc_id", "text"])
+        topic_writer.writerow(["doc_id", "topic"])
+        for d in range(n_docs):
+            words = tokens[bounds[d] : bounds[d + 1]]
+            sentences = []
+            i = 0
+            while i < len(words):
+                size = int(sentence_lengths[next_sentence])
+                next_sentence += 1
+                chunk = words[i : i + size]
+                sentences.append(chunk[0].capitalize() + " " + " ".join(chunk[1:]) + ".")
+                i += size
+            doc_id = f"d{d:07d}"
+            text_writer.writerow([doc_id, " ".join(sentences)])
+            topic_writer.writerow([doc_id, int(topics[d])])
+    return Collection(csv_path, topics_path, n_docs, total, csv_path.stat().st_size, time.perf_counter() - start)
+
+
+# --------------------------------------------------------------------------------------------
+# The bare pipelines, run as children of this script
+# --------------------------------------------------------------------------------------------
+
+
+def bare_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int, lsa: bool) -> None:
+    """The library pipeline, timed step by step; writes doc_id,cluster to `labels_out`."""
+    timings: dict[str, float] = {}
+    mark = time.perf_counter()
+
+    def lap(name: str) -> None:
+        nonlocal mark
+        now = time.perf_counter()
+        timings[name] = round(now - mark, 3)
+        mark = now
+
+    import pandas as pd
+    from sklearn.cluster import KMeans
+    from sklearn.decomposition import TruncatedSVD
+    from sklearn.feature_extraction.text import TfidfVectorizer
+    from sklearn.preprocessing import Normalizer
+
+    lap("imports")
+    frame = pd.read_csv(csv_path, dtype=str, keep_default_na=False)
+    lap("reading")
+    vectorizer = TfidfVectorizer(stop_words="english", sublinear_tf=True, min_df=min_df, max_df=MAX_DF)
+    space: Any = vectorizer.fit_transform(frame["text"])
+    terms = len(vectorizer.vocabulary_)
+    lap("vectorizing")
+    if lsa:
+        space = TruncatedSVD(n_components=LSA_COMPONENTS, random_state=0).fit_transform(space)
+        space = Normalizer(copy=False).fit_transform(space)
+        lap("lsa")
+    labels = KMeans(n_clusters=K, n_init=N_INIT, random_state=0).fit_predict(space)
+    lap("clustering")
+    pd.DataFrame({"doc_id": frame["doc_id"], "cluster": labels}).to_csv(labels_out, index=False)
+    lap("writing")
+    timings_out.write_text(json.dumps({"timings_seconds": timings, "terms": terms}), encoding="utf-8")
+
+
+# --------------------------------------------------------------------------------------------
+# Running and measuring children
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass
+class Measurement:
+    """One pipeline's figures (median wall time over the repeats, largest peak RSS)."""
+
+    pipeline: str
+    command: list[str]
+    wall_seconds: float
+    peak_rss_mb: float
+    nmi: float
+    wall_seconds_all: list[float] = field(default_factory=list)
+    peak_rss_mb_all: list[float] = field(default_factory=list)
+    stage_seconds: dict[str, float] = field(default_factory=dict)
+    extra: dict[str, Any] = field(default_factory=dict)
+
+
+def run_measured(command: list[str], log: Path) -> tuple[float, float]:
+    """Run `command` to completion; (wall seconds, peak RSS in MB) of that one child process.
+
+    ``os.wait4`` returns the resource usage of exactly this child. (``getrusage(RUSAGE_CHILDREN)``
+    would report the largest peak among *all* children waited for so far, which is wrong for every
+    pipeline measured after a bigger one.)
+    """
+    with log.open("wb") as handle:
+        start = time.perf_counter()
+        process = subprocess.Popen(command, stdout=handle, stderr=subprocess.STDOUT)
+        _, status, usage = os.wait4(process.pid, 0)
+        wall = time.perf_counter() - start
+    process.returncode = os.waitstatus_to_exitcode(status)
+    if process.returncode != 0:
+        tail = log.read_text(encoding="utf-8", errors="replace")[-3000:]
+        raise SystemExit(f"command failed with status {process.returncode}: {' '.join(command)}\n{tail}")
+    scale = 1024 * 1024 if sys.platform == "darwin" else 1024  # bytes on macOS, KiB on Linux
+    return wall, usage.ru_maxrss / scale
+
+
+def read_labels(path: Path, column: str) -> dict[str, int]:
+    with path.open(encoding="utf-8", newline="") as handle:
+        return {row["doc_id"]: int(row[column]) for row in csv.DictReader(handle)}
+
+
+def nmi_against(planted: dict[str, int], found: dict[str, int]) -> float:
+    from sklearn.metrics import normalized_mutual_info_score
+
+    missing = set(planted) - set(found)
+    if missing:
+        raise SystemExit(f"{len(missing)} documents have no cluster label (e.g. {sorted(missing)[:3]})")
+    ids = sorted(planted)
+    return float(normalized_mutual_info_score([planted[i] for i in ids], [found[i] for i in ids]))
+
+
+def pilewise_command() -> list[str]:
+    script = shutil.which("pilewise")
+    return [script] if script else [sys.executable, "-m", "pilewise"]
+
+
+def measure(
+    name: str, command: list[str], work: Path, repeat: int, labels_of: Any, stages_of: Any, prepare: Any = None
+) -> Measurement:
+    walls: list[float] = []
+    peaks: list[float] = []
+    for r in range(repeat):
+        if prepare:
+            prepare()
+        print(f"  {name}: run {r + 1}/{repeat} ...", end="", flush=True)
+        wall, peak = run_measured(command, work / f"{name}-{r + 1}.log")
+        print(f" {wall:.1f} s, {peak:,.0f} MB", flush=True)
+        walls.append(wall)
+        peaks.append(peak)
+    found = labels_of()
+    stages, extra = stages_of()
+    return Measurement(name, command, statistics.median(walls), max(peaks), found, walls, peaks, stages, extra)
+
+
+# --------------------------------------------------------------------------------------------
+# Machine and report
+# --------------------------------------------------------------------------------------------
+
+
+def machine() -> dict[str, Any]:
+    cpu = platform.processor() or platform.machine()
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    ram_gb: float | None = None
+    try:
+        for line in Path("/proc/meminfo").read_text().splitlines():
+            if line.startswith("MemTotal:"):
+                ram_gb = round(int(line.split()[1]) / 1024 / 1024, 1)
+                break
+    except OSError:
+        pass
+    usable = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    versions = {"python": platform.python_version()}
+    for name in LIBRARIES:
+        try:
+            versions[name] = version(name)
+        except PackageNotFoundError:
+            versions[name] = "not installed"
+    return {
+        "cpu": cpu,
+        "logical_cores": os.cpu_count(),
+        "usable_cores": usable,
+        "ram_gb": ram_gb,
+        "os": platform.platform(),
+        "versions": versions,
+    }
+
+
+def ratio(a: float, b: float) -> float:
+    return round(a / b, 2) if b else float("nan")
+
+
+def report(n_docs: int, collection: Collection, min_df: int, results: list[Measurement], info: dict[str, Any]) -> dict:
+    by_name = {m.pipeline: m for m in results}
+    pile = by_name["pilewise"]
+    ratios = {
+        ref: {"time": ratio(pile.wall_seconds, by_name[ref].wall_seconds),
+              "memory": ratio(pile.peak_rss_mb, by_name[ref].peak_rss_mb)}
+        for ref in ("bare", "bare+lsa")
+    }
+    lines = [
+        f"Machine: {info['cpu']}, {info['usable_cores']} usable cores ({info['logical_cores']} logical), "
+        f"{info['ram_gb']} GB RAM, {info['os']}",
+        "Versions: " + ", ".join(f"{k} {v}" for k, v in info["versions"].items()),
+        f"Collection: {n_docs:,} documents, {collection.words:,} words, {collection.bytes / 1e6:.1f} MB CSV, "
+        f"{TOPICS} planted topics; min_df={min_df}, max_df={MAX_DF}, k={K}, n_init={N_INIT}",
+        "",
+        "| pipeline | wall time (s) | peak RSS (MB) | NMI vs planted |",
+        "|---|---:|---:|---:|",
+    ]
+    for m in results:
+        lines.append(f"| {m.pipeline} | {m.wall_seconds:.1f} | {m.peak_rss_mb:,.0f} | {m.nmi:.3f} |")
+    lines += ["", "| pilewise / ... | time | memory |", "|---|---:|---:|"]
+    for ref, r in ratios.items():
+        lines.append(f"| {ref} | {r['time']:.2f}x | {r['memory']:.2f}x |")
+    lines += ["", "Stage timings (s):"]
+    for m in results:
+        lines.append(f"- {m.pipeline}: " + ", ".join(f"{k} {v:.2f}" for k, v in m.stage_seconds.items()))
+    met = all(r["time"] <= TARGET_RATIO and r["memory"] <= TARGET_RATIO for r in ratios.values())
+    lines.append("")
+    lines.append(f"Target (pilewise within {TARGET_RATIO}x of the bare pipelines' time and memory): "
+                 + ("met" if met else "NOT met"))
+    print("\n".join(lines))
+    return {
+        "documents": n_docs,
+        "collection": {**asdict(collection), "csv_path": str(collection.csv_path),
+                       "topics_path": str(collection.topics_path)},
+        "settings": {"k": K, "n_init": N_INIT, "min_df": min_df, "max_df": MAX_DF, "lsa_components": LSA_COMPONENTS,
+                     "background_words": BACKGROUND_WORDS, "topics": TOPICS, "topic_words": TOPIC_WORDS,
+                     "topic_share": TOPIC_SHARE},
+        "machine": info,
+        "results": [asdict(m) for m in results],
+        "ratios_pilewise_over": ratios,
+        "target_ratio": TARGET_RATIO,
+        "target_met": met,
+    }
+
+
+def profile_pilewise(csv_path: Path, work: Path, n_docs: int) -> None:
+    """Run pilewise once more under cProfile (not timed) and print the top functions."""
+    import pstats
+
+    out = work / "pilewise-profiled"
+    shutil.rmtree(out, ignore_errors=True)
+    OUT_FOLDER.mkdir(exist_ok=True)
+    prof = OUT_FOLDER / f"pilewise-{n_docs}.prof"
+    command = [sys.executable, "-m", "cProfile", "-o", str(prof), "-m", "pilewise",
+               "run", str(csv_path), "--k", str(K), "--out", str(out), "--quiet"]
+    wall, _ = run_measured(command, work / "pilewise-profiled.log")
+    print(f"\ncProfile of pilewise ({wall:.1f} s under the profiler), written to {prof}")
+    stats = pstats.Stats(str(prof))
+    stats.sort_stats("cumulative").print_stats(40)
+    stats.sort_stats("tottime").print_stats(25)
+
+
+# --------------------------------------------------------------------------------------------
+# Main
+# --------------------------------------------------------------------------------------------
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0] if __doc__ else None)
+    parser.add_argument("--docs", type=int, default=100_000, help="number of synthetic documents (default 100000)")
+    parser.add_argument("--workdir", type=Path, default=None, help="folder for the CSV and outputs (kept)")
+    parser.add_argument("--repeat", type=int, default=1, help="runs per pipeline (median time, largest memory)")
+    parser.add_argument("--seed", type=int, default=0, help="seed of the synthetic collection")
+    parser.add_argument("--profile", action="store_true", help="also run pilewise once under cProfile")
+    parser.add_argument("--child", choices=("bare", "bare+lsa"), help=argparse.SUPPRESS)
+    parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--labels-out", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--timings-out", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--min-df", type=int, help=argparse.SUPPRESS)
+    args = parser.parse_args(argv)
+
+    if args.child:
+        bare_child(args.csv, args.labels_out, args.timings_out, args.min_df, lsa=args.child == "bare+lsa")
+        return
+
+    from pilewise.vectors import default_min_df
+
+    info = machine()
+    temporary = args.workdir is None
+    work = Path(tempfile.mkdtemp(prefix="pilewise-bench-")) if temporary else args.workdir.resolve()
+    work.mkdir(parents=True, exist_ok=True)
+    try:
+        print(f"generating {args.docs:,} documents in {work} ...", flush=True)
+        collection = generate_collection(args.docs, work, args.seed)
+        print(f"  {collection.words:,} words, {collection.bytes / 1e6:.1f} MB, {collection.seconds:.1f} s", flush=True)
+        # pilewise derives min_df from the number of distinct texts; every synthetic text is distinct
+        min_df = default_min_df(args.docs)
+        planted = read_labels(collection.topics_path, "topic")
+        results: list[Measurement] = []
+        for name in ("bare", "bare+lsa"):
+            labels_path = work / f"{name}-labels.csv"
+            timings_path = work / f"{name}-timings.json"
+            command = [sys.executable, str(Path(__file__).resolve()), "--child", name,
+                       "--csv", str(collection.csv_path), "--labels-out", str(labels_path),
+                       "--timings-out", str(timings_path), "--min-df", str(min_df)]
+
+            def stages(timings_path: Path = timings_path) -> tuple[dict[str, float], dict[str, Any]]:
+                data = json.loads(timings_path.read_text(encoding="utf-8"))
+                return data["timings_seconds"], {"terms": data["terms"]}
+
+            results.append(measure(
+                name, command, work, args.repeat,
+                labels_of=lambda p=labels_path: nmi_against(planted, read_labels(p, "cluster")),
+                stages_of=stages,
+            ))
+        out = work / "pilewise-site"
+        run = out / "runs" / f"k{K}"
+        command = [*pilewise_command(), "run", str(collection.csv_path), "--k", str(K), "--out", str(out), "--quiet"]
+
+        def pilewise_stages() -> tuple[dict[str, float], dict[str, Any]]:
+            manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+            files = [p for p in run.rglob("*") if p.is_file()]
+            extra = {"vectors": manifest.get("vectors", {}), "site_files": len(files),
+                     "site_mb": round(sum(p.stat().st_size for p in files) / 1e6, 1)}
+            return manifest["timings_seconds"], extra
+
+        results.append(measure(
+            "pilewise", command, work, args.repeat,
+            labels_of=lambda: nmi_against(planted, read_labels(run / "assignments.csv", "cluster")),
+            stages_of=pilewise_stages,
+            prepare=lambda: shutil.rmtree(out, ignore_errors=True),
+        ))
+        print()
+        figures = report(args.docs, collection, min_df, results, info)
+        OUT_FOLDER.mkdir(exist_ok=True)
+        json_path = OUT_FOLDER / f"bench-{args.docs}.json"
+        json_path.write_text(json.dumps(figures, indent=2) + "\n", encoding="utf-8")
+        print(f"\nfigures written to {json_path}")
+        if args.profile:
+            profile_pilewise(collection.csv_path, work, args.docs)
+    finally:
+        if temporary:
+            shutil.rmtree(work, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
