@@ -7,9 +7,9 @@ from pathlib import Path
 import pytest
 
 TOPICS = {
-    "garden": "soil compost seedling watering spade mulch greenhouse pruning".split(),
-    "bicycle": "chain saddle pedal spoke brake gear puncture handlebar".split(),
-    "kitchen": "oven flour dough whisk simmer saucepan recipe butter".split(),
+    "garden": ["soil", "compost", "seedling", "watering", "spade", "mulch", "greenhouse", "pruning"],
+    "bicycle": ["chain", "saddle", "pedal", "spoke", "brake", "gear", "puncture", "handlebar"],
+    "kitchen": ["oven", "flour", "dough", "whisk", "simmer", "saucepan", "recipe", "butter"],
 }
 
 

@@ -1,0 +1,102 @@
+"""Cluster descriptions recomputed independently from the texts."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from pilewise.options import RunOptions
+from pilewise.pipeline import compute_run
+from pilewise.progress import Reporter
+from pilewise.stats import chi_square_2x2
+from pilewise.vectors import with_phrases
+
+
+@pytest.fixture(scope="module")
+def result(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
+    from conftest import write_topic_folder
+
+    folder = tmp_path_factory.mktemp("describe") / "notes"
+    write_topic_folder(folder, per_topic=15)
+    # three exact copies of one garden note: clustered once, counted three times
+    text = (folder / "garden-00.txt").read_text(encoding="utf-8")
+    for i in range(2):
+        (folder / f"copy-{i}.txt").write_text(text, encoding="utf-8")
+    return compute_run(RunOptions(source=folder, k=3, quiet=True), Reporter(quiet=True))
+
+
+def test_exact_copies_are_clustered_once_and_counted(result) -> None:  # type: ignore[no-untyped-def]
+    assert len(result.collection.documents) == 47
+    assert result.collection.copies.size == 45
+    assert sum(c.size for c in result.clusters) == 47
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    ids = [d.doc_id for d in result.collection.documents]
+    assert labels[ids.index("copy-0.txt")] == labels[ids.index("garden-00.txt")] == labels[ids.index("copy-1.txt")]
+
+
+def test_headline_is_the_member_nearest_the_centroid_by_cosine(result) -> None:  # type: ignore[no-untyped-def]
+    space = np.asarray(result.vectors.space)
+    for cluster in result.clusters:
+        members = np.flatnonzero(result.clustering.labels == cluster.cluster_id)
+        weights = result.collection.copies[members]
+        centroid = (space[members] * weights[:, None]).sum(axis=0)
+        cosine = space[members] @ centroid / (np.linalg.norm(space[members], axis=1) * np.linalg.norm(centroid))
+        nearest_text = members[int(np.argmax(cosine))]
+        expected_doc = result.collection.documents[result.collection.first_doc_of_text[nearest_text]]
+        assert cluster.headline == expected_doc.title
+        assert [n.distance for n in cluster.nearest] == sorted(n.distance for n in cluster.nearest)
+        assert len(cluster.nearest) == 5
+
+
+def test_chi_square_terms_recomputed_from_document_counts(result) -> None:  # type: ignore[no-untyped-def]
+    docs = result.collection.documents
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    analyzer = result.analyzer
+    term_sets = [set(with_phrases(analyzer.terms(d.text))) for d in docs]
+    for cluster in result.clusters:
+        inside = labels == cluster.cluster_id
+        assert cluster.chi2_terms, "a cluster of a separated topic has discriminating terms"
+        for term in cluster.chi2_terms:
+            has = np.array([term.key in s for s in term_sets])
+            n11, n10 = int((has & inside).sum()), int((has & ~inside).sum())
+            n01, n00 = int((~has & inside).sum()), int((~has & ~inside).sum())
+            assert (term.docs_in, term.docs_out) == (n11, n10)
+            assert term.score == pytest.approx(chi_square_2x2(n11, n10, n01, n00))
+            assert n11 / inside.sum() > n10 / (~inside).sum()  # only over-represented terms
+        scores = [t.score for t in cluster.chi2_terms]
+        assert scores == sorted(scores, reverse=True)
+
+
+def test_log_odds_terms_are_over_represented_and_ranked_by_z(result) -> None:  # type: ignore[no-untyped-def]
+    for cluster in result.clusters:
+        zs = [t.z for t in cluster.log_odds_terms]
+        assert zs == sorted(zs, reverse=True)
+        assert all(t.score > 0 for t in cluster.log_odds_terms)
+
+
+def test_kwic_lines_come_from_distinct_members(result) -> None:  # type: ignore[no-untyped-def]
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    for cluster in result.clusters:
+        assert cluster.kwic
+        by_term: dict[str, list[int]] = {}
+        for line in cluster.kwic:
+            by_term.setdefault(line.term, []).append(line.doc_index)
+            assert labels[line.doc_index] == cluster.cluster_id
+            assert " ".join(result.analyzer.terms(line.match)) == line.term  # no stemming: term shown as is
+        for doc_indexes in by_term.values():
+            assert len(doc_indexes) == len(set(doc_indexes)) <= 5
+
+
+def test_clusters_are_numbered_largest_first(result) -> None:  # type: ignore[no-untyped-def]
+    sizes = [c.size for c in result.clusters]
+    assert sizes == sorted(sizes, reverse=True)
+    assert sum(c.share for c in result.clusters) == pytest.approx(1.0)
+
+
+def test_same_folder_path_is_accepted(tmp_path: Path) -> None:
+    # Regression: a relative --out must resolve before the inside-source check.
+    from pilewise.options import validate
+
+    validate(RunOptions(source=tmp_path, k=2, out=Path("pilewise-site")))
