@@ -18,9 +18,11 @@ b. ``bare+lsa`` the same with TruncatedSVD(100) and Normalizer before KMeans (th
 c. ``pilewise`` ``pilewise run <csv> --k 20 --out <dir> --quiet``, exports and site included;
                 its own stage timings are read from ``<dir>/runs/k20/manifest.json``.
 
-For each: wall time (process start to exit, interpreter start and imports included), peak
-resident memory of the process (``ru_maxrss`` of that one child, from ``os.wait4``), and the
-normalized mutual information of its clusters with the planted topics. The script prints the
+For each: wall time (process start to exit, interpreter start and imports included), CPU time
+(user + system; less sensitive than wall time to other work on the machine, whose 1-minute load
+average is recorded before every run), peak resident memory of the process (``ru_maxrss`` of that
+one child, from ``os.wait4``), and the normalized mutual information of its clusters with the
+planted topics. The script prints the
 machine, a Markdown table, the ratios pilewise / bare, and writes every figure to
 ``benchmarks/.out/bench-<N>.json``.
 
@@ -226,15 +228,18 @@ class Measurement:
     command: list[str]
     wall_seconds: float
     peak_rss_mb: float
+    cpu_seconds: float
     nmi: float
     wall_seconds_all: list[float] = field(default_factory=list)
     peak_rss_mb_all: list[float] = field(default_factory=list)
+    cpu_seconds_all: list[float] = field(default_factory=list)
+    load_average_before: list[float] = field(default_factory=list)
     stage_seconds: dict[str, float] = field(default_factory=dict)
     extra: dict[str, Any] = field(default_factory=dict)
 
 
-def run_measured(command: list[str], log: Path) -> tuple[float, float]:
-    """Run `command` to completion; (wall seconds, peak RSS in MB) of that one child process.
+def run_measured(command: list[str], log: Path) -> tuple[float, float, float]:
+    """Run `command` to completion; (wall seconds, peak RSS in MB, CPU seconds) of that one child process.
 
     ``os.wait4`` returns the resource usage of exactly this child. (``getrusage(RUSAGE_CHILDREN)``
     would report the largest peak among *all* children waited for so far, which is wrong for every
@@ -250,7 +255,7 @@ def run_measured(command: list[str], log: Path) -> tuple[float, float]:
         tail = log.read_text(encoding="utf-8", errors="replace")[-3000:]
         raise SystemExit(f"command failed with status {process.returncode}: {' '.join(command)}\n{tail}")
     scale = 1024 * 1024 if sys.platform == "darwin" else 1024  # bytes on macOS, KiB on Linux
-    return wall, usage.ru_maxrss / scale
+    return wall, usage.ru_maxrss / scale, usage.ru_utime + usage.ru_stime
 
 
 def read_labels(path: Path, column: str) -> dict[str, int]:
@@ -278,17 +283,23 @@ def measure(
 ) -> Measurement:
     walls: list[float] = []
     peaks: list[float] = []
+    cpus: list[float] = []
+    loads: list[float] = []
     for r in range(repeat):
         if prepare:
             prepare()
-        print(f"  {name}: run {r + 1}/{repeat} ...", end="", flush=True)
-        wall, peak = run_measured(command, work / f"{name}-{r + 1}.log")
-        print(f" {wall:.1f} s, {peak:,.0f} MB", flush=True)
-        walls.append(wall)
-        peaks.append(peak)
+        load = os.getloadavg()[0]
+        print(f"  {name}: run {r + 1}/{repeat} (load average {load:.2f}) ...", end="", flush=True)
+        wall, peak, cpu = run_measured(command, work / f"{name}-{r + 1}.log")
+        print(f" {wall:.1f} s, {peak:,.0f} MB, {cpu:.1f} CPU s", flush=True)
+        walls.append(round(wall, 3))
+        peaks.append(round(peak, 1))
+        cpus.append(round(cpu, 3))
+        loads.append(round(load, 2))
     found = labels_of()
     stages, extra = stages_of()
-    return Measurement(name, command, statistics.median(walls), max(peaks), found, walls, peaks, stages, extra)
+    return Measurement(name, command, statistics.median(walls), max(peaks), statistics.median(cpus), found,
+                       walls, peaks, cpus, loads, stages, extra)
 
 
 # --------------------------------------------------------------------------------------------
@@ -339,6 +350,7 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
     pile = by_name["pilewise"]
     ratios = {
         ref: {"time": ratio(pile.wall_seconds, by_name[ref].wall_seconds),
+              "cpu": ratio(pile.cpu_seconds, by_name[ref].cpu_seconds),
               "memory": ratio(pile.peak_rss_mb, by_name[ref].peak_rss_mb)}
         for ref in ("bare", "bare+lsa")
     }
@@ -349,14 +361,15 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
         f"Collection: {n_docs:,} documents, {collection.words:,} words, {collection.bytes / 1e6:.1f} MB CSV, "
         f"{TOPICS} planted topics; min_df={min_df}, max_df={MAX_DF}, k={K}, n_init={N_INIT}",
         "",
-        "| pipeline | wall time (s) | peak RSS (MB) | NMI vs planted |",
-        "|---|---:|---:|---:|",
+        "| pipeline | wall time (s) | CPU time (s) | peak RSS (MB) | NMI vs planted |",
+        "|---|---:|---:|---:|---:|",
     ]
     for m in results:
-        lines.append(f"| {m.pipeline} | {m.wall_seconds:.1f} | {m.peak_rss_mb:,.0f} | {m.nmi:.3f} |")
-    lines += ["", "| pilewise / ... | time | memory |", "|---|---:|---:|"]
+        lines.append(f"| {m.pipeline} | {m.wall_seconds:.1f} | {m.cpu_seconds:.1f} | {m.peak_rss_mb:,.0f} "
+                     f"| {m.nmi:.3f} |")
+    lines += ["", "| pilewise / ... | wall time | CPU time | memory |", "|---|---:|---:|---:|"]
     for ref, r in ratios.items():
-        lines.append(f"| {ref} | {r['time']:.2f}x | {r['memory']:.2f}x |")
+        lines.append(f"| {ref} | {r['time']:.2f}x | {r['cpu']:.2f}x | {r['memory']:.2f}x |")
     lines += ["", "Stage timings (s):"]
     for m in results:
         lines.append(f"- {m.pipeline}: " + ", ".join(f"{k} {v:.2f}" for k, v in m.stage_seconds.items()))
@@ -397,7 +410,7 @@ def profile_pilewise(csv_path: Path, work: Path, n_docs: int) -> None:
     prof = OUT_FOLDER / f"pilewise-{n_docs}.prof"
     command = [sys.executable, "-m", "cProfile", "-o", str(prof), "-m", "pilewise",
                "run", str(csv_path), "--k", str(K), "--out", str(out), "--quiet"]
-    wall, _ = run_measured(command, work / "pilewise-profiled.log")
+    wall, _, _ = run_measured(command, work / "pilewise-profiled.log")
     print(f"\ncProfile of pilewise ({wall:.1f} s under the profiler), written to {prof}")
     stats = pstats.Stats(str(prof))
     stats.sort_stats("cumulative").print_stats(40)
@@ -467,7 +480,7 @@ def main(argv: list[str] | None = None) -> None:
             print(f"  note: the CSV is {size_mb:.0f} MB, above pilewise's default --max-file-mb; raised it", flush=True)
 
         # interpreter start and imports of the pilewise command, to split the time the manifest does not cover
-        startup, _ = run_measured([sys.executable, "-c", "import pilewise.cli"], work / "pilewise-import.log")
+        startup, _, _ = run_measured([sys.executable, "-c", "import pilewise.cli"], work / "pilewise-import.log")
 
         def pilewise_stages() -> tuple[dict[str, float], dict[str, Any]]:
             manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))

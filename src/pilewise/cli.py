@@ -100,7 +100,7 @@ def run(
 @user_errors
 def demo(
     out: OutOption = Path("pilewise-site"),
-    k: Annotated[int, typer.Option("--k", help="Number of clusters.")] = 9,
+    k: Annotated[int, typer.Option("--k", help="Number of clusters.")] = 10,
     seed: SeedOption = 0,
     quiet: QuietOption = False,
 ) -> None:

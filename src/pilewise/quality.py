@@ -44,9 +44,13 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
         silhouette = float(widths.mean())
         per_cluster = [float(widths[sample_labels == c].mean()) if np.any(sample_labels == c) else float("nan")
                        for c in range(k)]
-    dense = space.toarray() if sp.issparse(space) and space.shape[0] * space.shape[1] <= 50_000_000 else space
+    dense: np.ndarray | None = None
+    if not sp.issparse(space):
+        dense = np.asarray(space)
+    elif space.shape[0] * space.shape[1] <= 50_000_000:
+        dense = sp.csr_matrix(space).toarray()
     ch = db = None
-    if not sp.issparse(dense):
+    if dense is not None:
         ch = float(calinski_harabasz_score(dense, labels))
         db = float(davies_bouldin_score(dense, labels))
     return QualityScores(

@@ -81,7 +81,7 @@ def _cell(value: object) -> str:
     if value is None:
         return ""
     try:
-        if pd.isna(value):  # type: ignore[call-overload]
+        if pd.isna(value):
             return ""
     except (TypeError, ValueError):
         pass
