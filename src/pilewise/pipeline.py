@@ -10,6 +10,7 @@ import hashlib
 import os
 import shutil
 import tempfile
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -64,7 +65,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     result = compute_run(options, reporter)
     with reporter.stage("writing site"):
         run_folder = options.out / "runs" / options.run_name
-        _write_atomically(run_folder, lambda folder: _write_run(folder, result))
+        _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
         root_index = render_root_index(options.out)
     return RunOutcome(
         run_folder=run_folder,
@@ -82,7 +83,10 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
     with reporter.stage("reading"):
         limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
         columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
-        ingested = read_source(options.source, columns, limits)
+        ingested = read_source(
+            options.source, columns, limits,
+            track=lambda paths: reporter.track(paths, total=len(paths), label="reading files"),
+        )
         if len(ingested.documents) > options.max_documents:
             raise PilewiseError(
                 f"found {len(ingested.documents):,} documents, more than --max-documents "
@@ -103,7 +107,10 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
             min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
             lsa_components=options.lsa_components, seed=options.seed,
         )
-        vectors = vectorize(texts, analyzer, settings, progress=reporter.say)
+        vectors = vectorize(
+            texts, analyzer, settings, progress=reporter.say,
+            track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
+        )
     with reporter.stage("clustering"):
         clustering = kmeans_clusters(
             vectors.space, collection.copies.astype(float), k=options.k, seed=options.seed, n_init=options.n_init
@@ -145,14 +152,14 @@ def fingerprint(documents: tuple[Document, ...]) -> str:
     return "sha256:" + digest.hexdigest()
 
 
-def _write_run(folder: Path, result: RunResult) -> None:
+def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
     write_exports(folder, result)
-    render_run_site(folder, result)
+    total = len(result.collection.documents)
+    render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
 
 
-def _write_atomically(target: Path, write: object) -> None:
+def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
     """Build into a temporary sibling folder and move it into place only when complete."""
-    assert callable(write)
     target.parent.mkdir(parents=True, exist_ok=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
     try:

@@ -10,6 +10,7 @@ import email
 import email.policy
 import os
 import re
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from email.message import EmailMessage
 from pathlib import Path
@@ -35,7 +36,12 @@ class ReadLimits:
     max_doc_chars: int = 1_000_000
 
 
-def read_source(source: Path, columns: ColumnChoice, limits: ReadLimits) -> Ingested:
+def read_source(
+    source: Path,
+    columns: ColumnChoice,
+    limits: ReadLimits,
+    track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None = None,
+) -> Ingested:
     """Read SOURCE (a folder, read recursively, or one file) into documents.
 
     Raises
@@ -53,7 +59,7 @@ def read_source(source: Path, columns: ColumnChoice, limits: ReadLimits) -> Inge
     else:
         paths, walk_entries = _discover(source)
         entries.extend(walk_entries)
-    for path, rel in paths:
+    for path, rel in track(paths) if track else paths:
         docs, file_entries, file_notes = _read_one(path, rel, columns, limits, single=source.is_file())
         documents.extend(docs)
         entries.extend(file_entries)

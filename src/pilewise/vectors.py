@@ -6,7 +6,7 @@ The defaults come from measurements on open labeled corpora (docs/vectorizing.md
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -75,6 +75,7 @@ def vectorize(
     analyzer: Analyzer,
     settings: VectorSettings,
     progress: Callable[[str], None] | None = None,
+    track: Callable[[Iterable[str]], Iterable[str]] | None = None,
 ) -> Vectorized:
     """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA."""
     n = len(texts)
@@ -84,7 +85,7 @@ def vectorize(
         analyzer=lambda text: with_phrases(analyzer.terms(text)), min_df=min_df, max_df=max_df, dtype=np.int32
     )
     try:
-        counts = counter.fit_transform(texts).tocsr()
+        counts = counter.fit_transform(track(texts) if track else texts).tocsr()
     except ValueError as err:
         raise PilewiseError(
             f"no terms are left after removing stop words and terms in fewer than {min_df} documents "

@@ -7,7 +7,7 @@ pages show raw document text, which is never trusted HTML.
 from __future__ import annotations
 
 import json
-from collections.abc import Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
@@ -67,7 +67,9 @@ def doc_page_name(doc_index: int) -> str:
     return f"docs/d{doc_index:07d}.html"
 
 
-def render_run_site(folder: Path, result: RunResult) -> None:
+def render_run_site(
+    folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
+) -> None:
     """Write index.html, one page per cluster (members paged), document pages and the ingest page."""
     env = _environment()
     _copy_stylesheet(folder)
@@ -116,7 +118,8 @@ def render_run_site(folder: Path, result: RunResult) -> None:
         (folder / "docs").mkdir()
         template = env.get_template("document.html")
         keys_by_cluster = {c.cluster_id: [t.key for t in c.chi2_terms[:MARKED_TERMS]] for c in result.clusters}
-        for i, doc in enumerate(docs):
+        numbered = enumerate(docs)
+        for i, doc in track(numbered) if track else numbered:
             t = result.collection.text_of_doc[i]
             cluster_id = int(result.clustering.labels[t])
             segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
