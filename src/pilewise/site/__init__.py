@@ -104,8 +104,7 @@ def render_run_site(
                 "cluster": cluster,
                 "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages)
                             for n in cluster.nearest],
-                "kwic": [{"line": line, "href": doc_page_name(line.doc_index) if with_doc_pages else None}
-                         for line in cluster.kwic],
+                "kwic_groups": _kwic_groups(cluster, with_doc_pages),
                 "members": rows,
                 "page": page,
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
@@ -127,6 +126,15 @@ def render_run_site(
                 common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id), distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../"))
+
+
+def _kwic_groups(cluster: ClusterSummary, with_pages: bool) -> list[dict[str, Any]]:
+    """Keyword-in-context lines grouped by term, in the order of the terms."""
+    groups: dict[str, list[dict[str, Any]]] = {}
+    for line in cluster.kwic:
+        href = doc_page_name(line.doc_index) if with_pages else None
+        groups.setdefault(line.term, []).append({"line": line, "href": href})
+    return [{"term": term, "lines": lines} for term, lines in groups.items()]
 
 
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
