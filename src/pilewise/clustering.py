@@ -31,21 +31,47 @@ class Clustering:
 
 
 def kmeans_clusters(
-    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int, n_init: int
+    space: np.ndarray | sp.csr_matrix,
+    weights: np.ndarray,
+    *,
+    k: int,
+    seed: int,
+    n_init: int,
+    init: np.ndarray | None = None,
 ) -> Clustering:
-    """Seeded k-means (k-means++ starts) with duplicate counts as sample weights."""
-    model = KMeans(n_clusters=k, n_init=n_init, random_state=seed)
+    """Seeded k-means (k-means++ starts, or the given `init` centroids) with duplicate counts as weights."""
+    model = KMeans(n_clusters=k, n_init=1 if init is not None else n_init, random_state=seed,
+                   init=init if init is not None else "k-means++")
     raw_labels = model.fit_predict(space, sample_weight=weights)
-    # Number clusters by weighted size, largest first; ties by smallest original label.
+    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=float(model.inertia_))
+
+
+def clustering_from_labels(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, raw_labels: np.ndarray, *, k: int, inertia: float = 0.0
+) -> Clustering:
+    """Number clusters by weighted size (largest first, ties by label) and compute centroids and distances."""
     sizes = np.bincount(raw_labels, weights=weights, minlength=k)
     order = sorted(range(k), key=lambda c: (-sizes[c], c))
     remap = np.empty(k, dtype=int)
     remap[order] = np.arange(k)
     labels = remap[raw_labels]
-    centroids = normalize(np.asarray(model.cluster_centers_)[order])
+    centroids = weighted_centroids(space, weights, labels, k)
     similarity = cosine_rowwise(space, centroids[labels])
     distances = np.clip(1.0 - similarity, 0.0, 2.0)
-    return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=float(model.inertia_))
+    return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=inertia)
+
+
+def weighted_centroids(space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int) -> np.ndarray:
+    """Unit-length weighted mean direction of each cluster's rows, shape (k, n_dims)."""
+    indicator = sp.csr_matrix((weights, (labels, np.arange(labels.size))), shape=(k, labels.size))
+    sums = indicator @ space
+    sums = sums.toarray() if sp.issparse(sums) else np.asarray(sums)
+    return normalize(sums)
+
+
+def farthest_row(space: np.ndarray | sp.csr_matrix, clustering: Clustering, weights: np.ndarray) -> int:
+    """The row with the largest weighted distance to its centroid: a new centre when growing k by one."""
+    return int(np.argmax(clustering.distances * weights))
 
 
 def cosine_rowwise(space: np.ndarray | sp.csr_matrix, other: np.ndarray) -> np.ndarray:
