@@ -36,7 +36,8 @@ How to run
 
 It prints one Markdown table per factor and writes every figure (per seed too) to
 ``benchmarks/.out/vectorizing.json`` and the tables to ``benchmarks/.out/vectorizing.md`` (``--out``
-changes the JSON path; the Markdown goes beside it).
+changes the JSON path; the Markdown goes beside it). ``--render benchmarks/.out/vectorizing.json`` prints
+the tables of a saved run again without measuring.
 """
 
 from __future__ import annotations
@@ -220,7 +221,7 @@ def summarize(runs: list[dict[str, Any]], baseline: list[dict[str, Any]]) -> dic
     out: dict[str, Any] = {}
     for metric in ("nmi", "ari", "v_measure", "seconds", "vectorize_seconds", "cluster_seconds"):
         mean, sd = mean_sd([r[metric] for r in runs])
-        out[metric] = {"mean": mean, "sd": sd}
+        out[metric] = {"mean": mean, "sd": sd, "min": min(r[metric] for r in runs)}
     base_by_seed = {r["seed"]: r["nmi"] for r in baseline}
     deltas = [r["nmi"] - base_by_seed[r["seed"]] for r in runs if r["seed"] in base_by_seed]
     mean, sd = mean_sd(deltas) if deltas else (float("nan"), float("nan"))
@@ -243,7 +244,7 @@ def factor_table(factor: str, results: dict[str, Any], names: list[str]) -> str:
     lines = [
         f"#### {factor}",
         "",
-        "| collection | level | NMI | ARI | V-measure | NMI − default | time (s) | space terms | dims |",
+        "| collection | level | NMI | ARI | V-measure | NMI − default | time s (fastest) | space terms | dims |",
         "|---|---|---|---|---|---|---|---|---|",
     ]
     for name in names:
@@ -252,7 +253,7 @@ def factor_table(factor: str, results: dict[str, Any], names: list[str]) -> str:
             s = coll["summaries"][key]
             lines.append(
                 f"| {name} | {level} | {fmt(s['nmi'])} | {fmt(s['ari'])} | {fmt(s['v_measure'])} "
-                f"| {fmt(s['nmi_minus_default'], signed=True)} | {fmt(s['seconds'], 2)} "
+                f"| {fmt(s['nmi_minus_default'], signed=True)} | {fmt(s['seconds'], 2)} ({s['seconds']['min']:.2f}) "
                 f"| {s['space_terms']:,} | {s['dims']:,} |"
             )
     return "\n".join(lines)
@@ -345,8 +346,29 @@ def run_collection(name: str, seeds: Sequence[int], sample: int | None, factors:
     }
 
 
+def render(report: dict[str, Any]) -> str:
+    """The Markdown tables of a report (summaries recomputed from the per-seed runs)."""
+    results = report["collections"]
+    names = list(results)
+    for coll in results.values():
+        baseline = coll["runs"][coll["default_key"]]
+        coll["summaries"] = {key: summarize(runs, baseline) for key, runs in coll["runs"].items()}
+    factors = list(results[names[0]]["factors"]) if names else []
+    m = report["machine"]
+    sampled = f"; collections above {report['sample']:,} documents sampled" if report.get("sample") else ""
+    parts = [
+        f"Measured {report['started']} to {report.get('finished', '(unfinished)')} on {m['cores']} cores "
+        f"({m['cpu']}), Python {m['python']}, scikit-learn {m['scikit-learn']}, numpy {m['numpy']}; "
+        f"seeds {report['seeds']}; mean ± sample sd{sampled}.",
+        "",
+        collections_table(results, names),
+    ]
+    parts += ["", *("\n" + factor_table(f, results, names) for f in factors if f != "reference")]
+    return "\n".join(parts) + "\n"
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    """Parse options, measure, print the tables and write the JSON and Markdown."""
+    """Parse options, measure (or reload a JSON), print the tables and write the JSON and Markdown."""
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n", 1)[0])
     parser.add_argument("--collections", nargs="+", choices=list(COLLECTIONS), default=list(COLLECTIONS))
     parser.add_argument("--seeds", nargs="+", type=int, default=[0, 1, 2])
@@ -357,7 +379,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         "--sample", type=int, default=None, help="keep a seeded sample of this many documents of larger collections"
     )
     parser.add_argument("--out", type=Path, default=OUT_DIR / "vectorizing.json", help="JSON output path")
+    parser.add_argument(
+        "--render", type=Path, default=None, metavar="JSON", help="measure nothing: print the tables of a saved JSON"
+    )
     args = parser.parse_args(argv)
+    if args.render is not None:
+        print(render(json.loads(args.render.read_text(encoding="utf-8"))))
+        return 0
     factors = list(dict.fromkeys([*args.factors, "reference"]))
 
     started = dt.datetime.now(dt.UTC)
@@ -379,18 +407,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         args.out.write_text(json.dumps(report, indent=1), encoding="utf-8")  # partial results survive a crash
     report["finished"] = dt.datetime.now(dt.UTC).isoformat(timespec="seconds")
     args.out.write_text(json.dumps(report, indent=1), encoding="utf-8")
-
-    names = list(args.collections)
-    m = report["machine"]
-    parts = [
-        f"Measured {report['started']} to {report['finished']} on {m['cores']} cores ({m['cpu']}), "
-        f"Python {m['python']}, scikit-learn {m['scikit-learn']}, numpy {m['numpy']}; seeds {report['seeds']}; "
-        f"mean ± sample sd.",
-        "",
-        collections_table(report["collections"], names),
-    ]
-    parts += ["", *("\n" + factor_table(f, report["collections"], names) for f in factors if f != "reference")]
-    markdown = "\n".join(parts) + "\n"
+    markdown = render(report)
     args.out.with_suffix(".md").write_text(markdown, encoding="utf-8")
     print(markdown)
     print(f"wrote {args.out} and {args.out.with_suffix('.md')}", file=sys.stderr)

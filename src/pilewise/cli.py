@@ -11,7 +11,7 @@ import typer
 
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions
-from pilewise.pipeline import RunOutcome, run_collection
+from pilewise.pipeline import RunOutcome, compare_runs, run_collection
 
 app = typer.Typer(
     add_completion=False,
@@ -94,6 +94,19 @@ def run(
         max_file_mb=max_file_mb, max_doc_chars=max_doc_chars, quiet=quiet,
     )
     _print_outcome(run_collection(options))
+
+
+@app.command()
+@user_errors
+def compare(
+    run_a: Annotated[Path, typer.Argument(help="The first run's folder, e.g. pilewise-site/runs/k5.")],
+    run_b: Annotated[Path, typer.Argument(help="The second run's folder, e.g. pilewise-site/runs/k10.")],
+    out: Annotated[
+        Path | None, typer.Option("--out", help="Site folder for the comparison; default: the runs' site folder.")
+    ] = None,
+) -> None:
+    """Compare two runs: agreement figures, which clusters were kept, split or merged, which documents moved."""
+    typer.echo(str(compare_runs(run_a, run_b, out)))
 
 
 @app.command()

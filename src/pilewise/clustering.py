@@ -61,7 +61,9 @@ def clustering_from_labels(
     return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=inertia)
 
 
-def weighted_centroids(space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int) -> np.ndarray:
+def weighted_centroids(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int
+) -> np.ndarray:
     """Unit-length weighted mean direction of each cluster's rows, shape (k, n_dims)."""
     indicator = sp.csr_matrix((weights, (labels, np.arange(labels.size))), shape=(k, labels.size))
     sums = indicator @ space

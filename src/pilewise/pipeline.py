@@ -77,6 +77,25 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     )
 
 
+def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
+    """Compare two run folders and write the comparison page; returns the page's path.
+
+    The page goes to OUT/compare/A--B/, OUT being the site folder holding both runs unless given.
+    """
+    from pilewise.compare import compare_run_folders, comparison_document
+    from pilewise.site import render_comparison
+
+    document = comparison_document(compare_run_folders(run_a, run_b))
+    if out is None:
+        roots = {folder.resolve().parent.parent for folder in (run_a, run_b) if folder.resolve().parent.name == "runs"}
+        if len(roots) != 1 or run_a.resolve().parent != run_b.resolve().parent:
+            raise PilewiseError(
+                f"{str(run_a)!r} and {str(run_b)!r} are not runs of one site folder; pass --out for the comparison"
+            )
+        out = roots.pop()
+    return render_comparison(out, document)
+
+
 def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
     """All computation of a run, no writing."""
     validate(options)

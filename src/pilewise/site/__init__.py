@@ -202,8 +202,76 @@ def _write(path: Path, content: str) -> None:
     path.write_text(content, encoding="utf-8")
 
 
+MOVED_ON_PAGE = 500
+AUTO_COMPARE_RUNS = 12  # runs of one collection compared pairwise on the root index; above, neighbours by k only
+
+
+def _shade(share: float) -> str:
+    """CSS class for a cell's share of its row (the pages' CSP forbids inline styles)."""
+    if share <= 0:
+        return ""
+    return f"s{min(5, 1 + int(share * 5))}"
+
+
+def render_comparison(out: Path, document: dict[str, Any]) -> Path:
+    """Write OUT/compare/A--B/ (index.html and compare.json) for a comparison document."""
+    a, b = document["runs"]["a"], document["runs"]["b"]
+    folder = out / "compare" / f"{a}--{b}"
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "compare.json").write_text(json.dumps(document, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
+    _copy_stylesheet(folder)
+    table = document["contingency"]
+    rows = [
+        {"cluster": row["cluster"], "headline": row["headline"], "size": row["size"],
+         "cells": [{"count": c, "share": sh, "shade": _shade(sh)} for c, sh in zip(row["counts"], row["shares"],
+                                                                                   strict=True)]}
+        for row in table["rows"]
+    ]
+    page = folder / "index.html"
+    _write(page, _environment().get_template("compare.html").render(
+        doc=document, a=a, b=b, ka=len(table["clusters_a"]), kb=len(table["clusters_b"]), rows=rows,
+        moved=document["moved"]["documents"][:MOVED_ON_PAGE], caution=CAUTION, css=STYLESHEET, up="../../"))
+    return page
+
+
+def _auto_comparisons(out: Path, runs: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Compare runs of the same collection (equal fingerprints); write their pages and list them."""
+    from pilewise.compare import compare_run_folders, comparison_document
+    from pilewise.errors import PilewiseError
+
+    by_input: dict[str, list[dict[str, Any]]] = {}
+    for run in runs:
+        by_input.setdefault(run["fingerprint"], []).append(run)
+    pairs: list[dict[str, Any]] = []
+    for group in by_input.values():
+        group.sort(key=lambda r: (r["k"] or 0, r["name"]))
+        if len(group) <= AUTO_COMPARE_RUNS:
+            candidates = [(x, y) for i, x in enumerate(group) for y in group[i + 1 :]]
+        else:
+            candidates = list(zip(group, group[1:], strict=False))
+        for run_a, run_b in candidates:
+            try:
+                document = comparison_document(
+                    compare_run_folders(out / "runs" / run_a["name"], out / "runs" / run_b["name"]))
+            except PilewiseError:
+                continue
+            render_comparison(out, document)
+            pairs.append({"a": run_a["name"], "b": run_b["name"], "ka": run_a["k"], "kb": run_b["k"],
+                          "ari": document["agreement"]["adjusted_rand_index"],
+                          "nmi": document["agreement"]["nmi_arithmetic"],
+                          "href": f"compare/{run_a['name']}--{run_b['name']}/index.html"})
+    env = _environment()
+    for run in runs:
+        mine = [{"other": p["b"] if p["a"] == run["name"] else p["a"],
+                 "k": p["kb"] if p["a"] == run["name"] else p["ka"], **p}
+                for p in pairs if run["name"] in (p["a"], p["b"])]
+        _write(out / "runs" / run["name"] / "comparisons.html", env.get_template("comparisons.html").render(
+            run=run["name"], pairs=mine, caution=CAUTION, css=STYLESHEET, up=""))
+    return pairs
+
+
 def render_root_index(out: Path) -> Path:
-    """(Re)write OUT/index.html listing every run found under OUT/runs."""
+    """(Re)write OUT/index.html listing every run found under OUT/runs, with comparisons of same-input runs."""
     env = _environment()
     out.mkdir(parents=True, exist_ok=True)
     runs = []
@@ -228,8 +296,11 @@ def render_root_index(out: Path) -> Path:
             "created": manifest.get("created", ""),
             "source": manifest.get("parameters", {}).get("source", ""),
             "headlines": [c.get("headline", "") for c in clusters.get("clusters", [])[:3]],
+            "fingerprint": manifest.get("input", {}).get("fingerprint", ""),
         })
+    comparisons = _auto_comparisons(out, runs)
     _copy_stylesheet(out)
     page = out / "index.html"
-    _write(page, env.get_template("root_index.html").render(runs=runs, caution=CAUTION, css=STYLESHEET, up=""))
+    _write(page, env.get_template("root_index.html").render(
+        runs=runs, comparisons=comparisons, caution=CAUTION, css=STYLESHEET, up=""))
     return page
