@@ -15,7 +15,7 @@ space, LSA 100 components, min_df = ``default_min_df(n)``, max_df 0.5, n_init 4)
 
 1. ``stem``       Snowball stemming off / on;
 2. ``phrases``    words only / words and two-word phrases in the clustering space (with the space's size);
-3. ``lsa``        0 (k-means on the sparse TF-IDF), 50, 100, 200 components;
+3. ``lsa``        0 (k-means on the sparse TF-IDF), 50, 100, 200 components (``--lsa-levels`` to change);
 4. ``min_df``     1, 2, the default, 5;  ``max_df``: 0.3, 0.5, 0.8, 1.0;
 5. ``n_init``     1, 4, 10.
 
@@ -114,12 +114,7 @@ DEFAULT = Choice()
 FACTORS: dict[str, list[tuple[str, Choice]]] = {
     "stem": [("off (default)", DEFAULT), ("Snowball", replace(DEFAULT, stem=True))],
     "phrases": [("words only (default)", DEFAULT), ("words + phrases", replace(DEFAULT, bigrams_in_space=True))],
-    "lsa": [
-        ("off (sparse TF-IDF)", replace(DEFAULT, lsa_components=0)),
-        ("50", replace(DEFAULT, lsa_components=50)),
-        ("100 (default)", DEFAULT),
-        ("200", replace(DEFAULT, lsa_components=200)),
-    ],
+    "lsa": [],  # filled by lsa_levels()
     "min_df": [
         ("1", replace(DEFAULT, min_df=1)),
         ("2", replace(DEFAULT, min_df=2)),
@@ -139,6 +134,18 @@ FACTORS: dict[str, list[tuple[str, Choice]]] = {
     ],
     "reference": [("no LSA, n_init 10", replace(DEFAULT, lsa_components=0, n_init=10))],
 }
+
+
+def lsa_levels(components: Sequence[int]) -> list[tuple[str, Choice]]:
+    """The LSA factor's levels: 0 is k-means on the sparse TF-IDF."""
+    levels = []
+    for n in sorted(set(components)):
+        label = "off (sparse TF-IDF)" if n == 0 else f"{n} (default)" if n == DEFAULT.lsa_components else str(n)
+        levels.append((label, replace(DEFAULT, lsa_components=n)))
+    return levels
+
+
+FACTORS["lsa"] = lsa_levels([0, 50, 100, 200])
 
 
 @dataclass(frozen=True)
@@ -301,8 +308,10 @@ def machine() -> dict[str, Any]:
     }
 
 
-def run_collection(name: str, seeds: Sequence[int], sample: int | None, factors: Sequence[str]) -> dict[str, Any]:
-    """Every distinct choice of the chosen factors, once per seed, on one collection."""
+def run_collection(
+    name: str, seeds: Sequence[int], sample: int | None, factors: dict[str, list[tuple[str, Choice]]]
+) -> dict[str, Any]:
+    """Every distinct choice of the given factors (name -> levels), once per seed, on one collection."""
     collection, sampled = load(name, sample)
     labels = list(collection.labels)
     k = len(set(labels))
@@ -311,9 +320,9 @@ def run_collection(name: str, seeds: Sequence[int], sample: int | None, factors:
     default_key = DEFAULT.resolved(n_texts).key()
     wanted: dict[str, Choice] = {default_key: DEFAULT.resolved(n_texts)}
     table: dict[str, list[tuple[str, str]]] = {}
-    for factor in factors:
+    for factor, levels in factors.items():
         table[factor] = []
-        for level, choice in FACTORS[factor]:
+        for level, choice in levels:
             resolved = choice.resolved(n_texts)
             wanted.setdefault(resolved.key(), resolved)
             shown = f"default ({resolved.min_df})" if factor == "min_df" and choice.min_df is None else level
@@ -378,6 +387,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument(
         "--sample", type=int, default=None, help="keep a seeded sample of this many documents of larger collections"
     )
+    parser.add_argument(
+        "--lsa-levels", nargs="+", type=int, default=[0, 50, 100, 200], help="LSA components to try (0 = no LSA)"
+    )
     parser.add_argument("--out", type=Path, default=OUT_DIR / "vectorizing.json", help="JSON output path")
     parser.add_argument(
         "--render", type=Path, default=None, metavar="JSON", help="measure nothing: print the tables of a saved JSON"
@@ -386,7 +398,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.render is not None:
         print(render(json.loads(args.render.read_text(encoding="utf-8"))))
         return 0
-    factors = list(dict.fromkeys([*args.factors, "reference"]))
+    chosen = {**FACTORS, "lsa": lsa_levels(args.lsa_levels)}
+    factors = {name: chosen[name] for name in dict.fromkeys([*args.factors, "reference"])}
 
     started = dt.datetime.now(dt.UTC)
     report: dict[str, Any] = {

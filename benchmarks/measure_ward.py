@@ -92,10 +92,11 @@ def predicted_full_gb(n: int) -> float:
 def run_child(method: str, n: int, dims: int, seed: int, timeout: float) -> dict[str, Any]:
     """Run `child` in a fresh interpreter; add its peak RSS (os.wait4) and the load average."""
     load_before = os.getloadavg()[0]
-    with tempfile.TemporaryFile() as out:
+    with tempfile.TemporaryFile() as out, tempfile.TemporaryFile() as err:
         process = subprocess.Popen(
             [sys.executable, __file__, "--child", method, "--n", str(n), "--dims", str(dims), "--seed", str(seed)],
             stdout=out,
+            stderr=err,
         )
         started = time.monotonic()
         while True:
@@ -111,6 +112,8 @@ def run_child(method: str, n: int, dims: int, seed: int, timeout: float) -> dict
         wall = time.monotonic() - started
         out.seek(0)
         lines = out.read().decode().strip().splitlines()
+        err.seek(0)
+        errors = err.read().decode(errors="replace").strip().splitlines()
     result: dict[str, Any] = {
         "method": method,
         "n": n,
@@ -121,8 +124,12 @@ def run_child(method: str, n: int, dims: int, seed: int, timeout: float) -> dict
     }
     if process.returncode == 0 and lines:
         result.update(json.loads(lines[-1]))
+    elif wall > timeout:
+        result["error"] = f"killed after {timeout:.0f} s"
+    elif process.returncode < 0:
+        result["error"] = f"killed by signal {-process.returncode} (out of memory?)"
     else:
-        result["error"] = "timed out" if wall > timeout else f"exit status {process.returncode}"
+        result["error"] = f"exit status {process.returncode}: {errors[-1] if errors else 'no message'}"
     return result
 
 
@@ -177,8 +184,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             row = run_child(method, n, args.dims, args.seed, args.timeout)
             rows.append(row)
             seconds = row.get("tree_seconds")
-            if seconds is None or seconds > args.max_seconds:
-                stopped[method] = f"not run: n={n:,} took {row['wall_seconds']:.0f} s"
+            if seconds is not None and seconds > args.max_seconds:
+                stopped[method] = f"not run: n={n:,} took {seconds:.0f} s"
+            elif "killed" in row.get("error", ""):
+                stopped[method] = f"not run: n={n:,} was {row['error']}"
         print(json.dumps(rows[-1]), file=sys.stderr, flush=True)
 
     header = (

@@ -80,6 +80,9 @@ def run(
         int | None, typer.Option("--min-df", help="Drop terms in fewer documents; default grows with size.")
     ] = None,
     max_df: Annotated[float, typer.Option("--max-df", help="Drop terms in a larger share of documents.")] = 0.5,
+    resamples: Annotated[
+        int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability (more: slower, firmer).")
+    ] = 20,
     max_file_mb: Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")] = 100.0,
     max_doc_chars: Annotated[
         int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")
@@ -91,7 +94,7 @@ def run(
         source=source, k=k, out=out, seed=seed, name=name, text_column=text_column, title_column=title_column,
         id_column=id_column, date_column=date_column, stop_words_file=stop_words, stem=stem,
         bigrams_in_space=phrases_in_space, lsa_components=lsa_components, min_df=min_df, max_df=max_df,
-        max_file_mb=max_file_mb, max_doc_chars=max_doc_chars, quiet=quiet,
+        max_file_mb=max_file_mb, max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
     )
     _print_outcome(run_collection(options))
 

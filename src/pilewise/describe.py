@@ -16,6 +16,7 @@ import scipy.sparse as sp
 from pilewise.clustering import Clustering
 from pilewise.kwic import kwic_line
 from pilewise.model import ClusterSummary, Document, KwicLine, Neighbour, QualityScores, TermScore
+from pilewise.stability import StabilityResult
 from pilewise.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.text import Analyzer
 from pilewise.vectors import Vectorized
@@ -44,6 +45,7 @@ def describe_clusters(
     analyzer: Analyzer,
     *,
     top_terms: int,
+    stability: StabilityResult | None = None,
 ) -> tuple[ClusterSummary, ...]:
     """Summaries of every cluster, numbered as in `clustering`, largest first."""
     labels = clustering.labels
@@ -88,9 +90,17 @@ def describe_clusters(
                 kwic=kwic,
                 mean_distance=float(np.average(clustering.distances[members], weights=w)),
                 silhouette=None if silhouette is None or np.isnan(silhouette) else float(silhouette),
+                stability=_stability_value(stability, c),
+                stability_reading=stability.clusters[c].reading if stability else "",
             )
         )
     return tuple(summaries)
+
+
+def _stability_value(stability: StabilityResult | None, c: int) -> float | None:
+    if stability is None or np.isnan(stability.clusters[c].mean_jaccard):
+        return None
+    return float(stability.clusters[c].mean_jaccard)
 
 
 def _chi2_terms(

@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from pilewise.model import ClusterSummary, TermScore
+from pilewise.stability import STABILITY_ROWS
 
 if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
@@ -99,6 +100,8 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
                   "doc_id": line.doc_id} for line in cluster.kwic],
         "mean_distance": _round(cluster.mean_distance),
         "silhouette": _round(cluster.silhouette),
+        "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
+                      "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
     }
 
 
@@ -114,6 +117,9 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
             "silhouette_sample": q.silhouette_sample,
             "calinski_harabasz": _round(q.calinski_harabasz, 4),
             "davies_bouldin": _round(q.davies_bouldin),
+            "stability_mean": _round(result.stability.mean, 4),
+            "stability_resamples": result.stability.resamples,
+            "stability_rows": int(min(result.collection.copies.size, STABILITY_ROWS)),
         },
         "clusters": [cluster_record(c, result) for c in result.clusters],
     }

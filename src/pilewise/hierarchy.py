@@ -399,6 +399,8 @@ def dendrogram_svg(tree: Tree, *, top: int = 30, labels: Sequence[str] | None = 
         if cut_k is not None:
             axes.axhline(_cut_height(tree, cut_k), color=CUT_COLOUR, linestyle="--", linewidth=1.2)
         axes.set_ylabel("Ward merge height")
+        if labels is None or top < tree.n_leaves:
+            axes.set_xlabel("(n): documents under the node")
         for side in ("top", "right"):
             axes.spines[side].set_visible(False)
         buffer = io.StringIO()

@@ -93,6 +93,8 @@ class ClusterSummary:
     kwic: tuple[KwicLine, ...]
     mean_distance: float
     silhouette: float | None
+    stability: float | None = None
+    stability_reading: str = ""
 
 
 @dataclass(frozen=True)

@@ -16,6 +16,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
     "max_documents": (2, 100_000_000, "--max-documents"),
     "top_terms": (1, 100, "--top-terms"),
     "n_init": (1, 100, "--n-init"),
+    "resamples": (1, 1000, "--resamples"),
 }
 
 
@@ -53,6 +54,7 @@ class RunOptions:
     min_df: int | None = None
     max_df: float = 0.5
     n_init: int = 4
+    resamples: int = 20
     top_terms: int = 15
     max_file_mb: float = 100.0
     max_doc_chars: int = 1_000_000

@@ -26,6 +26,7 @@ from pilewise.progress import Reporter
 from pilewise.quality import assess
 from pilewise.reading import ReadLimits, read_source
 from pilewise.site import render_root_index, render_run_site
+from pilewise.stability import StabilityResult, bootstrap_stability, kmeans_cluster_fn, stability_rows
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
 from pilewise.vectors import Vectorized, VectorSettings, vectorize
@@ -41,6 +42,7 @@ class RunResult:
     vectors: Vectorized
     clustering: Clustering
     quality: QualityScores
+    stability: StabilityResult
     clusters: tuple[ClusterSummary, ...]
     analyzer: Analyzer
     fingerprint: str
@@ -130,18 +132,24 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
         )
+    weights = collection.copies.astype(float)
     with reporter.stage("clustering"):
-        clustering = kmeans_clusters(
-            vectors.space, collection.copies.astype(float), k=options.k, seed=options.seed, n_init=options.n_init
-        )
+        clustering = kmeans_clusters(vectors.space, weights, k=options.k, seed=options.seed, n_init=options.n_init)
     with reporter.stage("assessing"):
         quality = assess(vectors.space, clustering.labels, k=options.k, seed=options.seed)
+        rows = stability_rows(clustering.labels.size, options.seed)
+        stability = bootstrap_stability(
+            vectors.space[rows], weights[rows], clustering.labels[rows], k=options.k, resamples=options.resamples,
+            seed=options.seed, cluster_fn=kmeans_cluster_fn(options.k),
+        )
     with reporter.stage("describing"):
-        clusters = describe_clusters(collection, vectors, clustering, quality, analyzer, top_terms=options.top_terms)
+        clusters = describe_clusters(
+            collection, vectors, clustering, quality, analyzer, top_terms=options.top_terms, stability=stability
+        )
     return RunResult(
         options=options, ingested=ingested, collection=collection, vectors=vectors, clustering=clustering,
-        quality=quality, clusters=clusters, analyzer=analyzer, fingerprint=fingerprint(ingested.documents),
-        timings=reporter.timings,
+        quality=quality, stability=stability, clusters=clusters, analyzer=analyzer,
+        fingerprint=fingerprint(ingested.documents), timings=reporter.timings,
     )
 
 

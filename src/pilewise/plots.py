@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import io
 from collections.abc import Sequence
+from typing import Any
 
 INK = "#1d2327"
 ACCENT = "#2f5d62"
@@ -11,7 +12,7 @@ WARM = "#b5651d"
 GRID = "#dcd6cb"
 
 
-def _pyplot():  # type: ignore[no-untyped-def]
+def _pyplot() -> Any:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -20,13 +21,13 @@ def _pyplot():  # type: ignore[no-untyped-def]
     return plt
 
 
-def svg_of(figure: object) -> str:
+def svg_of(figure: Any) -> str:
     """Serialize a matplotlib figure as SVG with fixed ids and no date, then close it."""
     plt = _pyplot()
     buffer = io.StringIO()
     with plt.rc_context({"svg.hashsalt": "pilewise", "svg.fonttype": "none"}):
-        figure.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})  # type: ignore[attr-defined]
-    plt.close(figure)  # type: ignore[arg-type]
+        figure.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})
+    plt.close(figure)
     return buffer.getvalue()
 
 

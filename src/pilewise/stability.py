@@ -80,6 +80,16 @@ class StabilityResult:
     mean: float
 
 
+STABILITY_ROWS = 5_000  # rows re-clustered per resample at most; a seeded sample above that
+
+
+def stability_rows(n: int, seed: int, cap: int = STABILITY_ROWS) -> np.ndarray:
+    """Indexes of the rows used for stability: all of them up to `cap`, else a seeded sample, sorted."""
+    if n <= cap:
+        return np.arange(n)
+    return np.sort(np.random.default_rng(seed).choice(n, cap, replace=False))
+
+
 def stability_reading(value: float) -> str:
     """Reading of a mean bootstrap Jaccard similarity by fpc's clusterboot rules of thumb (Hennig)."""
     if math.isnan(value):

@@ -10,11 +10,10 @@ import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, farthest_row, kmeans_clusters
 from pilewise.quality import assess
-from pilewise.stability import bootstrap_stability, kmeans_cluster_fn
+from pilewise.stability import bootstrap_stability, kmeans_cluster_fn, stability_rows
 
 STABLE = 0.75  # Hennig's clusterboot documentation: ">= 0.75 valid, stable"
 PATTERN = 0.6  # same source: "0.6-0.75 indicates a pattern"
-STABILITY_SAMPLE = 5_000  # rows used for stability inside a sweep (seeded sample)
 
 
 @dataclass(frozen=True)
@@ -66,10 +65,10 @@ def sweep_kmeans(
 
     The first k gets `n_init` k-means++ starts; every next k starts once from the previous
     solution with one centre added at the row farthest from its centroid (weighted), which costs
-    one run instead of `n_init`. Stability is Hennig's bootstrap on a seeded sample of at most
-    STABILITY_SAMPLE rows.
+    one run instead of `n_init`. Stability is Hennig's bootstrap on at most STABILITY_ROWS rows
+    (a seeded sample).
     """
-    sample = _stability_rows(weights.size, seed)
+    sample = stability_rows(weights.size, seed)
     points: list[SweepPoint] = []
     clusterings: dict[int, Clustering] = {}
     previous: Clustering | None = None
@@ -94,12 +93,6 @@ def sweep_kmeans(
         previous = clustering
     k_best, reason = recommend_k(points)
     return Sweep(tuple(points), k_best, reason, resamples, int(sample.size)), clusterings
-
-
-def _stability_rows(n: int, seed: int) -> np.ndarray:
-    if n <= STABILITY_SAMPLE:
-        return np.arange(n)
-    return np.sort(np.random.default_rng(seed).choice(n, STABILITY_SAMPLE, replace=False))
 
 
 def recommend_k(points: Sequence[SweepPoint]) -> tuple[int, str]:

@@ -86,6 +86,8 @@ def render_run_site(
         "quality": result.quality,
         "with_doc_pages": with_doc_pages,
         "doc_page_cap": DOC_PAGE_CAP,
+        "stability_mean": result.stability.mean,
+        "resamples": result.stability.resamples,
     }
     cards = [_card(c, result) for c in result.clusters]
     _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
@@ -148,6 +150,9 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "bar": round(100 * cluster.share / largest, 1),
         "terms": [t.term for t in cluster.chi2_terms[:8]],
         "silhouette": cluster.silhouette,
+        "stability": cluster.stability,
+        "stability_reading": cluster.stability_reading,
+        "stability_class": "stab-" + cluster.stability_reading.split(",")[0].replace(" ", "-"),
     }
 
 
