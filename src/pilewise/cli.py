@@ -11,7 +11,8 @@ import typer
 
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions
-from pilewise.pipeline import RunOutcome, compare_runs, run_collection
+from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
+from pilewise.sweep import parse_k_range
 
 app = typer.Typer(
     add_completion=False,
@@ -54,49 +55,115 @@ def _print_outcome(outcome: RunOutcome) -> None:
     typer.echo(str(outcome.index_page))
 
 
+SourceArg = Annotated[Path, typer.Argument(help="A folder (read recursively) or one table file.")]
+NameOption = Annotated[str, typer.Option("--name", help="Folder name; default from the method and k.")]
+TextColumn = Annotated[str | None, typer.Option("--text-column", help="Table column holding the text.")]
+TitleColumn = Annotated[str | None, typer.Option("--title-column", help="Table column holding titles.")]
+IdColumn = Annotated[str | None, typer.Option("--id-column", help="Table column holding document ids.")]
+DateColumn = Annotated[str | None, typer.Option("--date-column", help="Table column holding dates.")]
+StopWords = Annotated[Path | None, typer.Option("--stop-words", help="Extra stop words, one per line.")]
+Stem = Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")]
+PhrasesInSpace = Annotated[bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases.")]
+LsaComponents = Annotated[int, typer.Option("--lsa-components", help="LSA dimensions; 0 turns LSA off.")]
+MinDf = Annotated[int | None, typer.Option("--min-df", help="Drop terms in fewer documents; default by size.")]
+MaxDf = Annotated[float, typer.Option("--max-df", help="Drop terms in a larger share of documents.")]
+Method = Annotated[str, typer.Option("--method", help="kmeans, or ward (a tree cut at k).")]
+Resamples = Annotated[int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability.")]
+MaxFileMb = Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")]
+MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")]
+KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
+
+
+def parse_k(text: str) -> tuple[int, bool]:
+    """'8' -> (8, False); 'auto' -> (0, True)."""
+    if text.strip().lower() == "auto":
+        return 0, True
+    if not text.strip().isdigit():
+        raise PilewiseError(f"--k {text!r} is neither a number of clusters nor 'auto'; pass --k 8 or --k auto")
+    return int(text), False
+
+
+def parse_range(text: str, flag: str) -> tuple[int, int]:
+    try:
+        return parse_k_range(text)
+    except ValueError as err:
+        raise PilewiseError(f"{flag} {err}".replace(f"{flag} k range", flag)) from None
+
+
 @app.command()
 @user_errors
 def run(
-    source: Annotated[Path, typer.Argument(help="A folder (read recursively) or one table file.")],
-    k: Annotated[int, typer.Option("--k", help="Number of clusters (2 <= k < distinct documents).")],
+    source: SourceArg,
+    k: Annotated[str, typer.Option("--k", help="Number of clusters (2 <= k < distinct documents), or auto.")],
     out: OutOption = Path("pilewise-site"),
     seed: SeedOption = 0,
-    name: Annotated[str, typer.Option("--name", help="Run folder name; default k<K>.")] = "",
-    text_column: Annotated[str | None, typer.Option("--text-column", help="Table column holding the text.")] = None,
-    title_column: Annotated[str | None, typer.Option("--title-column", help="Table column holding titles.")] = None,
-    id_column: Annotated[str | None, typer.Option("--id-column", help="Table column holding document ids.")] = None,
-    date_column: Annotated[str | None, typer.Option("--date-column", help="Table column holding dates.")] = None,
-    stop_words: Annotated[
-        Path | None, typer.Option("--stop-words", help="Extra stop words, one per line.")
-    ] = None,
-    stem: Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")] = False,
-    phrases_in_space: Annotated[
-        bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases (slower).")
-    ] = False,
-    lsa_components: Annotated[
-        int, typer.Option("--lsa-components", help="LSA dimensions before clustering; 0 turns LSA off.")
-    ] = 100,
-    min_df: Annotated[
-        int | None, typer.Option("--min-df", help="Drop terms in fewer documents; default grows with size.")
-    ] = None,
-    max_df: Annotated[float, typer.Option("--max-df", help="Drop terms in a larger share of documents.")] = 0.5,
-    resamples: Annotated[
-        int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability (more: slower, firmer).")
-    ] = 20,
-    max_file_mb: Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")] = 100.0,
-    max_doc_chars: Annotated[
-        int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")
-    ] = 1_000_000,
+    name: NameOption = "",
+    method: Method = "kmeans",
+    k_range: KRange = "2:20",
+    text_column: TextColumn = None,
+    title_column: TitleColumn = None,
+    id_column: IdColumn = None,
+    date_column: DateColumn = None,
+    stop_words: StopWords = None,
+    stem: Stem = False,
+    phrases_in_space: PhrasesInSpace = False,
+    lsa_components: LsaComponents = 100,
+    min_df: MinDf = None,
+    max_df: MaxDf = 0.5,
+    resamples: Resamples = 20,
+    max_file_mb: MaxFileMb = 100.0,
+    max_doc_chars: MaxDocChars = 1_000_000,
     quiet: QuietOption = False,
 ) -> None:
-    """Cluster SOURCE into K clusters and write the run's site and exports."""
+    """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
+    k_value, k_auto = parse_k(k)
+    k_min, k_max = parse_range(k_range, "--k-range")
     options = RunOptions(
-        source=source, k=k, out=out, seed=seed, name=name, text_column=text_column, title_column=title_column,
-        id_column=id_column, date_column=date_column, stop_words_file=stop_words, stem=stem,
-        bigrams_in_space=phrases_in_space, lsa_components=lsa_components, min_df=min_df, max_df=max_df,
-        max_file_mb=max_file_mb, max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
+        source=source, k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max, method=method, out=out, seed=seed,
+        name=name, text_column=text_column, title_column=title_column, id_column=id_column,
+        date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
+        lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
+        max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
     )
     _print_outcome(run_collection(options))
+
+
+@app.command()
+@user_errors
+def sweep(
+    source: SourceArg,
+    k: Annotated[str, typer.Option("--k", help="Range of cluster counts, LOW:HIGH.")] = "2:20",
+    out: OutOption = Path("pilewise-site"),
+    seed: SeedOption = 0,
+    name: NameOption = "",
+    method: Method = "kmeans",
+    text_column: TextColumn = None,
+    title_column: TitleColumn = None,
+    id_column: IdColumn = None,
+    date_column: DateColumn = None,
+    stop_words: StopWords = None,
+    stem: Stem = False,
+    phrases_in_space: PhrasesInSpace = False,
+    lsa_components: LsaComponents = 100,
+    min_df: MinDf = None,
+    max_df: MaxDf = 0.5,
+    resamples: Resamples = 10,
+    max_file_mb: MaxFileMb = 100.0,
+    max_doc_chars: MaxDocChars = 1_000_000,
+    quiet: QuietOption = False,
+) -> None:
+    """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
+    k_min, k_max = parse_range(k, "--k")
+    options = RunOptions(
+        source=source, k=0, k_auto=True, k_min=k_min, k_max=k_max, method=method, out=out, seed=seed,
+        name=name, text_column=text_column, title_column=title_column, id_column=id_column,
+        date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
+        lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
+        max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
+    )
+    outcome = sweep_collection(options)
+    typer.echo(f"recommended {outcome.reason}", err=True)
+    typer.echo(str(outcome.page))
 
 
 @app.command()

@@ -17,11 +17,12 @@ from typing import TYPE_CHECKING, Any
 
 from pilewise.model import ClusterSummary, TermScore
 from pilewise.stability import STABILITY_ROWS
+from pilewise.sweep import RECOMMENDATION_RULE, Sweep
 
 if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
 
-EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv")
+EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv")
 LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "beautifulsoup4",
              "charset-normalizer", "typer")
 
@@ -32,6 +33,67 @@ def write_exports(folder: Path, result: RunResult) -> None:
     _write_json(folder / "clusters.json", clusters_document(result))
     _write_json(folder / "manifest.json", manifest_document(result))
     write_ingest_report(folder / "ingest-report.csv", result)
+    _write_json(folder / "levels.json", levels_document(result))
+    write_cuts(folder / "cuts.csv", result)
+    if result.sweep is not None:
+        _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
+
+
+def levels_document(result: RunResult) -> dict[str, Any]:
+    """The tree's cuts for a range of k: clusters with size and headline, and how each k splits at k + 1."""
+    levels = result.levels
+    docs = result.collection.documents
+    first = result.collection.first_doc_of_text
+    return {
+        "run": result.name,
+        "tree": levels.tree_method,
+        "k_range": [levels.k_min, levels.k_max],
+        "levels": [
+            {"k": k, "clusters": [
+                {"id": c.cluster_id, "size": c.size, "headline": docs[first[c.exemplar_text]].title,
+                 "exemplar_doc_id": docs[first[c.exemplar_text]].doc_id, "run_clusters": list(c.run_clusters)}
+                for c in clusters]}
+            for k, clusters in sorted(levels.clusters.items())
+        ],
+        "splits": [
+            {"k": s.k, "parent": s.parent, "parent_size": s.parent_size,
+             "children": [{"id": c, "size": n} for c, n in s.children],
+             "carried": [{"from": a, "to": b} for a, b in s.carried]}
+            for s in levels.splits
+        ],
+    }
+
+
+def write_cuts(path: Path, result: RunResult) -> None:
+    """One row per document: its cluster at every cut of the tree (columns k2, k3, ...)."""
+    cuts = result.levels.cuts
+    ks = sorted(cuts)
+    text_of_doc = result.collection.text_of_doc
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
+        for i, doc in enumerate(result.collection.documents):
+            t = text_of_doc[i]
+            writer.writerow([doc.doc_id, *(int(cuts[k][t]) for k in ks)])
+
+
+def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
+    """Every figure of a sweep over k, and the recommended k with the rule's reason."""
+    return {
+        "run": name,
+        "recommended_k": sweep.recommended_k,
+        "reason": sweep.reason,
+        "rule": RECOMMENDATION_RULE,
+        "stability_resamples": sweep.resamples,
+        "stability_rows": sweep.stability_rows,
+        "warm_start_kept": list(sweep.warm_start_kept),
+        "points": [
+            {"k": p.k, "silhouette_cosine": _round(p.silhouette), "calinski_harabasz": _round(p.calinski_harabasz, 4),
+             "davies_bouldin": _round(p.davies_bouldin), "stability_mean": _round(p.stability_mean, 4),
+             "stability_min": _round(p.stability_min, 4), "inertia": _round(p.inertia, 4)}
+            for p in sweep.points
+        ],
+    }
 
 
 def write_assignments(path: Path, result: RunResult) -> None:
@@ -108,8 +170,8 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
 def clusters_document(result: RunResult) -> dict[str, Any]:
     q = result.quality
     return {
-        "run": result.options.run_name,
-        "k": result.options.k,
+        "run": result.name,
+        "k": result.k,
         "documents": len(result.collection.documents),
         "quality": {
             "silhouette_cosine": _round(q.silhouette),
@@ -149,9 +211,12 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
     ingested = result.ingested
     return {
         "tool": "pilewise",
-        "run": result.options.run_name,
+        "run": result.name,
         "created": build_time(),
-        "method": "k-means",
+        "method": "k-means" if result.options.method == "kmeans" else "Ward",
+        "k": result.k,
+        "k_chosen_by": "sweep" if result.sweep is not None else "user",
+        "tree": result.levels.tree_method,
         "seed": result.options.seed,
         "parameters": parameters,
         "input": {

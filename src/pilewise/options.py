@@ -20,6 +20,9 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 }
 
 
+METHODS = ("kmeans", "ward")
+
+
 @dataclass(frozen=True)
 class RunOptions:
     """Every setting of one run; the defaults are the measured ones (docs/vectorizing.md).
@@ -39,8 +42,12 @@ class RunOptions:
     """
 
     source: Path
-    k: int
+    k: int  # 0 with k_auto
     out: Path = Path("pilewise-site")
+    k_auto: bool = False
+    k_min: int = 2
+    k_max: int = 20
+    method: str = "kmeans"
     seed: int = 0
     name: str = ""
     text_column: str | None = None
@@ -62,9 +69,12 @@ class RunOptions:
     quiet: bool = False
     extra: dict[str, str] = field(default_factory=dict)
 
-    @property
-    def run_name(self) -> str:
-        return self.name or f"k{self.k}"
+    def run_name(self, k: int | None = None) -> str:
+        """The run's folder name: --name, else from the method and k (k5, ward-k5)."""
+        if self.name:
+            return self.name
+        prefix = "ward-" if self.method == "ward" else ""
+        return f"{prefix}k{k if k is not None else self.k}"
 
 
 def validate(options: RunOptions) -> None:
@@ -72,13 +82,19 @@ def validate(options: RunOptions) -> None:
     problems: list[str] = []
     for attr, (low, high, flag) in LIMITS.items():
         value = getattr(options, attr)
+        if attr == "k" and options.k_auto:
+            continue
         if not low <= value <= high:
             problems.append(f"{flag}={value} is out of range; use a value from {low:g} to {high:g}")
     if not 0.0 < options.max_df <= 1.0:
         problems.append(f"--max-df={options.max_df} is out of range; use a share above 0 and at most 1")
     if options.min_df is not None and options.min_df < 1:
         problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
-    name = options.run_name
+    if options.method not in METHODS:
+        problems.append(f"--method {options.method!r} is not known; use one of: {', '.join(METHODS)}")
+    if not 2 <= options.k_min < options.k_max <= LIMITS["k"][1]:
+        problems.append(f"k range {options.k_min}:{options.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}")
+    name = options.run_name()
     if not name.replace("-", "").replace("_", "").replace(".", "").isalnum() or name.startswith("."):
         problems.append(f"--name {name!r} is not a safe folder name; use letters, digits, '-', '_' or '.'")
     if not options.source.exists():
@@ -95,6 +111,12 @@ def validate(options: RunOptions) -> None:
             )
     if problems:
         raise PilewiseError("; ".join(problems))
+
+
+def check_k_range(k_min: int, k_max: int, distinct_documents: int) -> tuple[int, int]:
+    """Clip a k range to the collection: HIGH at most distinct documents - 1; LOW must fit."""
+    check_k(k_min, distinct_documents)
+    return k_min, min(k_max, distinct_documents - 1)
 
 
 def check_k(k: int, distinct_documents: int) -> None:

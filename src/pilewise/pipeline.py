@@ -15,18 +15,28 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, kmeans_clusters
+from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters
 from pilewise.describe import Collection, describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.exports import write_exports
+from pilewise.hierarchy import Tree, cut_tree, ward_tree
+from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
-from pilewise.options import RunOptions, check_k, validate
+from pilewise.options import RunOptions, check_k, check_k_range, validate
 from pilewise.progress import Reporter
 from pilewise.quality import assess
 from pilewise.reading import ReadLimits, read_source
 from pilewise.site import render_root_index, render_run_site
-from pilewise.stability import StabilityResult, bootstrap_stability, kmeans_cluster_fn, stability_rows
+from pilewise.stability import (
+    ClusterFn,
+    StabilityResult,
+    bootstrap_stability,
+    kmeans_cluster_fn,
+    stability_rows,
+)
+from pilewise.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
 from pilewise.vectors import Vectorized, VectorSettings, vectorize
@@ -37,6 +47,8 @@ class RunResult:
     """Everything computed for one run, ready to be written."""
 
     options: RunOptions
+    name: str
+    k: int
     ingested: Ingested
     collection: Collection
     vectors: Vectorized
@@ -45,6 +57,8 @@ class RunResult:
     stability: StabilityResult
     clusters: tuple[ClusterSummary, ...]
     analyzer: Analyzer
+    levels: Levels
+    sweep: Sweep | None
     fingerprint: str
     timings: dict[str, float]
 
@@ -66,7 +80,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     reporter = reporter or Reporter(quiet=options.quiet)
     result = compute_run(options, reporter)
     with reporter.stage("writing site"):
-        run_folder = options.out / "runs" / options.run_name
+        run_folder = options.out / "runs" / result.name
         _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
         root_index = render_root_index(options.out)
     return RunOutcome(
@@ -77,6 +91,38 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
         skipped=len(result.ingested.skipped()),
         clusters=len(result.clusters),
     )
+
+
+@dataclass(frozen=True)
+class SweepOutcome:
+    """Where a sweep was written and what it recommends."""
+
+    page: Path
+    recommended_k: int
+    reason: str
+
+
+def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> SweepOutcome:
+    """Vectorize once, score every k of the range, and write OUT/sweeps/NAME/ (page, curves, sweep.json)."""
+    from pilewise.site import render_sweep
+
+    reporter = reporter or Reporter(quiet=options.quiet)
+    validate(options)
+    prepared = prepare_collection(options, reporter, k_needed=options.k_min)
+    k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
+    with reporter.stage("sweeping k"):
+        tree = ward_tree(_dense(prepared.vectors.space), prepared.weights, seed=options.seed) \
+            if options.method == "ward" else None
+        result, _ = sweep_k(options, prepared, k_min, k_max, tree, reporter)
+    name = options.name or f"{'ward-' if options.method == 'ward' else ''}k{k_min}-{k_max}"
+    folder = options.out / "sweeps" / name
+
+    def write(staging: Path) -> None:
+        render_sweep(staging, result, name=name, in_run=False, source=str(options.source), method=options.method)
+
+    _write_atomically(folder, write)
+    render_root_index(options.out)
+    return SweepOutcome(folder / "index.html", result.recommended_k, result.reason)
 
 
 def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
@@ -98,9 +144,19 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
     return render_comparison(out, document)
 
 
-def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
-    """All computation of a run, no writing."""
-    validate(options)
+@dataclass(frozen=True)
+class Prepared:
+    """A read, de-duplicated and vectorized collection: the work every k shares."""
+
+    ingested: Ingested
+    collection: Collection
+    analyzer: Analyzer
+    vectors: Vectorized
+    weights: np.ndarray
+
+
+def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int) -> Prepared:
+    """Read SOURCE, group exact duplicates, check k against the distinct texts, vectorize."""
     with reporter.stage("reading"):
         limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
         columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
@@ -120,7 +176,7 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
             f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
             f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
         )
-    check_k(options.k, int(collection.copies.size))
+    check_k(k_needed, int(collection.copies.size))
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
     with reporter.stage("vectorizing"):
         texts = [collection.documents[i].text for i in collection.first_doc_of_text]
@@ -132,25 +188,93 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
         )
-    weights = collection.copies.astype(float)
+    return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float))
+
+
+def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
+    """All computation of a run, no writing."""
+    validate(options)
+    prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k)
+    space, weights = prepared.vectors.space, prepared.weights
+    distinct = int(weights.size)
+    k_min, k_max = check_k_range(options.k_min, options.k_max, distinct)
+    sweep: Sweep | None = None
     with reporter.stage("clustering"):
-        clustering = kmeans_clusters(vectors.space, weights, k=options.k, seed=options.seed, n_init=options.n_init)
+        tree = ward_tree(_dense(space), weights, seed=options.seed) if options.method == "ward" else None
+        if options.k_auto:
+            sweep, clusterings = sweep_k(options, prepared, k_min, k_max, tree, reporter)
+            k = sweep.recommended_k
+            reporter.say(f"recommended {sweep.reason}")
+            clustering = clusterings[k]
+        else:
+            k = options.k
+            clustering = _cluster_at(options, prepared, k, tree)
     with reporter.stage("assessing"):
-        quality = assess(vectors.space, clustering.labels, k=options.k, seed=options.seed)
-        rows = stability_rows(clustering.labels.size, options.seed)
+        quality = assess(space, clustering.labels, k=k, seed=options.seed)
+        rows = stability_rows(distinct, options.seed)
         stability = bootstrap_stability(
-            vectors.space[rows], weights[rows], clustering.labels[rows], k=options.k, resamples=options.resamples,
-            seed=options.seed, cluster_fn=kmeans_cluster_fn(options.k),
+            space[rows], weights[rows], clustering.labels[rows], k=k, resamples=options.resamples,
+            seed=options.seed, cluster_fn=_stability_fn(options, k),
         )
     with reporter.stage("describing"):
         clusters = describe_clusters(
-            collection, vectors, clustering, quality, analyzer, top_terms=options.top_terms, stability=stability
+            prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
+            top_terms=options.top_terms, stability=stability,
         )
+        levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
+        levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
+                              k_max=k_max if tree is not None else k, run_k=k)
     return RunResult(
-        options=options, ingested=ingested, collection=collection, vectors=vectors, clustering=clustering,
-        quality=quality, stability=stability, clusters=clusters, analyzer=analyzer,
-        fingerprint=fingerprint(ingested.documents), timings=reporter.timings,
+        options=options, name=options.run_name(k), k=k, ingested=prepared.ingested,
+        collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
+        stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
+        fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,
     )
+
+
+def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
+    if sp.issparse(space):
+        raise PilewiseError("--method ward needs the LSA space; do not pass --lsa-components 0 with it")
+    return np.asarray(space)
+
+
+def _cluster_at(options: RunOptions, prepared: Prepared, k: int, tree: Tree | None) -> Clustering:
+    space, weights = prepared.vectors.space, prepared.weights
+    if tree is not None:
+        return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
+    return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=options.n_init)
+
+
+def _stability_fn(options: RunOptions, k: int, cache: dict[int, Tree] | None = None) -> ClusterFn:
+    """Re-clustering of a resample with the run's own method; Ward trees are cached per resample seed."""
+    if options.method != "ward":
+        return kmeans_cluster_fn(k)
+    trees = cache if cache is not None else {}
+
+    def ward_cut(rows: np.ndarray | sp.csr_matrix, weights: np.ndarray, seed: int) -> np.ndarray:
+        if seed not in trees:
+            trees[seed] = ward_tree(np.asarray(rows), weights, seed=seed)
+        return cut_tree(trees[seed], min(k, trees[seed].n_leaves))
+
+    return ward_cut
+
+
+def sweep_k(
+    options: RunOptions, prepared: Prepared, k_min: int, k_max: int, tree: Tree | None, reporter: Reporter
+) -> tuple[Sweep, dict[int, Clustering]]:
+    """Quality and stability for every k of the range, sharing the vectors (and the tree, for Ward)."""
+    space, weights = prepared.vectors.space, prepared.weights
+    ks = list(range(k_min, k_max + 1))
+    say = (lambda k: reporter.say(f"k={k}")) if not reporter.quiet else None
+    if tree is None:
+        return sweep_kmeans(space, weights, ks, seed=options.seed, n_init=options.n_init,
+                            resamples=min(options.resamples, SWEEP_RESAMPLES), on_k=say)
+    cache: dict[int, Tree] = {}
+    k_max = min(k_max, tree.n_leaves)
+    clusterings = {k: _cluster_at(options, prepared, k, tree) for k in range(k_min, k_max + 1)}
+    return sweep_clusterings(space, weights, clusterings, seed=options.seed,
+                             resamples=min(options.resamples, SWEEP_RESAMPLES),
+                             cluster_fn_for=lambda k: _stability_fn(options, k, cache), on_k=say), clusterings
 
 
 def collect_distinct(documents: tuple[Document, ...]) -> Collection:

@@ -3,17 +3,24 @@
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, farthest_row, kmeans_clusters
 from pilewise.quality import assess
-from pilewise.stability import bootstrap_stability, kmeans_cluster_fn, stability_rows
+from pilewise.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn, stability_rows
 
+SWEEP_RESAMPLES = 10  # bootstrap resamples per k inside a sweep (a run's own stability uses --resamples)
 STABLE = 0.75  # Hennig's clusterboot documentation: ">= 0.75 valid, stable"
 PATTERN = 0.6  # same source: "0.6-0.75 indicates a pattern"
+
+
+RECOMMENDATION_RULE = (
+    "keep the k whose mean cluster stability is at least 0.75 (Hennig's 'stable'); if none, those at least 0.6; "
+    "if none, all; among them take the highest cosine silhouette, ties to the smaller k"
+)
 
 
 @dataclass(frozen=True)
@@ -38,6 +45,7 @@ class Sweep:
     reason: str
     resamples: int
     stability_rows: int
+    warm_start_kept: tuple[int, ...] = ()
 
 
 def parse_k_range(text: str) -> tuple[int, int]:
@@ -61,38 +69,61 @@ def sweep_kmeans(
     resamples: int,
     on_k: Callable[[int], None] | None = None,
 ) -> tuple[Sweep, dict[int, Clustering]]:
-    """k-means for each k, warm-started from the previous k's centroids plus its farthest row.
+    """k-means for each k: `n_init` k-means++ starts, plus one warm start from the previous k.
 
-    The first k gets `n_init` k-means++ starts; every next k starts once from the previous
-    solution with one centre added at the row farthest from its centroid (weighted), which costs
-    one run instead of `n_init`. Stability is Hennig's bootstrap on at most STABILITY_ROWS rows
-    (a seeded sample).
+    The warm start takes the previous k's centroids and adds a centre at the row farthest from its
+    centroid (weighted); it is kept only when its inertia is lower than the best fresh start's, so
+    it can help and never hurts (on the demo collection it rarely wins: see docs/performance.md).
     """
-    sample = stability_rows(weights.size, seed)
-    points: list[SweepPoint] = []
     clusterings: dict[int, Clustering] = {}
     previous: Clustering | None = None
+    warm_wins: dict[int, bool] = {}
     for k in ks:
-        if on_k:
-            on_k(k)
-        init = None
+        fresh = kmeans_clusters(space, weights, k=k, seed=seed, n_init=n_init)
+        best, warm_wins[k] = fresh, False
         if previous is not None and previous.centroids.shape[0] == k - 1:
             new_row = farthest_row(space, previous, weights)
             extra = space[new_row].toarray() if sp.issparse(space) else np.asarray(space[new_row : new_row + 1])
             init = np.vstack([previous.centroids, extra.reshape(1, -1)])
-        clustering = kmeans_clusters(space, weights, k=k, seed=seed, n_init=n_init, init=init)
-        clusterings[k] = clustering
+            warm = kmeans_clusters(space, weights, k=k, seed=seed, n_init=1, init=init)
+            if warm.inertia < fresh.inertia:
+                best, warm_wins[k] = warm, True
+        previous = clusterings[k] = best
+    sweep = sweep_clusterings(space, weights, clusterings, seed=seed, resamples=resamples,
+                              cluster_fn_for=kmeans_cluster_fn, on_k=on_k)
+    return replace(sweep, warm_start_kept=tuple(k for k, won in warm_wins.items() if won)), clusterings
+
+
+def sweep_clusterings(
+    space: np.ndarray | sp.csr_matrix,
+    weights: np.ndarray,
+    clusterings: dict[int, Clustering],
+    *,
+    seed: int,
+    resamples: int,
+    cluster_fn_for: Callable[[int], ClusterFn],
+    on_k: Callable[[int], None] | None = None,
+) -> Sweep:
+    """Silhouette, Calinski-Harabasz, Davies-Bouldin and mean stability of each clustering; recommend one k.
+
+    Stability is Hennig's bootstrap on at most STABILITY_ROWS rows (a seeded sample), re-clustering
+    each resample with ``cluster_fn_for(k)``.
+    """
+    sample = stability_rows(weights.size, seed)
+    points: list[SweepPoint] = []
+    for k, clustering in sorted(clusterings.items()):
+        if on_k:
+            on_k(k)
         quality = assess(space, clustering.labels, k=k, seed=seed)
         stability = bootstrap_stability(
             space[sample], weights[sample], clustering.labels[sample], k=k, resamples=resamples, seed=seed,
-            cluster_fn=kmeans_cluster_fn(k),
+            cluster_fn=cluster_fn_for(k),
         )
-        values = [c.mean_jaccard for c in stability.clusters]
+        values = [c.mean_jaccard for c in stability.clusters if not np.isnan(c.mean_jaccard)]
         points.append(SweepPoint(k, quality.silhouette, quality.calinski_harabasz, quality.davies_bouldin,
                                  float(np.mean(values)), float(np.min(values)), clustering.inertia))
-        previous = clustering
     k_best, reason = recommend_k(points)
-    return Sweep(tuple(points), k_best, reason, resamples, int(sample.size)), clusterings
+    return Sweep(tuple(points), k_best, reason, resamples, int(sample.size))
 
 
 def recommend_k(points: Sequence[SweepPoint]) -> tuple[int, str]:

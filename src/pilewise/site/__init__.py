@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
 from pilewise.model import ClusterSummary, Document
+from pilewise.sweep import Sweep
 
 if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
@@ -76,10 +77,10 @@ def render_run_site(
     docs = result.collection.documents
     with_doc_pages = len(docs) <= DOC_PAGE_CAP
     common = {
-        "run": result.options.run_name,
+        "run": result.name,
         "caution": CAUTION,
         "css": STYLESHEET,
-        "k": result.options.k,
+        "k": result.k,
         "documents": len(docs),
         "distinct": int(result.collection.copies.size),
         "skipped": len(result.ingested.skipped()),
@@ -87,9 +88,13 @@ def render_run_site(
         "with_doc_pages": with_doc_pages,
         "doc_page_cap": DOC_PAGE_CAP,
         "stability_mean": result.stability.mean,
+        "has_sweep": result.sweep is not None,
         "resamples": result.stability.resamples,
     }
     cards = [_card(c, result) for c in result.clusters]
+    _render_levels(folder, result, env, common)
+    if result.sweep is not None:
+        render_sweep(folder, result.sweep, name=result.name, in_run=True)
     _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
         common, entries=result.ingested.entries, notes=result.ingested.notes,
@@ -128,6 +133,58 @@ def render_run_site(
                 common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id), distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../"))
+
+
+def _render_levels(folder: Path, result: RunResult, env: Environment, common: dict[str, Any]) -> None:
+    """levels.html and dendrogram.svg: the tree's cuts for a range of k and how each splits at the next."""
+    levels = result.levels
+    docs = result.collection.documents
+    first = result.collection.first_doc_of_text
+    (folder / "dendrogram.svg").write_text(levels.dendrogram, encoding="utf-8")
+
+    def headline(k: int, cluster: int) -> str:
+        return str(docs[first[levels.clusters[k][cluster].exemplar_text]].title)
+
+    splits = [
+        {"k": s.k, "parent": s.parent, "parent_size": s.parent_size, "parent_headline": headline(s.k, s.parent),
+         "children": [{"id": c, "size": n, "headline": headline(s.k + 1, c)} for c, n in s.children]}
+        for s in levels.splits
+    ]
+    rows = [
+        {"k": k, "sizes": ", ".join(f"{c.size:,}" for c in clusters),
+         "clusters": [{"id": c.cluster_id, "size": c.size, "headline": headline(k, c.cluster_id),
+                       "run_clusters": [{"id": r, "href": cluster_page_name(r)} for r in c.run_clusters]}
+                      for c in clusters]}
+        for k, clusters in sorted(levels.clusters.items())
+    ]
+    _write(folder / "levels.html", env.get_template("levels.html").render(
+        common, tree_method=levels.tree_method, k_min=levels.k_min, k_max=levels.k_max, splits=splits,
+        levels=rows, centroid_tree=result.options.method != "ward", has_sweep=result.sweep is not None, up=""))
+
+
+def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source: str = "", method: str = "") -> Path:
+    """sweep.html (or index.html for a stand-alone sweep), sweep-curves.svg and, stand-alone, sweep.json."""
+    from pilewise.exports import sweep_document
+    from pilewise.plots import sweep_curves_svg
+    from pilewise.sweep import RECOMMENDATION_RULE
+
+    folder.mkdir(parents=True, exist_ok=True)
+    ks = [p.k for p in sweep.points]
+    svg = sweep_curves_svg(ks, [
+        ("Silhouette (cosine)", [p.silhouette for p in sweep.points], "higher is better"),
+        ("Calinski-Harabasz", [p.calinski_harabasz for p in sweep.points], "higher is better"),
+        ("Davies-Bouldin", [p.davies_bouldin for p in sweep.points], "lower is better"),
+        ("Mean stability", [p.stability_mean for p in sweep.points], "higher is better"),
+    ], sweep.recommended_k)
+    (folder / "sweep-curves.svg").write_text(svg, encoding="utf-8")
+    if not in_run:
+        _copy_stylesheet(folder)
+        (folder / "sweep.json").write_text(json.dumps(sweep_document(sweep, name), indent=2) + "\n", encoding="utf-8")
+    page = folder / ("sweep.html" if in_run else "index.html")
+    _write(page, _environment().get_template("sweep.html").render(
+        run=name, sweep=sweep, rule=RECOMMENDATION_RULE, in_run=in_run, source=source, method=method,
+        caution=CAUTION, css=STYLESHEET, up="../../"))
+    return page
 
 
 def _kwic_groups(cluster: ClusterSummary, with_pages: bool) -> list[dict[str, Any]]:
@@ -304,8 +361,17 @@ def render_root_index(out: Path) -> Path:
             "fingerprint": manifest.get("input", {}).get("fingerprint", ""),
         })
     comparisons = _auto_comparisons(out, runs)
+    sweeps = []
+    sweeps_folder = out / "sweeps"
+    for folder in sorted(sweeps_folder.iterdir()) if sweeps_folder.is_dir() else []:
+        try:
+            found = json.loads((folder / "sweep.json").read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        sweeps.append({"name": folder.name, "href": f"sweeps/{folder.name}/index.html",
+                       "k": found.get("recommended_k"), "reason": found.get("reason", "")})
     _copy_stylesheet(out)
     page = out / "index.html"
     _write(page, env.get_template("root_index.html").render(
-        runs=runs, comparisons=comparisons, caution=CAUTION, css=STYLESHEET, up=""))
+        runs=runs, comparisons=comparisons, sweeps=sweeps, caution=CAUTION, css=STYLESHEET, up=""))
     return page
