@@ -41,6 +41,7 @@ from __future__ import annotations
 
 import argparse
 import csv
+import hashlib
 import json
 import os
 import platform
@@ -51,6 +52,7 @@ import sys
 import tempfile
 import time
 from dataclasses import asdict, dataclass, field
+from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any
@@ -332,6 +334,8 @@ def machine() -> dict[str, Any]:
         except PackageNotFoundError:
             versions[name] = "not installed"
     return {
+        "measured_at": datetime.now(UTC).replace(microsecond=0).isoformat(),
+        "pilewise_source_sha256": source_fingerprint(),
         "cpu": cpu,
         "logical_cores": os.cpu_count(),
         "usable_cores": usable,
@@ -339,6 +343,17 @@ def machine() -> dict[str, Any]:
         "os": platform.platform(),
         "versions": versions,
     }
+
+
+def source_fingerprint() -> str:
+    """SHA-256 over the installed pilewise package's .py files (names and contents), to tie figures to code."""
+    import pilewise
+
+    digest = hashlib.sha256()
+    root = Path(pilewise.__file__).resolve().parent
+    for path in sorted(root.rglob("*.py")):
+        digest.update(path.relative_to(root).as_posix().encode() + b"\0" + path.read_bytes() + b"\0")
+    return digest.hexdigest()[:16]
 
 
 def ratio(a: float, b: float) -> float:
@@ -357,6 +372,7 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
     lines = [
         f"Machine: {info['cpu']}, {info['usable_cores']} usable cores ({info['logical_cores']} logical), "
         f"{info['ram_gb']} GB RAM, {info['os']}",
+        f"Measured at {info['measured_at']}, pilewise source sha256 {info['pilewise_source_sha256']}",
         "Versions: " + ", ".join(f"{k} {v}" for k, v in info["versions"].items()),
         f"Collection: {n_docs:,} documents, {collection.words:,} words, {collection.bytes / 1e6:.1f} MB CSV, "
         f"{TOPICS} planted topics; min_df={min_df}, max_df={MAX_DF}, k={K}, n_init={N_INIT}",
@@ -472,7 +488,13 @@ def main(argv: list[str] | None = None) -> None:
                 stages_of=stages,
             ))
         out = work / "pilewise-site"
-        run = out / "runs" / f"k{K}"
+
+        def run_folder() -> Path:
+            """The one run folder pilewise wrote (named k20 by default)."""
+            found = [p for p in (out / "runs").iterdir() if p.is_dir() and not p.name.startswith(".")]
+            if len(found) != 1:
+                raise SystemExit(f"expected one run folder under {out / 'runs'}, found {[p.name for p in found]}")
+            return found[0]
         command = [*pilewise_command(), "run", str(collection.csv_path), "--k", str(K), "--out", str(out), "--quiet"]
         size_mb = collection.bytes / 1024 / 1024
         if size_mb > RunOptions.max_file_mb:  # pilewise skips larger files unless told otherwise
@@ -483,16 +505,17 @@ def main(argv: list[str] | None = None) -> None:
         startup, _, _ = run_measured([sys.executable, "-c", "import pilewise.cli"], work / "pilewise-import.log")
 
         def pilewise_stages() -> tuple[dict[str, float], dict[str, Any]]:
+            run = run_folder()
             manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
             files = [p for p in run.rglob("*") if p.is_file()]
-            extra = {"vectors": manifest.get("vectors", {}), "site_files": len(files),
+            extra = {"run_folder": run.name, "vectors": manifest.get("vectors", {}), "site_files": len(files),
                      "site_mb": round(sum(p.stat().st_size for p in files) / 1e6, 1),
                      "startup_and_imports_seconds": round(startup, 3)}
             return manifest["timings_seconds"], extra
 
         results.append(measure(
             "pilewise", command, work, args.repeat,
-            labels_of=lambda: nmi_against(planted, read_labels(run / "assignments.csv", "cluster")),
+            labels_of=lambda: nmi_against(planted, read_labels(run_folder() / "assignments.csv", "cluster")),
             stages_of=pilewise_stages,
             prepare=lambda: shutil.rmtree(out, ignore_errors=True),
         ))

@@ -27,8 +27,8 @@ How to run
     python benchmarks/measure_ward.py                         # 2k..30k both methods, 100k two-stage only
     python benchmarks/measure_ward.py --sizes 2000 5000 --two-stage-only 20000
 
-It prints a Markdown table and writes it, with every figure as JSON, to ``benchmarks/.out/ward.md`` and
-``benchmarks/.out/ward.json``.
+It prints a Markdown table and writes every figure to ``benchmarks/.out/ward.json`` and the table beside it
+as ``ward.md`` (``--out`` changes the JSON path; the Markdown goes beside it).
 """
 
 from __future__ import annotations
@@ -164,6 +164,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--max-seconds", type=float, default=120.0, help="stop growing a method after a slower run")
     parser.add_argument("--max-gb", type=float, default=8.0, help="skip full Ward when predicted memory exceeds it")
     parser.add_argument("--timeout", type=float, default=900.0, help="kill a single run after this many seconds")
+    parser.add_argument("--out", type=Path, default=OUT_DIR / "ward.json", help="JSON output; Markdown beside it")
     parser.add_argument("--child", choices=["full", "two-stage"], help=argparse.SUPPRESS)
     parser.add_argument("--n", type=int, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
@@ -198,9 +199,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     )
     markdown = f"{header}\n\n{table(rows)}\n"
     print(markdown)
-    OUT_DIR.mkdir(exist_ok=True)
-    (OUT_DIR / "ward.md").write_text(markdown, encoding="utf-8")
-    (OUT_DIR / "ward.json").write_text(json.dumps({"header": header, "rows": rows}, indent=1), encoding="utf-8")
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.write_text(json.dumps({"header": header, "rows": rows}, indent=1), encoding="utf-8")
+    args.out.with_suffix(".md").write_text(markdown, encoding="utf-8")
     return 0
 
 

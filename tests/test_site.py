@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import pytest
@@ -46,7 +47,9 @@ def _pages(site: Path) -> list[Path]:
 def test_hostile_text_is_inert_in_every_page(hostile_site: Path) -> None:
     for page in _pages(hostile_site):
         soup = BeautifulSoup(page.read_text(encoding="utf-8"), "html.parser")
-        assert soup.find_all(["script", "iframe", "img", "object", "embed"]) == [], page
+        assert soup.find_all(["script", "iframe", "object", "embed"]) == [], page
+        # the only images are pilewise's own figures, next to the page
+        assert {img["src"] for img in soup.find_all("img")} <= {"dendrogram.svg", "sweep-curves.svg"}, page
         for tag in soup.find_all(True):
             assert not any(name.lower().startswith("on") for name in tag.attrs), (page, tag.name)
             href = str(tag.get("href", ""))
@@ -54,6 +57,15 @@ def test_hostile_text_is_inert_in_every_page(hostile_site: Path) -> None:
     document_pages = sorted((hostile_site / "runs" / "k3" / "docs").glob("*.html"))
     text = document_pages[0].read_text(encoding="utf-8")
     assert "&lt;script&gt;alert(&#34;t&#34;)&lt;/script&gt;" in text  # shown as text, escaped
+
+
+def test_figures_hold_no_script_and_no_outside_reference(hostile_site: Path) -> None:
+    figures = sorted(hostile_site.rglob("*.svg"))
+    assert figures
+    for figure in figures:
+        text = figure.read_text(encoding="utf-8")
+        assert "<script" not in text.lower() and "alert(" not in text
+        assert not re.search(r"(href|src)=[\"'](?!#)", text), figure
 
 
 def test_pages_forbid_and_make_no_remote_requests(hostile_site: Path) -> None:

@@ -106,7 +106,7 @@ def ward_tree(
     full_limit : int, default FULL_WARD_LIMIT
         Largest number of rows for the full tree.
     groups : int, default TWO_STAGE_GROUPS
-        Number of k-means groups of the two-stage tree; at most ``n_rows // 2`` are used.
+        Number of k-means groups of the two-stage tree; at most ``n_rows // 2`` (and at least 2) are used.
 
     Returns
     -------
@@ -120,7 +120,7 @@ def ward_tree(
     the weights only enter the leaf weights (and so the sizes of clusters).
 
     Two-stage tree (``n_rows > full_limit``): seeded mini-batch k-means (Sculley 2010) with the weights as
-    sample weights puts the rows into ``min(groups, n_rows // 2)`` groups (empty groups are dropped), then
+    sample weights puts the rows into ``min(groups, n_rows // 2)`` groups (at least 2; empty ones are dropped), then
     `weighted_ward` merges the weighted group centroids. This is the "mixed" or hybrid strategy of
     k-means preclustering followed by Ward on the cluster centres (Wong 1982; the ``kk`` argument of
     FactoMineR's ``HCPC``, documented there). Ward's merge cost depends on clusters only through their
@@ -152,7 +152,7 @@ def ward_tree(
         )
     if groups < 2:
         raise ValueError(f"groups={groups} must be at least 2")
-    n_groups = min(groups, n_rows // 2)
+    n_groups = max(2, min(groups, n_rows // 2))
     model = MiniBatchKMeans(n_clusters=n_groups, n_init=1, batch_size=4096, random_state=seed)
     raw_groups = model.fit_predict(space, sample_weight=weights)
     # Groups k-means left empty have no centroid of their own; renumber the rest 0..M-1 in order.

@@ -79,6 +79,9 @@ def build_levels(
         clusters[k] = tuple(level)
         cuts[k] = cut.labels  # numbered by size, the same rule as the run's own clusters
     splits = tuple(split_table(cuts, weights)) if k_max > k_min else ()
-    drawing = dendrogram_svg(tree, top=min(DENDROGRAM_LEAVES, tree.n_leaves),
+    leaf_names = None
+    if tree.n_leaves == run_k:  # a tree over the run's own clusters: name the leaves after them
+        leaf_names = [f"{c} ({round(w):,})" for c, w in enumerate(tree.leaf_weights)]
+    drawing = dendrogram_svg(tree, top=min(DENDROGRAM_LEAVES, tree.n_leaves), labels=leaf_names,
                              cut_k=run_k if run_k <= tree.n_leaves else None)
     return Levels(tree.method, k_min, k_max, cuts, clusters, splits, drawing)

@@ -47,6 +47,6 @@ def sweep_curves_svg(
             ax.set_title(title, fontsize=9, color=INK)
             ax.set_xlabel(f"k ({hint})", fontsize=8)
             ax.grid(True, color=GRID, linewidth=0.5)
-            ax.set_xticks(list(ks)[:: max(1, len(ks) // 10)])
+            ax.set_xticks(list(ks)[:: max(1, -(-len(ks) // 7))])
         figure.tight_layout()
     return svg_of(figure)
