@@ -113,7 +113,7 @@ def test_table_run_keeps_metadata_columns_in_assignments(tmp_path: Path) -> None
     result = invoke("run", str(table), "--k", "3", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.stderr
     header = (out / "runs" / "k3" / "assignments.csv").read_text(encoding="utf-8").splitlines()[0]
-    assert header == "doc_id,source,title,cluster,distance,date,copies,channel"
+    assert header == "doc_id,source,title,cluster,cluster_name,distance,date,copies,channel"
     manifest = json.loads((out / "runs" / "k3" / "manifest.json").read_text(encoding="utf-8"))
     assert any("guessed text column 'body'" in note for note in manifest["input"]["notes"])
 

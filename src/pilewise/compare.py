@@ -417,7 +417,8 @@ def _load_run(folder: Path) -> _Run:
     headlines: dict[int, str] = {}
     for record in clusters.get("clusters", []):
         if isinstance(record, dict) and isinstance(record.get("id"), int):
-            headlines[record["id"]] = str(record.get("headline", ""))
+            # a name a person gave wins over the exemplar's title
+            headlines[record["id"]] = str(record.get("name") or record.get("headline", ""))
     name = str(manifest.get("run") or clusters.get("run") or folder.name)
     source = manifest.get("input")
     fingerprint = str(source.get("fingerprint", "")) if isinstance(source, dict) else ""

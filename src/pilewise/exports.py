@@ -16,13 +16,15 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from pilewise.model import ClusterSummary, TermScore
+from pilewise.names import write_names_csv
 from pilewise.stability import STABILITY_ROWS
 from pilewise.sweep import RECOMMENDATION_RULE, Sweep
 
 if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
 
-EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv")
+EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv",
+                "names.csv")
 LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "beautifulsoup4",
              "charset-normalizer", "typer")
 
@@ -34,6 +36,7 @@ def write_exports(folder: Path, result: RunResult) -> None:
     _write_json(folder / "manifest.json", manifest_document(result))
     write_ingest_report(folder / "ingest-report.csv", result)
     _write_json(folder / "levels.json", levels_document(result))
+    write_names_csv(folder / "names.csv", result.naming)
     write_cuts(folder / "cuts.csv", result)
     if result.sweep is not None:
         _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
@@ -106,12 +109,13 @@ def write_assignments(path: Path, result: RunResult) -> None:
     copies = result.collection.copies
     with path.open("w", encoding="utf-8", newline="") as handle:
         writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow(["doc_id", "source", "title", "cluster", "distance", "date", "copies", *extra])
+        writer.writerow(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies", *extra])
+        shown = [c.shown for c in result.naming.clusters]
         for i, doc in enumerate(docs):
             t = text_of_doc[i]
             meta = dict(doc.metadata)
             writer.writerow([
-                doc.doc_id, doc.source, doc.title, int(labels[t]), f"{distances[t]:.6f}", doc.date,
+                doc.doc_id, doc.source, doc.title, int(labels[t]), shown[labels[t]], f"{distances[t]:.6f}", doc.date,
                 int(copies[t]), *(meta.get(name, "") for name in extra),
             ])
 
@@ -144,8 +148,14 @@ def _term_record(term: TermScore, statistic: str) -> dict[str, Any]:
 def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     docs = result.collection.documents
     exemplar = docs[cluster.nearest[0].doc_index]
+    naming = result.naming.clusters[cluster.cluster_id]
     return {
         "id": cluster.cluster_id,
+        "name": naming.name,
+        "suggested_name": naming.suggested,
+        "name_note": naming.note,
+        "name_origin": naming.origin,
+        "name_flag": naming.flag,
         "size": cluster.size,
         "share": _round(cluster.share, 4),
         "distinct_texts": cluster.distinct_texts,
@@ -183,6 +193,8 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
             "stability_resamples": result.stability.resamples,
             "stability_rows": int(min(result.collection.copies.size, STABILITY_ROWS)),
         },
+        "names_from_run": result.naming.source_run,
+        "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],
     }
 

@@ -24,6 +24,7 @@ from pilewise.exports import write_exports
 from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
+from pilewise.names import Naming, carry_names, find_old_names, suggested_name
 from pilewise.options import RunOptions, check_k, check_k_range, validate
 from pilewise.progress import Reporter
 from pilewise.quality import assess
@@ -59,6 +60,7 @@ class RunResult:
     analyzer: Analyzer
     levels: Levels
     sweep: Sweep | None
+    naming: Naming
     fingerprint: str
     timings: dict[str, float]
 
@@ -224,8 +226,18 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
         levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
+    suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
+    doc_ids = [d.doc_id for d in prepared.collection.documents]
+    old_names = find_old_names(options.out / "runs", source=str(options.source),
+                               fingerprint=fingerprint(prepared.ingested.documents))
+    naming = carry_names(old_names, doc_ids, clustering.labels[prepared.collection.text_of_doc], space,
+                         prepared.collection.text_of_doc, suggestions)
+    if naming.source_run:
+        carried = sum(1 for c in naming.clusters if c.name)
+        reporter.say(f"{carried} cluster name(s) carried over from {naming.source_run}; "
+                     f"{len(naming.not_carried)} did not carry over")
     return RunResult(
-        options=options, name=options.run_name(k), k=k, ingested=prepared.ingested,
+        options=options, name=options.run_name(k), k=k, ingested=prepared.ingested, naming=naming,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,

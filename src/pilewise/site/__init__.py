@@ -89,6 +89,8 @@ def render_run_site(
         "doc_page_cap": DOC_PAGE_CAP,
         "stability_mean": result.stability.mean,
         "has_sweep": result.sweep is not None,
+        "names_from_run": result.naming.source_run,
+        "names_not_carried": result.naming.not_carried,
         "resamples": result.stability.resamples,
     }
     cards = [_card(c, result) for c in result.clusters]
@@ -198,8 +200,15 @@ def _kwic_groups(cluster: ClusterSummary, with_pages: bool) -> list[dict[str, An
 
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     largest = max(c.share for c in result.clusters)
+    naming = result.naming.clusters[cluster.cluster_id]
     return {
         "id": cluster.cluster_id,
+        "name": naming.name,
+        "title": naming.name or cluster.headline,
+        "suggested": naming.suggested,
+        "name_origin": naming.origin,
+        "name_note": naming.note,
+        "name_flag": naming.flag,
         "href": cluster_page_name(cluster.cluster_id),
         "headline": cluster.headline,
         "size": cluster.size,
