@@ -170,10 +170,58 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         },
         "kwic": [{"term": line.term, "left": line.left, "match": line.match, "right": line.right,
                   "doc_id": line.doc_id} for line in cluster.kwic],
+        "profile": _profile_record(result, cluster.cluster_id),
+        "attributes": _attributes_record(result, cluster.cluster_id),
         "mean_distance": _round(cluster.mean_distance),
         "silhouette": _round(cluster.silhouette),
         "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
                       "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
+    }
+
+
+def _profile_record(result: RunResult, c: int) -> dict[str, Any]:
+    profile = result.profiles[c]
+
+    def terms(items: Any) -> list[dict[str, Any]]:
+        return [{"term": t.term, "mean_in": _round(t.mean_in), "mean_out": _round(t.mean_out)} for t in items]
+
+    return {"stronger": terms(profile.stronger), "weaker": terms(profile.weaker)}
+
+
+def _attributes_record(result: RunResult, c: int) -> dict[str, Any]:
+    """Per metadata column: values over- and under-represented in this cluster, or its quartiles."""
+    if result.metadata is None:
+        return {}
+    record: dict[str, Any] = {}
+    for column in result.metadata.categorical:
+        def cells(items: Any) -> list[dict[str, Any]]:
+            return [{"value": r.value, "count": r.count, "expected": _round(r.expected, 2),
+                     "residual": _round(r.residual, 3)} for r in items]
+
+        record[column.column] = {"over": cells(column.over[c]), "under": cells(column.under[c])}
+    for numeric in result.metadata.numeric:
+        n = numeric.clusters[c]
+        record[numeric.column] = {
+            "count": n.count, "q1": _round(n.q1), "median": _round(n.median), "q3": _round(n.q3),
+            "rest_count": n.rest_count, "rest_q1": _round(n.rest_q1), "rest_median": _round(n.rest_median),
+            "rest_q3": _round(n.rest_q3), "p_value": _round(n.p_value),
+        }
+    return record
+
+
+def metadata_document(result: RunResult) -> dict[str, Any]:
+    """Column-level tests of the metadata against the clusters."""
+    if result.metadata is None:
+        return {}
+    return {
+        "categorical": [
+            {"column": col.column, "values": list(col.values), "chi2": _round(col.chi2, 4), "dof": col.dof,
+             "p_value": col.p_value, "cramers_v": _round(col.cramers_v, 4), "sparse_warning": col.sparse_warning,
+             "table": col.table.tolist()}
+            for col in result.metadata.categorical
+        ],
+        "numeric": [col.column for col in result.metadata.numeric],
+        "skipped": [{"column": s.column, "reason": s.reason} for s in result.metadata.skipped],
     }
 
 
@@ -193,6 +241,7 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
             "stability_resamples": result.stability.resamples,
             "stability_rows": int(min(result.collection.copies.size, STABILITY_ROWS)),
         },
+        "metadata": metadata_document(result),
         "names_from_run": result.naming.source_run,
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],

@@ -26,6 +26,7 @@ from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
 from pilewise.names import Naming, carry_names, find_old_names, suggested_name
 from pilewise.options import RunOptions, check_k, check_k_range, validate
+from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles
 from pilewise.progress import Reporter
 from pilewise.quality import assess
 from pilewise.reading import ReadLimits, read_source
@@ -40,7 +41,7 @@ from pilewise.stability import (
 from pilewise.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import Vectorized, VectorSettings, vectorize
+from pilewise.vectors import Vectorized, VectorSettings, tfidf_weights, vectorize
 
 
 @dataclass(frozen=True)
@@ -61,6 +62,8 @@ class RunResult:
     levels: Levels
     sweep: Sweep | None
     naming: Naming
+    profiles: tuple[ClusterProfile, ...]
+    metadata: MetadataAnalysis | None
     fingerprint: str
     timings: dict[str, float]
 
@@ -226,6 +229,10 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
         levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
+        shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
+        profiles = term_profiles(tfidf_weights(prepared.vectors.counts), clustering.labels, weights, shown, k=k)
+        columns = metadata_columns(prepared.collection)
+        metadata = analyse_metadata(columns, clustering.labels, weights, k=k) if columns else None
     suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source),
@@ -238,6 +245,7 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
                      f"{len(naming.not_carried)} did not carry over")
     return RunResult(
         options=options, name=options.run_name(k), k=k, ingested=prepared.ingested, naming=naming,
+        profiles=profiles, metadata=metadata,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,
@@ -287,6 +295,17 @@ def sweep_k(
     return sweep_clusterings(space, weights, clusterings, seed=options.seed,
                              resamples=min(options.resamples, SWEEP_RESAMPLES),
                              cluster_fn_for=lambda k: _stability_fn(options, k, cache), on_k=say), clusterings
+
+
+def metadata_columns(collection: Collection) -> dict[str, list[str]]:
+    """Extra table columns, one cell per distinct text (its first document's)."""
+    names = sorted({name for doc in collection.documents for name, _ in doc.metadata})
+    cells: dict[str, list[str]] = {name: [] for name in names}
+    for i in collection.first_doc_of_text:
+        found = dict(collection.documents[i].metadata)
+        for name in names:
+            cells[name].append(found.get(name, ""))
+    return cells
 
 
 def collect_distinct(documents: tuple[Document, ...]) -> Collection:

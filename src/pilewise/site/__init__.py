@@ -89,6 +89,7 @@ def render_run_site(
         "doc_page_cap": DOC_PAGE_CAP,
         "stability_mean": result.stability.mean,
         "has_sweep": result.sweep is not None,
+        "metadata": result.metadata,
         "names_from_run": result.naming.source_run,
         "names_not_carried": result.naming.not_carried,
         "resamples": result.stability.resamples,
@@ -115,6 +116,8 @@ def render_run_site(
                             for n in cluster.nearest],
                 "kwic_groups": _kwic_groups(cluster, with_doc_pages),
                 "members": rows,
+                "profile": result.profiles[cluster.cluster_id],
+                "attributes": _attributes(result, cluster.cluster_id),
                 "page": page,
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
                 "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
@@ -187,6 +190,22 @@ def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source:
         run=name, sweep=sweep, rule=RECOMMENDATION_RULE, in_run=in_run, source=source, method=method,
         caution=CAUTION, css=STYLESHEET, up="../../"))
     return page
+
+
+def _attributes(result: RunResult, c: int) -> dict[str, Any] | None:
+    """Display rows for one cluster's metadata: over- then under-represented values, numeric quartiles."""
+    if result.metadata is None:
+        return None
+    cells = []
+    for column in result.metadata.categorical:
+        for r in (*column.over[c], *column.under[c]):
+            cells.append({"column": column.column, "value": r.value, "count": r.count, "expected": r.expected,
+                          "residual": r.residual})
+    return {
+        "cells": cells,
+        "columns": ", ".join(col.column for col in result.metadata.categorical) or "the columns",
+        "numeric": [{"column": col.column, **vars(col.clusters[c])} for col in result.metadata.numeric],
+    }
 
 
 def _kwic_groups(cluster: ClusterSummary, with_pages: bool) -> list[dict[str, Any]]:
