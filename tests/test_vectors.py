@@ -78,3 +78,16 @@ def test_vectorize_keeps_phrases_for_description_but_clusters_on_words() -> None
     assert "password reset" in result.terms
     assert result.space.shape == (40, int((~result.is_phrase).sum()))
     assert result.facts["phrases"] == int(result.is_phrase.sum()) > 0
+
+
+def test_bulk_tokenizing_gives_the_same_tokens_as_nltk() -> None:
+    # The analyzer compiles nltk's RegexpTokenizer pattern with `re` for speed; the tokens must not differ.
+    from nltk.tokenize import RegexpTokenizer
+
+    from pilewise.text import TOKEN_PATTERN
+
+    text = "Re-potted the Monstera; it's fine — don't panic! Café naïve e-mail log-in 42 x y-z O'Neil -- a'b"
+    analyzer = Analyzer(stop_words=frozenset(), stem=False)
+    assert analyzer.tokens(text) == RegexpTokenizer(TOKEN_PATTERN).tokenize(text.lower())
+    assert "o'neil" in analyzer.tokens(text) and "re-potted" in analyzer.tokens(text)
+    assert [t for _, _, t in analyzer.spans(text)] == analyzer.terms(text)

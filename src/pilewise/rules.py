@@ -336,9 +336,9 @@ def explain_clusters(
     rules = []
     for c in range(k):
         y = labels == c
-        leaf = max(MIN_LEAF_TEXTS, min(math.ceil(LEAF_SHARE_OF_ROWS * n), math.ceil(LEAF_SHARE_OF_CLUSTER * counts[c])))
         model = ChiSquareTreeClassifier(
-            n_terms=n_terms, max_features=max_features, max_depth=depth, min_samples_leaf=leaf, random_state=seed
+            n_terms=n_terms, max_features=max_features, max_depth=depth,
+            min_samples_leaf=_cluster_leaf_minimum(n, int(counts[c])), random_state=seed,
         )
         rules.append(_cluster_rule(c, X, y, weights, model, column_present, columns, seed))
     whole_model = ChiSquareTreeClassifier(
@@ -364,6 +364,11 @@ def explain_clusters(
         features=int(whole.columns_.size),
         folds=folds,
     )
+
+
+def _cluster_leaf_minimum(n: int, members: int) -> int:
+    """Distinct texts per leaf of a cluster's tree: max(5, min(1% of the rows, 10% of the cluster))."""
+    return max(MIN_LEAF_TEXTS, min(math.ceil(LEAF_SHARE_OF_ROWS * n), math.ceil(LEAF_SHARE_OF_CLUSTER * members)))
 
 
 def _check_inputs(

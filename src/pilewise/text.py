@@ -16,8 +16,10 @@ from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
 
 from pilewise.errors import PilewiseError
 
-# Words of two or more letters; inner apostrophes and hyphens kept ("don't", "log-in").
-TOKEN_PATTERN = r"[^\W\d_](?:[^\W\d_]|['\-](?=[^\W\d_]))+"
+# Runs of letters, with inner apostrophes and hyphens kept ("don't", "log-in"); one-letter words are
+# dropped by the analyzer. Each repetition of the group must start with ' or -, so matching is linear.
+TOKEN_PATTERN = r"[^\W\d_]+(?:['\-][^\W\d_]+)*"
+_MISSING = object()
 # The placeholder redaction puts in place of personal data; never a term.
 PLACEHOLDER_PREFIX = "xredacted"
 
@@ -48,6 +50,10 @@ class Analyzer:
         self.stop_words = stop_words
         self.stem = stem
         self._tokenizer = RegexpTokenizer(TOKEN_PATTERN)
+        # nltk (3.9+) wraps its patterns in a timed guard against catastrophic backtracking, which
+        # triples the cost of tokenizing a large collection. The same pattern compiled by `re` gives the
+        # same tokens (tested) and cannot backtrack catastrophically, so bulk tokenizing uses it.
+        self._findall = re.compile(TOKEN_PATTERN).findall
         self._stemmer = SnowballStemmer("english") if stem else None
         self._cache: dict[str, str | None] = {}
         self._surface_counts: dict[str, Counter[str]] = {}
@@ -77,14 +83,22 @@ class Analyzer:
     def terms(self, text: str) -> list[str]:
         """Normalized terms of `text` in order."""
         out: list[str] = []
-        surface = self._surface_counts
-        for word in self._tokenizer.tokenize(text.lower()):
-            term = self.normalize(word)
+        cache = self._cache
+        append = out.append
+        stemming = self._stemmer is not None
+        for word in self._findall(text.lower()):
+            term = cache.get(word, _MISSING)
+            if term is _MISSING:
+                term = self.normalize(word)
             if term is not None:
-                out.append(term)
-                if self._stemmer is not None:
-                    surface.setdefault(term, Counter())[word] += 1
+                append(term)  # type: ignore[arg-type]
+                if stemming:
+                    self._surface_counts.setdefault(str(term), Counter())[word] += 1
         return out
+
+    def tokens(self, text: str) -> list[str]:
+        """The lower-cased words of `text`, before stop words and stemming."""
+        return list(self._findall(text.lower()))
 
     def spans(self, text: str) -> list[tuple[int, int, str]]:
         """(start, end, term) of every kept word of `text`, for marking and keyword-in-context lines."""

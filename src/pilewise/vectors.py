@@ -5,14 +5,17 @@ The defaults come from measurements on open labeled corpora (docs/vectorizing.md
 
 from __future__ import annotations
 
+import itertools
 import math
+from array import array
+from collections import defaultdict
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.decomposition import TruncatedSVD
-from sklearn.feature_extraction.text import CountVectorizer, TfidfTransformer
+from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.preprocessing import normalize
 
 from pilewise.errors import PilewiseError
@@ -70,6 +73,49 @@ def with_phrases(terms: list[str]) -> list[str]:
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]
 
 
+MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
+
+
+def count_terms(
+    texts: Iterable[str], analyzer: Analyzer
+) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
+    """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
+
+    Returns the word count matrix (texts x words), the words, the pair count matrix (texts x pairs) and
+    the pairs as (first word id, second word id) rows. Pairs are counted as 64-bit codes in numpy, which
+    keeps a large collection's millions of distinct pairs out of Python dictionaries.
+    """
+    vocabulary: defaultdict[str, int] = defaultdict(itertools.count().__next__)
+    ids = array("q")
+    indptr = array("q", [0])
+    id_of = vocabulary.__getitem__
+    for text in texts:
+        ids.extend(map(id_of, analyzer.terms(text)))
+        indptr.append(len(ids))
+    n_texts, n_words = len(indptr) - 1, max(len(vocabulary), 1)
+    word_ids = np.frombuffer(ids, dtype=np.int64) if len(ids) else np.zeros(0, dtype=np.int64)
+    bounds = np.frombuffer(indptr, dtype=np.int64)
+    words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids, bounds), shape=(n_texts, n_words))
+    words.sum_duplicates()
+    # pairs of adjacent kept words inside one text
+    row_of = np.repeat(np.arange(n_texts), np.diff(bounds))
+    inside = row_of[:-1] == row_of[1:] if word_ids.size > 1 else np.zeros(0, dtype=bool)
+    codes = word_ids[:-1][inside] * n_words + word_ids[1:][inside]
+    pair_codes, pair_ids = np.unique(codes, return_inverse=True)
+    pairs = sp.csr_matrix(
+        (np.ones(pair_ids.size, dtype=np.int32), (row_of[:-1][inside], pair_ids)), shape=(n_texts, pair_codes.size)
+    )
+    pairs.sum_duplicates()
+    terms = [""] * len(vocabulary)
+    for term, i in vocabulary.items():
+        terms[i] = term
+    return words, terms, pairs, np.column_stack([pair_codes // n_words, pair_codes % n_words])
+
+
+def _document_frequency(counts: sp.csr_matrix) -> np.ndarray:
+    return np.bincount(counts.indices, minlength=counts.shape[1])
+
+
 def vectorize(
     texts: Sequence[str],
     analyzer: Analyzer,
@@ -81,17 +127,25 @@ def vectorize(
     n = len(texts)
     min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
     max_df: float | int = settings.max_df if n * settings.max_df >= min_df else 1.0
-    counter = CountVectorizer(
-        analyzer=lambda text: with_phrases(analyzer.terms(text)), min_df=min_df, max_df=max_df, dtype=np.int32
-    )
-    try:
-        counts = counter.fit_transform(track(texts) if track else texts).tocsr()
-    except ValueError as err:
+    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer)
+    df_words, df_pairs = _document_frequency(words), _document_frequency(pairs)
+    ceiling = max_df * n
+    keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
+    keep_pairs = np.flatnonzero((df_pairs >= min_df) & (df_pairs <= ceiling))
+    phrases_within_df = int(keep_pairs.size)
+    if keep_pairs.size > MAX_PHRASES:
+        keep_pairs = np.sort(keep_pairs[np.lexsort((keep_pairs, -df_pairs[keep_pairs]))][:MAX_PHRASES])
+    if keep_words.size == 0:
         raise PilewiseError(
             f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
-            f"or more than {max_df:g} of them; lower --min-df or raise --max-df ({err})"
-        ) from err
-    terms = tuple(str(t) for t in counter.get_feature_names_out())
+            f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
+        )
+    phrase_terms = [f"{word_terms[a]} {word_terms[b]}" for a, b in pair_words[keep_pairs]]
+    all_terms = [word_terms[i] for i in keep_words] + phrase_terms
+    order = np.argsort(np.array(all_terms, dtype=object), kind="stable")  # alphabetical, as before
+    counts = sp.hstack([words[:, keep_words], pairs[:, keep_pairs]], format="csr")[:, order]
+    counts = sp.csr_matrix(counts, dtype=np.int32)
+    terms = tuple(all_terms[i] for i in order)
     is_phrase = np.fromiter((" " in t for t in terms), dtype=bool, count=len(terms))
     if progress:
         progress(f"{len(terms):,} terms kept ({int(is_phrase.sum()):,} two-word phrases)")
@@ -105,6 +159,7 @@ def vectorize(
         "max_df": float(max_df),
         "terms": len(terms),
         "phrases": int(is_phrase.sum()),
+        "phrases_within_df": phrases_within_df,
         "space_terms": int(space_columns.size),
         "texts_without_terms": empty_rows,
         "bigrams_in_space": settings.bigrams_in_space,
