@@ -138,3 +138,15 @@ def test_folder_without_documents_is_a_user_error(tmp_path: Path) -> None:
         read(tmp_path)
     assert str(err.value).startswith("no documents found in 2 file(s) in ")
     assert "(1 empty, 1 unsupported)" in str(err.value)
+
+
+def test_ragged_csv_rows_are_reported_with_their_line(tmp_path: Path) -> None:
+    (tmp_path / "t.csv").write_text(
+        'id,text\n1,"first, with comma"\n2,second,extra\n3,"third\nover two lines"\n4\n', encoding="utf-8"
+    )
+    ingested = read(tmp_path / "t.csv")
+    assert [d.doc_id for d in ingested.documents] == ["1", "3"]
+    assert ingested.documents[1].text == "third\nover two lines"
+    skipped = [(e.source, e.reason, e.detail) for e in ingested.entries if e.status == "skipped"]
+    assert skipped == [("t.csv#line3", "malformed row", "3 fields where the header has 2"),
+                       ("t.csv#line6", "malformed row", "1 fields where the header has 2")]

@@ -58,6 +58,8 @@ def describe_clusters(
     counts_all = np.asarray(vectors.counts.T @ weights).ravel()
     prior = informative_prior(counts_all, PRIOR_MASS)
     shown = tuple(analyzer.surface(t) for t in vectors.terms)
+    present_csc = present.tocsc()
+    column_of = {key: i for i, key in enumerate(vectors.terms)}
     summaries = []
     for c in range(k):
         members = np.flatnonzero(labels == c)
@@ -74,7 +76,8 @@ def describe_clusters(
         log_odds_terms = _log_odds_terms(
             counts_in, counts_all - counts_in, prior, df_in, df_all, size, total, shown, vectors.terms, top_terms
         )
-        kwic = _kwic_for(chi2_terms[:KWIC_TERMS], order, present, vectors.terms, collection, analyzer)
+        kwic = _kwic_for(chi2_terms[:KWIC_TERMS], members, clustering.distances, present_csc, column_of, collection,
+                         analyzer)
         headline_doc = collection.documents[nearest[0].doc_index]
         silhouette = quality.per_cluster_silhouette[c] if c < len(quality.per_cluster_silhouette) else None
         summaries.append(
@@ -139,16 +142,18 @@ def _log_odds_terms(
 
 
 def _kwic_for(
-    terms: Sequence[TermScore], order: np.ndarray, present: sp.csr_matrix, keys: Sequence[str],
-    collection: Collection, analyzer: Analyzer,
+    terms: Sequence[TermScore], members: np.ndarray, distances: np.ndarray, present_csc: sp.csc_matrix,
+    column_of: dict[str, int], collection: Collection, analyzer: Analyzer,
 ) -> tuple[KwicLine, ...]:
     """Up to KWIC_LINES_PER_TERM lines per term, from distinct member texts, nearest first."""
-    column_of = {key: i for i, key in enumerate(keys)}
     lines: list[KwicLine] = []
-    present_csc = present[order].tocsc()
+    is_member = np.zeros(present_csc.shape[0], dtype=bool)
+    is_member[members] = True
     for term in terms:
-        column = present_csc[:, column_of[term.key]]
-        holders = order[np.sort(column.indices)]
+        column = column_of[term.key]
+        rows = present_csc.indices[present_csc.indptr[column] : present_csc.indptr[column + 1]]
+        holders = rows[is_member[rows]]
+        holders = holders[np.argsort(distances[holders], kind="stable")]
         found = 0
         for text_index in holders:
             doc_index = int(collection.first_doc_of_text[text_index])

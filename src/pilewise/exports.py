@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 from pilewise.model import ClusterSummary, TermScore
 from pilewise.names import write_names_csv
+from pilewise.rules import RULES_ROWS
 from pilewise.stability import STABILITY_ROWS
 from pilewise.sweep import RECOMMENDATION_RULE, Sweep
 
@@ -170,6 +171,7 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         },
         "kwic": [{"term": line.term, "left": line.left, "match": line.match, "right": line.right,
                   "doc_id": line.doc_id} for line in cluster.kwic],
+        "rule": _rule_record(result, cluster.cluster_id),
         "profile": _profile_record(result, cluster.cluster_id),
         "attributes": _attributes_record(result, cluster.cluster_id),
         "mean_distance": _round(cluster.mean_distance),
@@ -177,6 +179,12 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
                       "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
     }
+
+
+def _rule_record(result: RunResult, c: int) -> dict[str, Any]:
+    rule = result.rules.rules[c]
+    return {"text": rule.rule_text, "precision": _round(rule.precision, 4), "coverage": _round(rule.coverage, 4),
+            "no_rule_reason": rule.no_rule_reason}
 
 
 def _profile_record(result: RunResult, c: int) -> dict[str, Any]:
@@ -242,6 +250,10 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
             "stability_rows": int(min(result.collection.copies.size, STABILITY_ROWS)),
         },
         "metadata": metadata_document(result),
+        "rules": {"fidelity_accuracy": _round(result.rules.fidelity_accuracy, 4),
+                  "fidelity_macro_f1": _round(result.rules.fidelity_macro_f1, 4),
+                  "folds": result.rules.folds, "features": result.rules.features,
+                  "rows": int(min(result.collection.copies.size, RULES_ROWS))},
         "names_from_run": result.naming.source_run,
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],

@@ -30,6 +30,7 @@ from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata
 from pilewise.progress import Reporter
 from pilewise.quality import assess
 from pilewise.reading import ReadLimits, read_source
+from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
 from pilewise.site import render_root_index, render_run_site
 from pilewise.stability import (
     ClusterFn,
@@ -63,6 +64,7 @@ class RunResult:
     sweep: Sweep | None
     naming: Naming
     profiles: tuple[ClusterProfile, ...]
+    rules: RuleSet
     metadata: MetadataAnalysis | None
     fingerprint: str
     timings: dict[str, float]
@@ -233,6 +235,8 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
         profiles = term_profiles(tfidf_weights(prepared.vectors.counts), clustering.labels, weights, shown, k=k)
         columns = metadata_columns(prepared.collection)
         metadata = analyse_metadata(columns, clustering.labels, weights, k=k) if columns else None
+    with reporter.stage("explaining"):
+        rules = explain_run(prepared, clustering.labels, shown, metadata, columns, k=k, seed=options.seed)
     suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source),
@@ -245,7 +249,7 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
                      f"{len(naming.not_carried)} did not carry over")
     return RunResult(
         options=options, name=options.run_name(k), k=k, ingested=prepared.ingested, naming=naming,
-        profiles=profiles, metadata=metadata,
+        profiles=profiles, metadata=metadata, rules=rules,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,
@@ -295,6 +299,19 @@ def sweep_k(
     return sweep_clusterings(space, weights, clusterings, seed=options.seed,
                              resamples=min(options.resamples, SWEEP_RESAMPLES),
                              cluster_fn_for=lambda k: _stability_fn(options, k, cache), on_k=say), clusterings
+
+
+def explain_run(
+    prepared: Prepared, labels: np.ndarray, shown: list[str], metadata: MetadataAnalysis | None,
+    columns: dict[str, list[str]], *, k: int, seed: int,
+) -> RuleSet:
+    """Decision rules per cluster on term presence and the categorical table columns."""
+    rows = stability_rows(labels.size, seed, cap=RULES_ROWS)
+    present = prepared.vectors.counts[rows]
+    present = sp.csr_matrix((np.ones_like(present.data), present.indices, present.indptr), shape=present.shape)
+    categorical = [c.column for c in metadata.categorical] if metadata is not None else []
+    fields = {name: [columns[name][i] for i in rows] for name in categorical} or None
+    return explain_clusters(present, labels[rows], prepared.weights[rows], shown, k=k, seed=seed, metadata=fields)
 
 
 def metadata_columns(collection: Collection) -> dict[str, list[str]]:

@@ -30,6 +30,7 @@ from sklearn.tree import DecisionTreeClassifier
 
 from pilewise.stats import chi_square_2x2
 
+RULES_ROWS = 20_000  # distinct texts the pipeline fits and cross-validates rules on (a seeded sample above)
 MAX_FOLDS = 5  # held-out folds; fewer when a cluster (or the rest) has fewer distinct texts
 MAX_RULES = 2  # paths joined by "or" in one cluster's rule
 # A rule is shown only if, on held-out texts, at least half of what it matches is in the cluster and it

@@ -100,16 +100,7 @@ def _load_frame(path: Path, rel: str) -> tuple[pd.DataFrame | None, list[IngestE
             entries.append(IngestEntry(rel, "note", "encoding", note))
         if suffix in {".csv", ".tsv"}:
             sep = "\t" if suffix == ".tsv" else ","
-            frame = pd.read_csv(
-                io.StringIO(text), sep=sep, dtype=str, keep_default_na=False, on_bad_lines="warn",
-                engine="python",
-            )
-            expected = _count_csv_records(text, sep)
-            if expected > len(frame):
-                entries.append(
-                    IngestEntry(rel, "skipped", "malformed rows", f"{expected - len(frame)} ragged row(s) skipped")
-                )
-            return frame, entries
+            return _read_delimited(text, sep, rel, entries), entries
         if suffix in {".jsonl", ".ndjson"}:
             return _read_json_lines(text, rel, entries), entries
         data = json.loads(text)
@@ -128,9 +119,24 @@ def _load_frame(path: Path, rel: str) -> tuple[pd.DataFrame | None, list[IngestE
         return None, entries
 
 
-def _count_csv_records(text: str, sep: str) -> int:
-    rows = list(csv.reader(io.StringIO(text), delimiter=sep))
-    return max(0, len([r for r in rows if r]) - 1)
+def _read_delimited(text: str, sep: str, rel: str, entries: list[IngestEntry]) -> pd.DataFrame:
+    """CSV/TSV rows with the csv module (quotes, embedded newlines); a row of the wrong width is reported."""
+    csv.field_size_limit(2**31 - 1)  # documents may be long; --max-doc-chars truncates them later
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=sep)
+    header = next(reader, None)
+    if not header:
+        raise ValueError("no header row")
+    rows: list[list[str]] = []
+    for row in reader:
+        if not row:
+            continue
+        if len(row) != len(header):
+            where = f"{rel}#line{reader.line_num}"
+            detail = f"{len(row)} fields where the header has {len(header)}"
+            entries.append(IngestEntry(where, "skipped", "malformed row", detail))
+            continue
+        rows.append(row)
+    return pd.DataFrame(rows, columns=header, dtype=str)
 
 
 def _read_json_lines(text: str, rel: str, entries: list[IngestEntry]) -> pd.DataFrame:

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
 from pilewise.model import ClusterSummary, Document
+from pilewise.rules import RULES_ROWS
 from pilewise.sweep import Sweep
 
 if TYPE_CHECKING:
@@ -96,6 +97,10 @@ def render_run_site(
     }
     cards = [_card(c, result) for c in result.clusters]
     _render_levels(folder, result, env, common)
+    _write(folder / "tree.html", env.get_template("tree.html").render(
+        common, rules=result.rules, root=result.rules.whole_tree, has_metadata=result.metadata is not None,
+        rows=min(int(result.collection.copies.size), RULES_ROWS),
+        names={c.cluster_id: c.shown for c in result.naming.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
     _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
@@ -238,6 +243,7 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "stability": cluster.stability,
         "stability_reading": cluster.stability_reading,
         "stability_class": "stab-" + cluster.stability_reading.split(",")[0].replace(" ", "-"),
+        "rule": result.rules.rules[cluster.cluster_id],
     }
 
 
