@@ -34,7 +34,10 @@ How to run
 
 Options: ``--workdir DIR`` keeps the generated CSV and the outputs there (default: a temporary
 folder, removed at the end); ``--repeat R`` runs every pipeline R times and reports the median
-time and the largest peak memory; ``--seed S`` changes the synthetic collection.
+time and the largest peak memory; ``--seed S`` changes the synthetic collection; ``--threads T``
+sets OMP_NUM_THREADS, OPENBLAS_NUM_THREADS and MKL_NUM_THREADS for every child alike (on a machine
+shared with other jobs, multi-threaded BLAS can slow down several-fold while it waits for a
+descheduled thread; one thread per process gives steadier figures there).
 """
 
 from __future__ import annotations
@@ -70,6 +73,7 @@ TOPIC_SHARE = 0.6
 MIN_WORDS, MAX_WORDS = 30, 200
 TARGET_RATIO = 1.5
 OUT_FOLDER = Path(__file__).resolve().parent / ".out"
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 LIBRARIES = ("numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "pyarrow", "pilewise")
 
 ONSETS = ("b", "d", "f", "g", "k", "l", "m", "n", "p", "r", "s", "t", "v", "z", "ch", "sh", "th", "br", "dr",
@@ -372,7 +376,8 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
     lines = [
         f"Machine: {info['cpu']}, {info['usable_cores']} usable cores ({info['logical_cores']} logical), "
         f"{info['ram_gb']} GB RAM, {info['os']}",
-        f"Measured at {info['measured_at']}, pilewise source sha256 {info['pilewise_source_sha256']}",
+        f"Measured at {info['measured_at']}, pilewise source sha256 {info['pilewise_source_sha256']}, "
+        f"threads: {info['threads_setting'] or 'library defaults'}",
         "Versions: " + ", ".join(f"{k} {v}" for k, v in info["versions"].items()),
         f"Collection: {n_docs:,} documents, {collection.words:,} words, {collection.bytes / 1e6:.1f} MB CSV, "
         f"{TOPICS} planted topics; min_df={min_df}, max_df={MAX_DF}, k={K}, n_init={N_INIT}",
@@ -445,6 +450,8 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--repeat", type=int, default=1, help="runs per pipeline (median time, largest memory)")
     parser.add_argument("--seed", type=int, default=0, help="seed of the synthetic collection")
     parser.add_argument("--profile", action="store_true", help="also run pilewise once under cProfile")
+    parser.add_argument("--threads", type=int, default=None,
+                        help="set OMP/OpenBLAS/MKL thread counts of every child (default: the libraries' own)")
     parser.add_argument("--child", choices=("bare", "bare+lsa"), help=argparse.SUPPRESS)
     parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
     parser.add_argument("--labels-out", type=Path, help=argparse.SUPPRESS)
@@ -459,7 +466,11 @@ def main(argv: list[str] | None = None) -> None:
     from pilewise.options import RunOptions
     from pilewise.vectors import default_min_df
 
+    if args.threads:
+        for variable in THREAD_VARIABLES:
+            os.environ[variable] = str(args.threads)  # inherited by every child
     info = machine()
+    info["threads_setting"] = args.threads
     temporary = args.workdir is None
     work = Path(tempfile.mkdtemp(prefix="pilewise-bench-")) if temporary else args.workdir.resolve()
     work.mkdir(parents=True, exist_ok=True)
@@ -522,7 +533,8 @@ def main(argv: list[str] | None = None) -> None:
         print()
         figures = report(args.docs, collection, min_df, results, info)
         OUT_FOLDER.mkdir(exist_ok=True)
-        json_path = OUT_FOLDER / f"bench-{args.docs}.json"
+        suffix = f"-threads{args.threads}" if args.threads else ""
+        json_path = OUT_FOLDER / f"bench-{args.docs}{suffix}.json"
         json_path.write_text(json.dumps(figures, indent=2) + "\n", encoding="utf-8")
         print(f"\nfigures written to {json_path}")
         if args.profile:
