@@ -71,6 +71,7 @@ Method = Annotated[str, typer.Option("--method", help="kmeans, or ward (a tree c
 Resamples = Annotated[int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability.")]
 MaxFileMb = Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")]
 MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")]
+MaxDocuments = Annotated[int, typer.Option("--max-documents", help="Refuse collections with more documents.")]
 KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
 
 
@@ -113,6 +114,7 @@ def run(
     resamples: Resamples = 20,
     max_file_mb: MaxFileMb = 100.0,
     max_doc_chars: MaxDocChars = 1_000_000,
+    max_documents: MaxDocuments = 2_000_000,
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
@@ -123,7 +125,7 @@ def run(
         name=name, text_column=text_column, title_column=title_column, id_column=id_column,
         date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
         lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
-        max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
+        max_doc_chars=max_doc_chars, max_documents=max_documents, resamples=resamples, quiet=quiet,
     )
     _print_outcome(run_collection(options))
 

@@ -360,6 +360,8 @@ def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
 def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
     """Build into a temporary sibling folder and move it into place only when complete."""
     target.parent.mkdir(parents=True, exist_ok=True)
+    for stale in target.parent.glob(f".{target.name}-building-*"):  # left by a killed run
+        shutil.rmtree(stale, ignore_errors=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
     try:
         write(staging)

@@ -10,6 +10,7 @@ import email
 import email.policy
 import os
 import re
+import stat
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from email.message import EmailMessage
@@ -117,9 +118,12 @@ def _read_one(
 ) -> tuple[list[Document], list[IngestEntry], list[str]]:
     suffix = path.suffix.lower()
     try:
-        size = path.stat().st_size
+        info = path.stat()
     except OSError as err:
         return [], [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))], []
+    if not stat.S_ISREG(info.st_mode):  # pipes, sockets, devices: reading could block or never end
+        return [], [IngestEntry(rel, "skipped", "not a regular file", "a pipe, socket or device")], []
+    size = info.st_size
     if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES | TABLE_SUFFIXES:
         if single:
             raise PilewiseError(

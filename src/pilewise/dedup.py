@@ -1,0 +1,432 @@
+"""Near-duplicate texts and boilerplate lines, found before vectorizing.
+
+Near-duplicates (auto-replies, templated notifications, forwarded copies) are pairs of texts whose
+word shingles have a resemblance (Jaccard similarity) of at least a threshold (Broder 1997). MinHash
+signatures and LSH banding find the candidate pairs in about linear time; every candidate is then
+confirmed by the exact resemblance of the two shingle sets, so the decision itself is exact and only
+the search is randomized. Boilerplate lines (signatures, legal footers, form templates) are lines that
+recur in a large share of the documents.
+
+Both stages are pure computations on sequences of texts; neither reads options or writes files.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+from array import array
+from collections import Counter
+from collections.abc import Sequence
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+from scipy.stats import binom
+
+SHINGLE_WORDS = 5  # words per shingle (w-shingles of Broder 1997); see near_duplicate_groups
+NEAR_DUPLICATE_THRESHOLD = 0.8  # resemblance at or above which two texts are near-duplicates
+NUM_PERM = 128  # MinHash functions per signature
+BAND_RECALL = 0.995  # least probability that a pair exactly at the threshold becomes an LSH candidate
+PREFILTER_MISS = 1e-9  # most probability that the signature prefilter drops a pair exactly at the threshold
+BOILERPLATE_MIN_SHARE = 0.05
+BOILERPLATE_MIN_DOCS = 5
+BOILERPLATE_MIN_CHARS = 20
+
+_WORD = re.compile(r"\w+")
+_DIGITS = re.compile(r"\d+")
+_CHUNK_SHINGLES = 1 << 15  # shingles hashed at once: a (chunk, num_perm) uint64 block, 32 MiB at 128
+_CHUNK_PAIRS = 1 << 16
+# Odd 64-bit constants (digits of pi, e, sqrt 2, sqrt 3, golden ratio) weighting the words of a shingle.
+_POSITION_WEIGHTS = np.array(
+    [0x243F6A8885A308D3, 0xB7E151628AED2A6B, 0x6A09E667F3BCC909, 0xBB67AE8584CAA73B, 0x9E3779B97F4A7C15],
+    dtype=np.uint64,
+)
+_BAND_KEY_SEED = 0x5EED_BA4D
+
+
+@dataclass(frozen=True)
+class NearDuplicates:
+    """Groups of near-duplicate texts; every text is in exactly one group, alone if it has no near-duplicate.
+
+    Groups are numbered in the order of their first text, which is the group's representative.
+    """
+
+    group_of: np.ndarray  # (n_texts,) group id per text
+    representative: np.ndarray  # (n_groups,) index of the group's first text
+    sizes: np.ndarray  # (n_groups,) texts per group (multiply by exact-copy counts for documents)
+    threshold: float
+
+
+def near_duplicate_groups(
+    texts: Sequence[str],
+    *,
+    threshold: float = NEAR_DUPLICATE_THRESHOLD,
+    seed: int = 0,
+    num_perm: int = NUM_PERM,
+) -> NearDuplicates:
+    """Group texts whose word 5-shingle sets have a resemblance of at least `threshold`.
+
+    Method: shingling and resemblance from Broder (1997), "On the resemblance and containment of
+    documents", Compression and Complexity of Sequences; MinHash from Broder, Charikar, Frieze &
+    Mitzenmacher (2000), "Min-wise independent permutations", JCSS 60(3); LSH banding as in Leskovec,
+    Rajaraman & Ullman, Mining of Massive Datasets, §3.4 (a pair of resemblance s becomes a candidate
+    with probability 1 - (1 - s^r)^b for b bands of r rows). Groups are the connected components
+    (union-find) of the confirmed pairs, so near-duplication is taken as transitive.
+
+    Shingles are word 5-grams of the lower-cased text (words are runs of ``\\w``), with every run of
+    digits replaced by ``0`` so that templates that differ in order numbers, dates or amounts share
+    all their shingles. Words rather than characters because the unit that templates change is the
+    word, because a text of 100 words gives 96 word shingles against about 600 character shingles
+    (six times less hashing), and because at a threshold of 0.8 character 5-shingles would join
+    texts that differ in about one word in ten (MMDS §3.2.2 suggests k=5 characters for e-mails when
+    looking for similar, not near-identical, texts). One changed word changes at most 5 shingles, so
+    a text of n words stays at a resemblance of at least (n - 4 - 5m) / (n - 4 + 5m) with m words
+    changed: at 100 words and threshold 0.8 that allows two changed words (numbers excepted).
+
+    A text of fewer than 5 words is one shingle, its whole word sequence with digits kept (in a short
+    text a number may be all it says: "error 404" is not "error 500"), so short texts join only texts
+    with the same words up to case and punctuation ("hello?" and "help!" never do). A text without
+    any word is one shingle of its whitespace-collapsed, lower-cased characters.
+
+    LSH bands: the largest r (rows per band, b = num_perm // r bands) for which a pair exactly at the
+    threshold becomes a candidate with probability >= BAND_RECALL (r=6, b=21 for 0.8 and 128).
+    Within a bucket every text is checked against the bucket's first text and the text before it, so
+    a bucket of thousands of templated texts costs a linear number of checks. Candidates whose
+    signatures agree in fewer positions than a pair at the threshold would with probability
+    PREFILTER_MISS are dropped; the rest are confirmed by the exact resemblance of their shingle sets
+    (pairs already joined are skipped).
+
+    Parameters
+    ----------
+    texts : sequence of str, length n_texts
+        Distinct texts (exact duplicates already grouped, as by ``pipeline.collect_distinct``).
+    threshold : float, default 0.8
+        Least resemblance of two near-duplicates, in (0, 1].
+    seed : int, default 0
+        Seeds the MinHash functions; the same texts and seed give the same groups.
+    num_perm : int, default 128
+        MinHash functions per signature. The standard error of a MinHash estimate of a resemblance J
+        is sqrt(J (1 - J) / num_perm), 0.035 at J = 0.8 with 128.
+
+    Returns
+    -------
+    NearDuplicates
+        ``group_of`` (n_texts,), ``representative`` and ``sizes`` (n_groups,), all int64.
+
+    Raises
+    ------
+    ValueError
+        If `threshold`, `seed` or `num_perm` is out of range (every problem is named).
+    """
+    problems = []
+    if not 0.0 < threshold <= 1.0:
+        problems.append(f"threshold={threshold} must be in (0, 1]")
+    if isinstance(num_perm, bool) or not isinstance(num_perm, int) or num_perm < 1:
+        problems.append(f"num_perm={num_perm!r} must be a positive integer")
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        problems.append(f"seed={seed!r} must be a non-negative integer")
+    if problems:
+        raise ValueError("; ".join(problems))
+    n = len(texts)
+    if n == 0:
+        empty = np.zeros(0, dtype=np.int64)
+        return NearDuplicates(empty, empty.copy(), empty.copy(), float(threshold))
+    hashes, offsets = shingle_hashes(texts)
+    signatures = minhash_signatures(hashes, offsets, num_perm=num_perm, seed=seed)
+    bands, rows = lsh_bands(num_perm, threshold)
+    codes = _candidate_codes(signatures, bands, rows)
+    agreeing = _agreements(signatures, codes, n)
+    least = int(binom.ppf(PREFILTER_MISS, num_perm, threshold))
+    keep = agreeing >= least
+    codes, agreeing = codes[keep], agreeing[keep]
+    # Most similar pairs first, so that the rest are mostly already joined and skip the exact check.
+    codes = codes[np.lexsort((codes, -agreeing))]
+
+    parent = list(range(n))
+
+    def find(x: int) -> int:
+        while parent[x] != x:
+            parent[x] = parent[parent[x]]
+            x = parent[x]
+        return x
+
+    for code in codes.tolist():
+        lo, hi = divmod(code, n)
+        root_lo, root_hi = find(lo), find(hi)
+        if root_lo == root_hi:
+            continue
+        if _resemblance(hashes[offsets[lo] : offsets[lo + 1]], hashes[offsets[hi] : offsets[hi + 1]]) >= threshold:
+            # The smaller index stays root, so every root is its component's first text.
+            parent[max(root_lo, root_hi)] = min(root_lo, root_hi)
+    roots = np.fromiter((find(i) for i in range(n)), dtype=np.int64, count=n)
+    representative, group_of = np.unique(roots, return_inverse=True)
+    sizes = np.bincount(group_of, minlength=representative.size)
+    return NearDuplicates(group_of.astype(np.int64), representative.astype(np.int64), sizes.astype(np.int64),
+                          float(threshold))
+
+
+def shingle_hashes(texts: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Each text's set of shingles as sorted unique 64-bit hashes (see `near_duplicate_groups` for the shingles).
+
+    Words are hashed once each with BLAKE2b; a shingle's hash is a position-weighted sum of its word
+    hashes, finalized with the SplitMix64 mixer (Steele, Lea & Flood 2014, "Fast splittable pseudorandom
+    number generators"). Hashes depend only on the text, not on the other texts or their order.
+
+    Returns
+    -------
+    hashes : ndarray of uint64, shape (n_shingles,)
+        The sets one after the other, each sorted.
+    offsets : ndarray of int64, shape (n_texts + 1,)
+        Text i's set is ``hashes[offsets[i]:offsets[i + 1]]``; every set has at least one shingle.
+    """
+    n = len(texts)
+    vocabulary = _Vocabulary()
+    word_ids = array("q")
+    lengths = np.zeros(n, dtype=np.int64)
+    whole: list[tuple[int, int]] = []
+    for i, text in enumerate(texts):
+        lowered = text.lower()
+        words = _WORD.findall(_DIGITS.sub("0", lowered))
+        if len(words) >= SHINGLE_WORDS:
+            word_ids.extend(map(vocabulary.__getitem__, words))
+            lengths[i] = len(words)
+        else:
+            kept = _WORD.findall(lowered)  # the same words, digits kept
+            key = "w\0" + " ".join(kept) if kept else "c\0" + " ".join(lowered.split())
+            whole.append((i, _hash64(key)))
+    word_hash = np.fromiter((_hash64(word) for word in vocabulary), dtype=np.uint64, count=len(vocabulary))
+    tokens = word_hash[np.frombuffer(word_ids, dtype=np.int64)] if len(word_ids) else np.zeros(0, np.uint64)
+
+    windows = np.where(lengths > 0, lengths - SHINGLE_WORDS + 1, 0)
+    token_start = np.cumsum(lengths) - lengths
+    window_start = np.cumsum(windows) - windows
+    owner = np.repeat(np.arange(n, dtype=np.int64), windows)
+    position = np.repeat(token_start - window_start, windows) + np.arange(owner.size, dtype=np.int64)
+    shingles = np.zeros(owner.size, dtype=np.uint64)
+    for j in range(SHINGLE_WORDS):
+        shingles += tokens[position + j] * _POSITION_WEIGHTS[j]
+    shingles = _splitmix64(shingles)
+
+    if whole:
+        short_owner, short_hash = (np.array(column) for column in zip(*whole, strict=True))
+        owner = np.concatenate([owner, short_owner.astype(np.int64)])
+        shingles = np.concatenate([shingles, short_hash.astype(np.uint64)])
+    order = np.lexsort((shingles, owner))
+    owner, shingles = owner[order], shingles[order]
+    first = np.ones(owner.size, dtype=bool)
+    first[1:] = (owner[1:] != owner[:-1]) | (shingles[1:] != shingles[:-1])
+    owner, shingles = owner[first], shingles[first]
+    offsets = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(np.bincount(owner, minlength=n), out=offsets[1:])
+    return shingles, offsets
+
+
+def minhash_signatures(hashes: np.ndarray, offsets: np.ndarray, *, num_perm: int, seed: int) -> np.ndarray:
+    """MinHash signatures of shingle sets: the least value of each of `num_perm` hash functions.
+
+    The functions are x -> (a x + b) mod 2^64 with random odd a and random b (multiply-add hashing,
+    Dietzfelbinger, Hagerup, Katajainen & Penttonen 1997), applied to already well-mixed shingle hashes;
+    the top 32 bits of each minimum are kept. The fraction of agreeing positions of two signatures
+    estimates the resemblance of the two sets (Broder 1997); its accuracy is checked in the tests.
+
+    Parameters
+    ----------
+    hashes, offsets : as returned by `shingle_hashes` (every set non-empty)
+    num_perm : int
+    seed : int
+
+    Returns
+    -------
+    ndarray of uint32, shape (n_texts, num_perm)
+    """
+    rng = np.random.default_rng(seed)
+    a = rng.integers(0, np.iinfo(np.uint64).max, size=num_perm, dtype=np.uint64, endpoint=True) | np.uint64(1)
+    b = rng.integers(0, np.iinfo(np.uint64).max, size=num_perm, dtype=np.uint64, endpoint=True)
+    n = offsets.size - 1
+    signatures = np.full((n, num_perm), np.iinfo(np.uint32).max, dtype=np.uint32)
+    total = int(offsets[-1])
+    for start in range(0, total, _CHUNK_SHINGLES):
+        stop = min(start + _CHUNK_SHINGLES, total)
+        first = int(np.searchsorted(offsets, start, side="right")) - 1
+        last = int(np.searchsorted(offsets, stop, side="left"))  # texts first..last-1 overlap the chunk
+        block = np.multiply.outer(hashes[start:stop], a)
+        block += b
+        segments = np.maximum(offsets[first:last], start) - start
+        least = (np.minimum.reduceat(block, segments, axis=0) >> 32).astype(np.uint32)
+        np.minimum(signatures[first:last], least, out=signatures[first:last])
+    return signatures
+
+
+def lsh_bands(num_perm: int, threshold: float) -> tuple[int, int]:
+    """(bands, rows): the most rows per band for which a pair at `threshold` is a candidate with P >= BAND_RECALL."""
+    for rows in range(num_perm, 0, -1):
+        bands = num_perm // rows
+        if 1.0 - (1.0 - threshold**rows) ** bands >= BAND_RECALL:
+            return bands, rows
+    return num_perm, 1
+
+
+def _candidate_codes(signatures: np.ndarray, bands: int, rows: int) -> np.ndarray:
+    """Candidate pairs (lo * n + hi, lo < hi, sorted, unique) from texts sharing a bucket in any band."""
+    n = signatures.shape[0]
+    weights = np.random.default_rng(_BAND_KEY_SEED).integers(
+        0, np.iinfo(np.uint64).max, size=rows, dtype=np.uint64, endpoint=True
+    ) | np.uint64(1)
+    found = []
+    for band in range(bands):
+        # A weighted sum identifies the band's rows; a rare collision only adds a candidate to check.
+        key = signatures[:, band * rows : (band + 1) * rows].astype(np.uint64) @ weights
+        order = np.argsort(key, kind="stable")
+        sorted_key = key[order]
+        new_run = np.ones(n, dtype=bool)
+        new_run[1:] = sorted_key[1:] != sorted_key[:-1]
+        if new_run.all():
+            continue
+        run_first = order[np.flatnonzero(new_run)][np.cumsum(new_run) - 1]
+        later = np.flatnonzero(~new_run)
+        hi = order[later]
+        found.append(run_first[later] * n + hi)  # against the bucket's first text
+        found.append(order[later - 1] * n + hi)  # against the text before it in the bucket
+    if not found:
+        return np.zeros(0, dtype=np.int64)
+    return np.unique(np.concatenate(found))
+
+
+def _agreements(signatures: np.ndarray, codes: np.ndarray, n: int) -> np.ndarray:
+    """Number of agreeing signature positions of each candidate pair."""
+    agreeing = np.zeros(codes.size, dtype=np.int64)
+    for start in range(0, codes.size, _CHUNK_PAIRS):
+        lo, hi = np.divmod(codes[start : start + _CHUNK_PAIRS], n)
+        agreeing[start : start + lo.size] = (signatures[lo] == signatures[hi]).sum(axis=1)
+    return agreeing
+
+
+def _resemblance(a: np.ndarray, b: np.ndarray) -> float:
+    """Exact Jaccard similarity of two sorted sets of unique hashes."""
+    common = np.intersect1d(a, b, assume_unique=True).size
+    return common / (a.size + b.size - common)
+
+
+class _Vocabulary(dict[str, int]):
+    """Word -> id in order of first appearance; looking up a new word adds it."""
+
+    def __missing__(self, word: str) -> int:
+        self[word] = len(self)
+        return len(self) - 1
+
+
+def _hash64(text: str) -> int:
+    return int.from_bytes(hashlib.blake2b(text.encode("utf-8", "surrogatepass"), digest_size=8).digest(), "little")
+
+
+def _splitmix64(x: np.ndarray) -> np.ndarray:
+    """The SplitMix64 finalizer (Steele, Lea & Flood 2014), elementwise on uint64."""
+    x = x ^ (x >> np.uint64(30))
+    x *= np.uint64(0xBF58476D1CE4E5B9)
+    x ^= x >> np.uint64(27)
+    x *= np.uint64(0x94D049BB133111EB)
+    x ^= x >> np.uint64(31)
+    return x
+
+
+@dataclass(frozen=True)
+class Boilerplate:
+    """Lines that recur in many documents, to be removed before vectorizing.
+
+    ``lines`` holds each normalized line (whitespace collapsed, lower-cased) with the number of
+    documents it appears in, most frequent first (ties in alphabetical order).
+    """
+
+    lines: tuple[tuple[str, int], ...]
+    min_share: float
+
+    @cached_property
+    def normalized(self) -> frozenset[str]:
+        """The normalized lines, for matching."""
+        return frozenset(line for line, _ in self.lines)
+
+
+def normalize_line(line: str) -> str:
+    """A line as matched against boilerplate: whitespace runs collapsed to one space, trimmed, lower-cased."""
+    return " ".join(line.split()).lower()
+
+
+def find_boilerplate(
+    texts: Sequence[str],
+    *,
+    min_share: float = BOILERPLATE_MIN_SHARE,
+    min_docs: int = BOILERPLATE_MIN_DOCS,
+    min_chars: int = BOILERPLATE_MIN_CHARS,
+) -> Boilerplate:
+    """Lines found in at least `min_share` of the texts and in at least `min_docs` texts.
+
+    Common practice in cleaning web and e-mail text: a line repeated verbatim across many documents is
+    a template, not content (e.g. Wenzek et al. 2020, "CCNet", LREC, remove lines repeated across
+    documents after normalizing them; cited from memory). Lines are normalized with `normalize_line`
+    and counted once per text, in one pass with a Counter.
+
+    Defaults: a line in >= 5% of the texts and >= 5 texts. The share finds a company footer or a busy
+    agent's signature; the floor of 5 texts keeps a small collection from losing lines that two or
+    three texts share by quoting one another. A line of fewer than `min_chars` (20) characters after
+    normalizing is never boilerplate: short lines such as "Thanks," or "Hi team" recur by habit, carry
+    a word or two that the vectorizer's document-frequency limits already discount, and are as often
+    content ("Still not working", "Yes please") that must not be deleted for being common.
+
+    Parameters
+    ----------
+    texts : sequence of str
+        Lines are split as by ``str.splitlines``.
+    min_share : float, default 0.05
+        Least share of the texts holding the line, in (0, 1].
+    min_docs : int, default 5
+        Least number of texts holding the line, at least 1.
+    min_chars : int, default 20
+        Least length of a normalized boilerplate line, at least 1.
+
+    Returns
+    -------
+    Boilerplate
+        The lines and their counts of texts, most frequent first.
+
+    Raises
+    ------
+    ValueError
+        If an option is out of range (every problem is named).
+    """
+    problems = []
+    if not 0.0 < min_share <= 1.0:
+        problems.append(f"min_share={min_share} must be in (0, 1]")
+    if min_docs < 1:
+        problems.append(f"min_docs={min_docs} must be at least 1")
+    if min_chars < 1:
+        problems.append(f"min_chars={min_chars} must be at least 1")
+    if problems:
+        raise ValueError("; ".join(problems))
+    counts: Counter[str] = Counter()
+    for text in texts:
+        counts.update({key for line in text.splitlines() if len(key := normalize_line(line)) >= min_chars})
+    # Rounded first so that, say, 0.07 * 100 asks for 7 texts and not 8.
+    needed = max(min_docs, math.ceil(round(min_share * len(texts), 9)))
+    lines = sorted(((line, count) for line, count in counts.items() if count >= needed),
+                   key=lambda item: (-item[1], item[0]))
+    return Boilerplate(tuple(lines), float(min_share))
+
+
+def strip_boilerplate(text: str, boilerplate: Boilerplate) -> str:
+    """`text` without the lines whose normalized form is boilerplate; every other line is kept as it was.
+
+    Lines keep their own line breaks. A kept line ending in a lone carriage return that comes to stand
+    before a line starting with a line feed gets the line feed added, so that the two stay two lines.
+    """
+    remove = boilerplate.normalized
+    if not remove:
+        return text
+    kept: list[str] = []
+    for line in text.splitlines(keepends=True):
+        if normalize_line(line) in remove:
+            continue
+        if kept and kept[-1].endswith("\r") and line.startswith("\n"):
+            kept[-1] += "\n"
+        kept.append(line)
+    return "".join(kept)

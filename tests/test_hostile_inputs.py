@@ -1,0 +1,158 @@
+"""Hostile and messy inputs: every file is a document or a line of the ingest report, never a traceback."""
+
+from __future__ import annotations
+
+import csv
+import os
+from pathlib import Path
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from typer.testing import CliRunner
+
+from pilewise.cli import app
+from pilewise.errors import PilewiseError
+from pilewise.reading import ReadLimits, read_source
+from pilewise.tables import ColumnChoice
+
+runner = CliRunner()
+TOPICS = ["soil compost seedling mulch watering", "chain saddle pedal spoke brake", "oven flour dough whisk butter"]
+
+
+def _good_files(folder: Path, n: int = 12) -> None:
+    for i in range(n):
+        (folder / f"good-{i:02d}.txt").write_text(f"{TOPICS[i % 3]} {TOPICS[i % 3]} note {i}", encoding="utf-8")
+
+
+def _hostile_folder(folder: Path) -> None:
+    folder.mkdir()
+    _good_files(folder)
+    (folder / "random.txt").write_bytes(bytes(range(256)) * 40)
+    (folder / "nul.txt").write_bytes(b"soil\x00compost\x00" * 100)
+    (folder / "latin1.txt").write_bytes("compost for the caf\xe9 garden, cr\xe8me soil".encode("latin-1"))
+    (folder / "cp1252.md").write_bytes("\u201csmart quotes\u201d about pedal and chain \u2013 brake".encode("cp1252"))
+    (folder / "mixed.txt").write_bytes(b"oven flour " + "caf\xe9".encode("latin-1") + b" dough")
+    (folder / "utf16.txt").write_text("whisk butter oven flour dough", encoding="utf-16")
+    (folder / "big-line.txt").write_text("flour " * 9_000_000, encoding="utf-8")  # one line, 54 MB
+    (folder / "nested.html").write_text("<div>" * 5000 + "spoke saddle deep inside" + "</div>" * 5000)
+    (folder / "broken.html").write_text("<html><title>Half <b>open<p>pedal chain <td>brake</tr></table", "utf-8")
+    (folder / "empty.txt").write_bytes(b"")
+    (folder / "blank.md").write_text("   \n\t\n", encoding="utf-8")
+    (folder / "scan.pdf").write_bytes(b"%PDF-1.4 binary")
+    with (folder / "export.csv").open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["id", "text"])
+        writer.writerow(["c1", 'soil "quoted" compost,\nover two lines'])
+        writer.writerow(["c2", ""])
+    with (folder / "export.csv").open("a", encoding="utf-8") as handle:
+        handle.write("c3,too,many,fields\n")
+    (folder / "lines.jsonl").write_text('{"text": "pedal chain"}\n{broken\n["not", "an object"]\n', "utf-8")
+    (folder / "loop-a").symlink_to(folder / "loop-b")
+    (folder / "loop-b").symlink_to(folder / "loop-a")
+    (folder / "dangling.txt").symlink_to(folder / "nowhere.txt")
+    (folder / "self-dir").symlink_to(folder, target_is_directory=True)
+    os.mkfifo(folder / "pipe.txt")
+
+
+@pytest.fixture(scope="module")
+def hostile(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    folder = tmp_path_factory.mktemp("hostile") / "data"
+    _hostile_folder(folder)
+    return folder
+
+
+def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
+    ingested = read_source(hostile, ColumnChoice(), ReadLimits())
+    found = {p.relative_to(hostile).as_posix() for p in hostile.iterdir()}
+    documents = {d.source.split("#")[0] for d in ingested.documents}
+    reported = {e.source.split("#")[0] for e in ingested.entries}
+    assert found <= documents | reported
+    reasons = {e.source: e.reason for e in ingested.entries if e.status == "skipped"}
+    assert reasons["random.txt"] == "binary" and reasons["nul.txt"] == "binary"
+    assert reasons["empty.txt"] == "empty" and reasons["blank.md"] == "empty"
+    assert reasons["scan.pdf"] == "unsupported"
+    assert reasons["self-dir"] == "link to a folder"
+    assert reasons["pipe.txt"] == "not a regular file"
+    assert {reasons["loop-a"], reasons["loop-b"], reasons["dangling.txt"]} == {"unreadable"}
+    assert reasons["export.csv#row2"] == "empty" and reasons["export.csv#line5"] == "malformed row"
+    assert reasons["lines.jsonl#line2"] == "invalid JSON" and reasons["lines.jsonl#line3"] == "invalid JSON"
+    texts = {d.source: d.text for d in ingested.documents}
+    assert "café" in texts["latin1.txt"] and "\u201csmart quotes\u201d" in texts["cp1252.md"]
+    assert texts["utf16.txt"] == "whisk butter oven flour dough"
+    assert texts["nested.html"] == "spoke saddle deep inside"
+    assert len(texts["big-line.txt"]) == 1_000_000  # truncated, and said so
+    assert any(e.source == "big-line.txt" and e.reason == "truncated" for e in ingested.entries)
+    assert texts["export.csv#row1"] == 'soil "quoted" compost,\nover two lines'
+
+
+def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Path, tmp_path: Path) -> None:
+    result = runner.invoke(app, ["run", str(hostile), "--k", "3", "--out", str(tmp_path / "site")])
+    assert result.exit_code == 0, result.stderr
+    report = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "ingest-report.csv").open(encoding="utf-8")))
+    assignments = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
+    skipped = [r for r in report if r["status"] == "skipped"]
+    summary = [line for line in result.stderr.splitlines() if "documents in 3 clusters" in line][0]
+    assert summary.startswith(f"{len(assignments):,} documents") and f"{len(skipped):,} files or rows skipped" in summary
+
+
+def test_a_folder_where_every_document_is_identical(tmp_path: Path) -> None:
+    for i in range(5):
+        (tmp_path / f"copy-{i}.txt").write_text("the same auto-reply text", encoding="utf-8")
+    result = runner.invoke(app, ["run", str(tmp_path), "--k", "2", "--out", str(tmp_path.parent / "out-same"),
+                                 "--quiet"])
+    assert result.exit_code == 1
+    assert result.stderr.strip() == (
+        "pilewise: error: found 1 distinct document(s); clustering needs at least 3, so add documents or point "
+        "SOURCE at a larger collection"
+    )
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(payload=st.binary(max_size=3000), suffix=st.sampled_from([".txt", ".md", ".html", ".eml", ".csv", ".jsonl",
+                                                                  ".json", ".tsv"]))
+def test_random_bytes_never_crash_a_reader(tmp_path: Path, payload: bytes, suffix: str) -> None:
+    folder = tmp_path / f"fuzz{abs(hash((payload, suffix)))}"
+    folder.mkdir()
+    (folder / f"x{suffix}").write_bytes(payload)
+    try:
+        ingested = read_source(folder, ColumnChoice(), ReadLimits())
+    except PilewiseError as err:
+        assert "\n" not in str(err)
+        return
+    assert ingested.documents or ingested.entries
+
+
+def test_ctrl_c_prints_one_line_and_leaves_the_previous_run_intact(tmp_path: Path) -> None:
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    folder = tmp_path / "data"
+    folder.mkdir()
+    _good_files(folder, n=3000)
+    out = tmp_path / "site"
+    first = runner.invoke(app, ["run", str(folder), "--k", "3", "--out", str(out), "--quiet", "--resamples", "1"])
+    assert first.exit_code == 0, first.stderr
+    before = (out / "runs" / "k3" / "clusters.json").read_bytes()
+    process = subprocess.Popen(
+        [sys.executable, "-m", "pilewise", "run", str(folder), "--k", "3", "--out", str(out), "--seed", "5",
+         "--resamples", "200"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )
+    deadline = time.time() + 60
+    while time.time() < deadline and not list((out / "runs").glob(".k3-building-*")):
+        if process.poll() is not None:
+            break
+        time.sleep(0.05)
+    # interrupt mid-run (while assessing or writing), as Ctrl-C in a terminal would
+    process.send_signal(signal.SIGINT)
+    _, stderr = process.communicate(timeout=120)
+    if process.returncode == 0:
+        pytest.skip("the run finished before the interrupt arrived")
+    assert process.returncode == 130
+    assert "Traceback" not in stderr
+    assert stderr.strip().splitlines()[-1] == "pilewise: interrupted; the previous site is unchanged"
+    assert (out / "runs" / "k3" / "clusters.json").read_bytes() == before
+    assert not list((out / "runs").glob(".k3-*"))
