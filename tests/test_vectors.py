@@ -91,3 +91,24 @@ def test_bulk_tokenizing_gives_the_same_tokens_as_nltk() -> None:
     assert analyzer.tokens(text) == RegexpTokenizer(TOKEN_PATTERN).tokenize(text.lower())
     assert "o'neil" in analyzer.tokens(text) and "re-potted" in analyzer.tokens(text)
     assert [t for _, _, t in analyzer.spans(text)] == analyzer.terms(text)
+
+
+def test_phrase_counts_follow_the_text_order() -> None:
+    """Regression: sorting the word matrix in place once scrambled the adjacent pairs."""
+    import random
+
+    from pilewise.vectors import count_terms
+
+    analyzer = Analyzer(stop_words=frozenset({"the"}), stem=False)
+    rng = random.Random(0)
+    texts = [" ".join(rng.choice(["aa", "bb", "cc", "the", "dd"]) for _ in range(rng.randint(0, 8))) for _ in range(60)]
+    _, terms, pairs, pair_words = count_terms(texts, analyzer)
+    for i, text in enumerate(texts):
+        kept = analyzer.terms(text)
+        expected: dict[tuple[str, str], int] = {}
+        for pair in zip(kept, kept[1:], strict=False):
+            expected[pair] = expected.get(pair, 0) + 1
+        row = pairs.getrow(i)
+        got = {(terms[pair_words[j][0]], terms[pair_words[j][1]]): int(c) for j, c in zip(row.indices, row.data,
+                                                                                           strict=True)}
+        assert got == expected, text

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import csv
-import io
 import json
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
 
+import charset_normalizer
 import pandas as pd
 
 from pilewise.errors import PilewiseError
@@ -36,45 +37,51 @@ def read_table(
     path: Path, rel: str, choice: ColumnChoice, max_doc_chars: int
 ) -> tuple[list[Document], list[IngestEntry], list[str]]:
     """Read one table; rows without text become report entries, never silent drops."""
-    frame, entries = _load_frame(path, rel)
-    if frame is None:
+    table, entries = _load_table(path, rel)
+    if table is None:
         return [], entries, []
-    columns = [str(c) for c in frame.columns]
-    frame.columns = pd.Index(columns)
-    text_col, title_col, id_col, date_col, notes = _choose_columns(frame, rel, choice)
+    header, rows = table
+    text_col, title_col, id_col, date_col, notes = _choose_columns(header, rows, rel, choice)
+    position = {name: i for i, name in enumerate(header)}
+    text_at = position[text_col]
+    title_at = position[title_col] if title_col else None
+    id_at = position[id_col] if id_col else None
+    date_at = position[date_col] if date_col else None
+    extra = [(name, i) for i, name in enumerate(header) if name not in {text_col, title_col, id_col, date_col}]
     documents: list[Document] = []
-    extra_cols = [c for c in columns if c not in {text_col, title_col, id_col, date_col}]
     seen_ids: set[str] = set()
-    records = frame.to_dict("records")
-    for row_number, record in enumerate(records, start=1):
+    for row_number, row in enumerate(rows, start=1):
         where = f"{rel}#row{row_number}"
-        text = _cell(record.get(text_col)).strip()
+        text = row[text_at].strip()
         if not text:
             entries.append(IngestEntry(where, "skipped", "empty", f"column {text_col!r} is empty"))
             continue
         if len(text) > max_doc_chars:
             entries.append(IngestEntry(where, "note", "truncated", f"kept the first {max_doc_chars:,} characters"))
             text = text[:max_doc_chars]
-        doc_id = _cell(record.get(id_col)).strip() if id_col else ""
+        doc_id = row[id_at].strip() if id_at is not None else ""
         if not doc_id or doc_id in seen_ids:
             if doc_id:
                 entries.append(IngestEntry(where, "note", "duplicate id", f"id {doc_id!r} repeats; used {where}"))
             doc_id = where
         seen_ids.add(doc_id)
-        title = _cell(record.get(title_col)).strip() if title_col else ""
+        title = row[title_at].strip() if title_at is not None else ""
         documents.append(
             Document(
                 doc_id=doc_id,
                 source=where,
                 title=" ".join(title.split())[:200] or first_line_title(text),
                 text=text,
-                date=_cell(record.get(date_col)).strip() if date_col else "",
-                metadata=tuple((c, _cell(record.get(c))) for c in extra_cols),
+                date=row[date_at].strip() if date_at is not None else "",
+                metadata=tuple((name, row[i]) for name, i in extra),
             )
         )
-    summary = f"{len(documents)} of {len(records)} rows became documents (text column {text_col!r})"
+    summary = f"{len(documents)} of {len(rows)} rows became documents (text column {text_col!r})"
     entries.insert(0, IngestEntry(rel, "document", "table", summary))
     return documents, entries, [f"{rel}: {note}" for note in notes]
+
+
+Table = tuple[list[str], list[list[str]]]
 
 
 def _cell(value: object) -> str:
@@ -88,28 +95,32 @@ def _cell(value: object) -> str:
     return str(value)
 
 
-def _load_frame(path: Path, rel: str) -> tuple[pd.DataFrame | None, list[IngestEntry]]:
+def _frame_rows(frame: pd.DataFrame) -> Table:
+    header = [str(c) for c in frame.columns]
+    return header, [[_cell(v) for v in record] for record in frame.itertuples(index=False, name=None)]
+
+
+def _load_table(path: Path, rel: str) -> tuple[Table | None, list[IngestEntry]]:
     suffix = path.suffix.lower()
     entries: list[IngestEntry] = []
     try:
         if suffix == ".parquet":
-            return pd.read_parquet(path), entries
+            return _frame_rows(pd.read_parquet(path)), entries
+        if suffix in {".csv", ".tsv"}:
+            return _read_delimited_file(path, "\t" if suffix == ".tsv" else ",", rel, entries), entries
         raw = path.read_bytes()
         text, note = decode_bytes(raw)
         if note:
             entries.append(IngestEntry(rel, "note", "encoding", note))
-        if suffix in {".csv", ".tsv"}:
-            sep = "\t" if suffix == ".tsv" else ","
-            return _read_delimited(text, sep, rel, entries), entries
         if suffix in {".jsonl", ".ndjson"}:
-            return _read_json_lines(text, rel, entries), entries
+            return _frame_rows(_read_json_lines(text, rel, entries)), entries
         data = json.loads(text)
         if isinstance(data, dict):
             lists = [v for v in data.values() if isinstance(v, list)]
             data = lists[0] if len(lists) == 1 else [data]
         if not isinstance(data, list):
             raise ValueError("top level is neither a list of records nor an object holding one")
-        return pd.DataFrame([r if isinstance(r, dict) else {"text": r} for r in data]), entries
+        return _frame_rows(pd.DataFrame([r if isinstance(r, dict) else {"text": r} for r in data])), entries
     except (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError) as err:
         message = str(err).splitlines()[0][:200] if str(err) else type(err).__name__
         entries.append(IngestEntry(rel, "skipped", "unreadable table", message))
@@ -119,10 +130,27 @@ def _load_frame(path: Path, rel: str) -> tuple[pd.DataFrame | None, list[IngestE
         return None, entries
 
 
-def _read_delimited(text: str, sep: str, rel: str, entries: list[IngestEntry]) -> pd.DataFrame:
+def _read_delimited_file(path: Path, sep: str, rel: str, entries: list[IngestEntry]) -> Table:
+    """Stream a CSV/TSV file as UTF-8; if it is not UTF-8, read it again in the detected encoding."""
+    try:
+        with path.open(encoding="utf-8-sig", newline="") as handle:
+            return _read_delimited(handle, sep, rel, entries)
+    except UnicodeDecodeError:
+        pass
+    del entries[:]  # rows reported during the failed pass are reported again
+    with path.open("rb") as handle:
+        head = handle.read(1_000_000)
+    best = charset_normalizer.from_bytes(head).best()
+    encoding = best.encoding if best is not None and best.encoding else "latin-1"
+    entries.append(IngestEntry(rel, "note", "encoding", f"not UTF-8; decoded as {encoding}"))
+    with path.open(encoding=encoding, errors="replace", newline="") as handle:
+        return _read_delimited(handle, sep, rel, entries)
+
+
+def _read_delimited(lines: Iterable[str], sep: str, rel: str, entries: list[IngestEntry]) -> Table:
     """CSV/TSV rows with the csv module (quotes, embedded newlines); a row of the wrong width is reported."""
     csv.field_size_limit(2**31 - 1)  # documents may be long; --max-doc-chars truncates them later
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=sep)
+    reader = csv.reader(lines, delimiter=sep)
     header = next(reader, None)
     if not header:
         raise ValueError("no header row")
@@ -136,7 +164,7 @@ def _read_delimited(text: str, sep: str, rel: str, entries: list[IngestEntry]) -
             entries.append(IngestEntry(where, "skipped", "malformed row", detail))
             continue
         rows.append(row)
-    return pd.DataFrame(rows, columns=header, dtype=str)
+    return header, rows
 
 
 def _read_json_lines(text: str, rel: str, entries: list[IngestEntry]) -> pd.DataFrame:
@@ -157,9 +185,9 @@ def _read_json_lines(text: str, rel: str, entries: list[IngestEntry]) -> pd.Data
 
 
 def _choose_columns(
-    frame: pd.DataFrame, rel: str, choice: ColumnChoice
+    header: list[str], rows: list[list[str]], rel: str, choice: ColumnChoice
 ) -> tuple[str, str | None, str | None, str | None, list[str]]:
-    columns = list(frame.columns)
+    columns = header
     listing = ", ".join(columns) or "none"
     for flag, name in (("--text-column", choice.text), ("--title-column", choice.title),
                        ("--id-column", choice.id), ("--date-column", choice.date)):
@@ -170,7 +198,7 @@ def _choose_columns(
     text_col = choice.text
     if text_col is None:
         named = [lower[n] for n in TEXT_NAMES if n in lower]
-        text_col = named[0] if len(named) == 1 else _longest_text_column(frame, named or columns)
+        text_col = named[0] if len(named) == 1 else _longest_text_column(header, rows, named or columns)
         if text_col is None:
             raise PilewiseError(f"no text column found in {rel}; pass --text-column (columns: {listing})")
         notes.append(f"guessed text column {text_col!r}")
@@ -195,14 +223,15 @@ def _choose_columns(
     return text_col, title_col, id_col, date_col, notes
 
 
-def _longest_text_column(frame: pd.DataFrame, candidates: list[str]) -> str | None:
+def _longest_text_column(header: list[str], rows: list[list[str]], candidates: list[str]) -> str | None:
     """The column whose cells are clearly the longest text (twice the runner-up), else None."""
+    sample = rows[:2000]
     lengths: list[tuple[float, str]] = []
     for col in candidates:
-        values = frame[col].dropna().astype(str)
-        if len(values) == 0:
-            continue
-        lengths.append((float(values.str.len().mean()), col))
+        i = header.index(col)
+        cells = [len(row[i]) for row in sample if row[i]]
+        if cells:
+            lengths.append((sum(cells) / len(cells), col))
     lengths.sort(reverse=True)
     if not lengths or lengths[0][0] < 20:
         return None

@@ -77,34 +77,62 @@ MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
 def count_terms(
-    texts: Iterable[str], analyzer: Analyzer
+    texts: Iterable[str], analyzer: Analyzer, min_df: int = 1
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
     Returns the word count matrix (texts x words), the words, the pair count matrix (texts x pairs) and
     the pairs as (first word id, second word id) rows. Pairs are counted as 64-bit codes in numpy, which
-    keeps a large collection's millions of distinct pairs out of Python dictionaries.
+    keeps a large collection's millions of distinct pairs out of Python dictionaries. Pairs with a word in
+    fewer than `min_df` texts are left out: a pair is never in more texts than either of its words.
     """
     vocabulary: defaultdict[str, int] = defaultdict(itertools.count().__next__)
-    ids = array("q")
+    ids = array("i")
     indptr = array("q", [0])
     id_of = vocabulary.__getitem__
     for text in texts:
         ids.extend(map(id_of, analyzer.terms(text)))
         indptr.append(len(ids))
     n_texts, n_words = len(indptr) - 1, max(len(vocabulary), 1)
-    word_ids = np.frombuffer(ids, dtype=np.int64) if len(ids) else np.zeros(0, dtype=np.int64)
+    word_ids = np.frombuffer(ids, dtype=np.int32) if len(ids) else np.zeros(0, dtype=np.int32)
     bounds = np.frombuffer(indptr, dtype=np.int64)
-    words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids, bounds), shape=(n_texts, n_words))
+    # the matrix gets its own copy of the ids: sum_duplicates sorts them in place, and the pairs need text order
+    words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
+                          shape=(n_texts, n_words))
     words.sum_duplicates()
-    # pairs of adjacent kept words inside one text
-    row_of = np.repeat(np.arange(n_texts), np.diff(bounds))
-    inside = row_of[:-1] == row_of[1:] if word_ids.size > 1 else np.zeros(0, dtype=bool)
-    codes = word_ids[:-1][inside] * n_words + word_ids[1:][inside]
+    # pairs of adjacent kept words inside one text, already in text order: build the CSR matrix directly
+    lengths = np.diff(bounds)
+    starts_of_text = np.zeros(word_ids.size, dtype=bool)
+    starts_of_text[bounds[1:-1][lengths[1:] > 0]] = True  # first word of every text but the first
+    frequent = np.bincount(words.indices, minlength=n_words) >= min_df
+    inside = ~starts_of_text[1:] & frequent[word_ids[:-1]] & frequent[word_ids[1:]]
+    codes = word_ids[:-1][inside].astype(np.int64) * n_words + word_ids[1:][inside]
+    text_of_pair = np.repeat(np.arange(n_texts, dtype=np.int32), lengths)[:-1][inside]
+    del inside, starts_of_text, frequent, word_ids, ids
+    # distinct pairs, and each pair's number of texts: keep only those that can pass min_df
     pair_codes, pair_ids = np.unique(codes, return_inverse=True)
-    pairs = sp.csr_matrix(
-        (np.ones(pair_ids.size, dtype=np.int32), (row_of[:-1][inside], pair_ids)), shape=(n_texts, pair_codes.size)
-    )
+    del codes
+    pair_ids = pair_ids.astype(np.int32)
+    first_in_text = np.ones(pair_ids.size, dtype=bool)
+    if pair_ids.size > 1:  # a pair counts once per text: compare with the previous occurrence in the same text
+        order = np.lexsort((pair_ids, text_of_pair))
+        same = (text_of_pair[order][1:] == text_of_pair[order][:-1]) & (pair_ids[order][1:] == pair_ids[order][:-1])
+        first_in_text[order[1:][same]] = False
+        del order, same
+    pair_df = np.bincount(pair_ids[first_in_text], minlength=pair_codes.size)
+    del first_in_text
+    wanted = pair_df >= min_df
+    keep = wanted[pair_ids]
+    renumber = np.cumsum(wanted) - 1
+    pair_codes = pair_codes[wanted]
+    pair_ids = renumber[pair_ids[keep]].astype(np.int32)
+    text_of_pair = text_of_pair[keep]
+    del keep, renumber, wanted, pair_df
+    pair_indptr = np.concatenate([[0], np.cumsum(np.bincount(text_of_pair, minlength=n_texts))])
+    del text_of_pair
+    pairs = sp.csr_matrix((np.ones(pair_ids.size, dtype=np.int32), pair_ids, pair_indptr),
+                          shape=(n_texts, pair_codes.size))
+    del pair_ids
     pairs.sum_duplicates()
     terms = [""] * len(vocabulary)
     for term, i in vocabulary.items():
@@ -127,7 +155,7 @@ def vectorize(
     n = len(texts)
     min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
     max_df: float | int = settings.max_df if n * settings.max_df >= min_df else 1.0
-    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer)
+    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer, min_df)
     df_words, df_pairs = _document_frequency(words), _document_frequency(pairs)
     ceiling = max_df * n
     keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
