@@ -24,7 +24,7 @@ average is recorded before every run), peak resident memory of the process (``ru
 one child, from ``os.wait4``), and the normalized mutual information of its clusters with the
 planted topics. The script prints the
 machine, a Markdown table, the ratios pilewise / bare, and writes every figure to
-``benchmarks/.out/bench-<N>.json``.
+``benchmarks/.out/bench-<N>[-threads<T>]-<UTC time>.json``.
 
 How to run
 ----------
@@ -534,7 +534,8 @@ def main(argv: list[str] | None = None) -> None:
         figures = report(args.docs, collection, min_df, results, info)
         OUT_FOLDER.mkdir(exist_ok=True)
         suffix = f"-threads{args.threads}" if args.threads else ""
-        json_path = OUT_FOLDER / f"bench-{args.docs}{suffix}.json"
+        stamp = info["measured_at"].replace("-", "").replace(":", "").replace("+0000", "Z")
+        json_path = OUT_FOLDER / f"bench-{args.docs}{suffix}-{stamp}.json"
         json_path.write_text(json.dumps(figures, indent=2) + "\n", encoding="utf-8")
         print(f"\nfigures written to {json_path}")
         if args.profile:

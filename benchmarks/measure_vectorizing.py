@@ -6,9 +6,9 @@ On each open labeled collection (``pilewise.corpora.open_sets``: mini_newsgroups
 chat_categories, sentence_sources, wordnet_glosses with its 20,000-gloss sample, fortunes) it runs
 pilewise's own ``vectorize`` + ``kmeans_clusters`` with k = the number of gold labels, once per seed, and
 scores the clusters against the labels with scikit-learn: NMI (arithmetic mean), adjusted Rand index and
-V-measure, plus the wall time of vectorize + cluster. As in ``pilewise run``, exact duplicate texts
-(after collapsing whitespace) are clustered once, weighted by their number of copies; every document
-then takes its text's cluster and the scores are over all documents.
+V-measure, plus the wall time (and the process CPU time) of vectorize + cluster. As in ``pilewise run``,
+exact duplicate texts (after collapsing whitespace) are clustered once, weighted by their number of
+copies; every document then takes its text's cluster and the scores are over all documents.
 
 One factor is changed at a time around the current defaults (stem off, words only in the clustering
 space, LSA 100 components, min_df = ``default_min_df(n)``, max_df 0.5, n_init 4):
@@ -30,7 +30,7 @@ compare them within a table, not across runs.
 How to run
 ----------
     bash corpora/fetch.sh --all                        # once: the open corpora (PyYAML needed for chat)
-    python benchmarks/measure_vectorizing.py           # everything, about an hour on 2 cores
+    python benchmarks/measure_vectorizing.py           # everything: about 35 minutes on 2 busy cores
     python benchmarks/measure_vectorizing.py --collections mini_newsgroups reuters_sample --seeds 0
     python benchmarks/measure_vectorizing.py --sample 6000   # seeded 6,000-document sample of big ones
 
@@ -197,12 +197,14 @@ def measure_once(distinct: Distinct, labels: Sequence[str], k: int, choice: Choi
         lsa_components=choice.lsa_components,
         seed=seed,
     )
+    cpu_start = time.process_time()
     start = time.perf_counter()
     analyzer = Analyzer(stop_words=load_stop_words(None), stem=choice.stem)
     vectors = vectorize(distinct.texts, analyzer, settings)
     vectorized = time.perf_counter()
     clustering = kmeans_clusters(vectors.space, distinct.copies.astype(float), k=k, seed=seed, n_init=choice.n_init)
     done = time.perf_counter()
+    cpu_seconds = time.process_time() - cpu_start
     predicted = clustering.labels[distinct.text_of_doc]
     return {
         "seed": seed,
@@ -212,6 +214,7 @@ def measure_once(distinct: Distinct, labels: Sequence[str], k: int, choice: Choi
         "seconds": done - start,
         "vectorize_seconds": vectorized - start,
         "cluster_seconds": done - vectorized,
+        "cpu_seconds": cpu_seconds,  # all threads of this process: steadier than wall time on a busy machine
         "clusters_found": int(np.unique(clustering.labels).size),
         "load_average_1min": os.getloadavg()[0],
         "facts": dict(vectors.facts),
@@ -226,7 +229,9 @@ def mean_sd(values: Sequence[float]) -> tuple[float, float]:
 def summarize(runs: list[dict[str, Any]], baseline: list[dict[str, Any]]) -> dict[str, Any]:
     """Mean and sd of every score and time; the NMI change from the default, paired by seed."""
     out: dict[str, Any] = {}
-    for metric in ("nmi", "ari", "v_measure", "seconds", "vectorize_seconds", "cluster_seconds"):
+    for metric in ("nmi", "ari", "v_measure", "seconds", "vectorize_seconds", "cluster_seconds", "cpu_seconds"):
+        if any(metric not in r for r in runs):
+            continue  # cpu_seconds is missing from JSON files written before it was recorded
         mean, sd = mean_sd([r[metric] for r in runs])
         out[metric] = {"mean": mean, "sd": sd, "min": min(r[metric] for r in runs)}
     base_by_seed = {r["seed"]: r["nmi"] for r in baseline}

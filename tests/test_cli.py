@@ -106,7 +106,8 @@ def test_table_run_keeps_metadata_columns_in_assignments(tmp_path: Path) -> None
     rows = ["message_id,subject,body,channel"]
     for i in range(30):
         topic = ["soil compost seedling", "chain saddle pedal", "oven flour dough"][i % 3]
-        rows.append(f"M{i},S{i},{topic} {topic} note {i},{'web' if i % 2 else 'chat'}")
+        extra = ["monday", "tuesday", "friday", "urgent", "thanks", "again", "please", "today", "later", "soon"]
+        rows.append(f"M{i},S{i},{topic} {extra[i % 10]} {extra[(i * 3) % 7]} {topic},{'web' if i % 2 else 'chat'}")
     table = tmp_path / "export.csv"
     table.write_text("\n".join(rows) + "\n", encoding="utf-8")
     out = tmp_path / "site"

@@ -21,8 +21,13 @@ TOPICS = ["soil compost seedling mulch watering", "chain saddle pedal spoke brak
 
 
 def _good_files(folder: Path, n: int = 12) -> None:
+    import random
+
+    rng = random.Random(n)
     for i in range(n):
-        (folder / f"good-{i:02d}.txt").write_text(f"{TOPICS[i % 3]} {TOPICS[i % 3]} note {i}", encoding="utf-8")
+        words = TOPICS[i % 3].split()
+        text = " ".join(rng.choice(words) for _ in range(12))
+        (folder / f"good-{i:02d}.txt").write_text(f"{text} note {i}", encoding="utf-8")
 
 
 def _hostile_folder(folder: Path) -> None:

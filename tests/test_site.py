@@ -34,7 +34,7 @@ def _hostile_collection(folder: Path) -> Path:
 def hostile_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
     base = tmp_path_factory.mktemp("hostile")
     table = _hostile_collection(base / "data")
-    outcome = run_collection(RunOptions(source=table, k=3, out=base / "site", quiet=True))
+    outcome = run_collection(RunOptions(source=table, k=3, out=base / "site", quiet=True, near_duplicate=1.0))
     return outcome.run_folder.parent.parent
 
 

@@ -71,6 +71,8 @@ Method = Annotated[str, typer.Option("--method", help="kmeans, or ward (a tree c
 Resamples = Annotated[int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability.")]
 MaxFileMb = Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")]
 MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")]
+Redact = Annotated[bool, typer.Option("--redact/--no-redact", help="Hide e-mails, phones, cards, IBANs, IPs.")]
+NearDuplicate = Annotated[float, typer.Option("--near-duplicate", help="Jaccard at which texts group; 1 = off.")]
 MaxDocuments = Annotated[int, typer.Option("--max-documents", help="Refuse collections with more documents.")]
 KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
 
@@ -115,6 +117,8 @@ def run(
     max_file_mb: MaxFileMb = 100.0,
     max_doc_chars: MaxDocChars = 1_000_000,
     max_documents: MaxDocuments = 2_000_000,
+    redact: Redact = True,
+    near_duplicate: NearDuplicate = 0.8,
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
@@ -125,7 +129,8 @@ def run(
         name=name, text_column=text_column, title_column=title_column, id_column=id_column,
         date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
         lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
-        max_doc_chars=max_doc_chars, max_documents=max_documents, resamples=resamples, quiet=quiet,
+        max_doc_chars=max_doc_chars, max_documents=max_documents, resamples=resamples, redact=redact,
+        near_duplicate=near_duplicate, quiet=quiet,
     )
     _print_outcome(run_collection(options))
 
@@ -152,6 +157,8 @@ def sweep(
     resamples: Resamples = 10,
     max_file_mb: MaxFileMb = 100.0,
     max_doc_chars: MaxDocChars = 1_000_000,
+    redact: Redact = True,
+    near_duplicate: NearDuplicate = 0.8,
     quiet: QuietOption = False,
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
@@ -161,7 +168,7 @@ def sweep(
         name=name, text_column=text_column, title_column=title_column, id_column=id_column,
         date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
         lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
-        max_doc_chars=max_doc_chars, resamples=resamples, quiet=quiet,
+        max_doc_chars=max_doc_chars, resamples=resamples, redact=redact, near_duplicate=near_duplicate, quiet=quiet,
     )
     outcome = sweep_collection(options)
     typer.echo(f"recommended {outcome.reason}", err=True)

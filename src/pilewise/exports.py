@@ -25,7 +25,7 @@ if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
 
 EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv",
-                "names.csv")
+                "names.csv", "boilerplate.csv")
 LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "beautifulsoup4",
              "charset-normalizer", "typer")
 
@@ -38,6 +38,10 @@ def write_exports(folder: Path, result: RunResult) -> None:
     write_ingest_report(folder / "ingest-report.csv", result)
     _write_json(folder / "levels.json", levels_document(result))
     write_names_csv(folder / "names.csv", result.naming)
+    with (folder / "boilerplate.csv").open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow(["line", "texts"])
+        writer.writerows(result.boilerplate.lines)
     write_cuts(folder / "cuts.csv", result)
     if result.sweep is not None:
         _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
@@ -299,6 +303,9 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
             "distinct_texts": int(result.collection.copies.size),
             "skipped": len(ingested.skipped()),
             "notes": list(ingested.notes),
+            "redacted": dict(result.redacted) if result.options.redact else "redaction off",
+            "boilerplate_lines_removed": len(result.boilerplate.lines),
+            "texts_clustered": int(result.collection.copies.size),
         },
         "vectors": result.vectors.facts,
         "libraries": library_versions(),

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import re
 
+from pilewise.redact import display_text
 from pilewise.text import Analyzer
 
 CONTEXT_CHARS = 45
@@ -32,15 +33,15 @@ def find_term(spans: list[tuple[int, int, str]], key: str) -> tuple[int, int] | 
 def kwic_window(text: str, start: int, end: int, width: int = CONTEXT_CHARS) -> tuple[str, str, str]:
     """Left context, match and right context; each context is exactly `width` characters.
 
-    Whitespace runs become one space; the left context is right-aligned so that every match
-    starts in the same column.
+    Whitespace runs become one space and redaction placeholders their labels; the left context is
+    right-aligned so that every match starts in the same column.
     """
-    left = _flat(text[max(0, start - 4 * width) : start])
+    left = _flat(display_text(text[max(0, start - 4 * width) : start]))
     if len(left) < width and start > 4 * width:  # long whitespace runs: look further back
-        left = _flat(text[:start])
-    right = _flat(text[end : end + 4 * width])
+        left = _flat(display_text(text[:start]))
+    right = _flat(display_text(text[end : end + 4 * width]))
     if len(right) < width and len(text) > end + 4 * width:
-        right = _flat(text[end:])
+        right = _flat(display_text(text[end:]))
     left, right = left[-width:].rjust(width), right[:width].ljust(width)
     return left, _flat(text[start:end]), right
 

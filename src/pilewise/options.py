@@ -66,6 +66,8 @@ class RunOptions:
     max_file_mb: float = 100.0
     max_doc_chars: int = 1_000_000
     max_documents: int = 2_000_000
+    redact: bool = True
+    near_duplicate: float = 0.8
     quiet: bool = False
     extra: dict[str, str] = field(default_factory=dict)
 
@@ -88,6 +90,9 @@ def validate(options: RunOptions) -> None:
             problems.append(f"{flag}={value} is out of range; use a value from {low:g} to {high:g}")
     if not 0.0 < options.max_df <= 1.0:
         problems.append(f"--max-df={options.max_df} is out of range; use a share above 0 and at most 1")
+    if not 0.5 <= options.near_duplicate <= 1.0:
+        problems.append(f"--near-duplicate={options.near_duplicate} is out of range; use a Jaccard similarity "
+                        "from 0.5 to 1 (1 turns grouping off)")
     if options.min_df is not None and options.min_df < 1:
         problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
     if options.method not in METHODS:
@@ -119,7 +124,7 @@ def check_k_range(k_min: int, k_max: int, distinct_documents: int) -> tuple[int,
     return k_min, min(k_max, distinct_documents - 1)
 
 
-def check_k(k: int, distinct_documents: int) -> None:
+def check_k(k: int, distinct_documents: int, what: str = "distinct documents found") -> None:
     """Validate k against the collection before any heavy work."""
     if distinct_documents < 3:
         raise PilewiseError(
@@ -128,6 +133,6 @@ def check_k(k: int, distinct_documents: int) -> None:
         )
     if not 2 <= k < distinct_documents:
         raise PilewiseError(
-            f"k={k} must be at least 2 and less than the {distinct_documents} distinct documents found; "
+            f"k={k} must be at least 2 and less than the {distinct_documents} {what}; "
             f"pass --k between 2 and {distinct_documents - 1}"
         )

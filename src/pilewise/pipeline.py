@@ -11,13 +11,14 @@ import os
 import shutil
 import tempfile
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters
+from pilewise.dedup import Boilerplate, NearDuplicates, find_boilerplate, near_duplicate_groups, strip_boilerplate
 from pilewise.describe import Collection, describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.exports import write_exports
@@ -30,6 +31,7 @@ from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata
 from pilewise.progress import Reporter
 from pilewise.quality import assess
 from pilewise.reading import ReadLimits, read_source
+from pilewise.redact import display_text, redact
 from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
 from pilewise.site import render_root_index, render_run_site
 from pilewise.stability import (
@@ -63,6 +65,8 @@ class RunResult:
     levels: Levels
     sweep: Sweep | None
     naming: Naming
+    boilerplate: Boilerplate
+    redacted: dict[str, int]
     profiles: tuple[ClusterProfile, ...]
     rules: RuleSet
     metadata: MetadataAnalysis | None
@@ -160,6 +164,8 @@ class Prepared:
     analyzer: Analyzer
     vectors: Vectorized
     weights: np.ndarray
+    boilerplate: Boilerplate
+    redacted: dict[str, int]
 
 
 def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int) -> Prepared:
@@ -178,15 +184,36 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             )
         for note in ingested.notes:
             reporter.say(note)
+        if options.redact:
+            ingested, redacted = redact_documents(ingested)
+            if redacted:
+                reporter.say("redacted " + ", ".join(f"{n:,} {kind}" for kind, n in redacted.items()))
+        else:
+            redacted = {}
+            reporter.warn("redaction is off (--no-redact); pages and exports show personal data as written")
         collection = collect_distinct(ingested.documents)
         reporter.say(
             f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
             f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
         )
     check_k(k_needed, int(collection.copies.size))
+    with reporter.stage("grouping near-duplicates"):
+        texts = [collection.documents[i].text for i in collection.first_doc_of_text]
+        boilerplate = find_boilerplate(texts)
+        if boilerplate.lines:
+            texts = [strip_boilerplate(text, boilerplate) for text in texts]
+            reporter.say(f"removed {len(boilerplate.lines)} boilerplate line(s) before vectorizing")
+        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed) \
+            if options.near_duplicate < 1.0 else None
+        if near is not None and near.representative.size < len(texts):
+            collection = merge_near_duplicates(collection, near)
+            texts = [texts[i] for i in near.representative]
+            reporter.say(f"{len(near.group_of) - near.representative.size:,} near-duplicate texts joined their "
+                         f"groups; {near.representative.size:,} texts to cluster")
+    check_k(k_needed, int(collection.copies.size),
+            "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
     with reporter.stage("vectorizing"):
-        texts = [collection.documents[i].text for i in collection.first_doc_of_text]
         settings = VectorSettings(
             min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
             lsa_components=options.lsa_components, seed=options.seed,
@@ -195,7 +222,8 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
         )
-    return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float))
+    return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
+                    redacted)
 
 
 def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
@@ -249,7 +277,8 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
                      f"{len(naming.not_carried)} did not carry over")
     return RunResult(
         options=options, name=options.run_name(k), k=k, ingested=prepared.ingested, naming=naming,
-        profiles=profiles, metadata=metadata, rules=rules,
+        profiles=profiles, metadata=metadata, rules=rules, boilerplate=prepared.boilerplate,
+        redacted=prepared.redacted,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,
@@ -323,6 +352,30 @@ def metadata_columns(collection: Collection) -> dict[str, list[str]]:
         for name in names:
             cells[name].append(found.get(name, ""))
     return cells
+
+
+def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:
+    """Replace personal data in texts (placeholders, for vectorizing) and titles and table cells (labels)."""
+    counts: dict[str, int] = {}
+    documents = []
+    for doc in ingested.documents:
+        found = redact(doc.text)
+        for kind, n in found.counts:
+            counts[kind] = counts.get(kind, 0) + n
+        documents.append(replace(
+            doc, text=found.text, title=display_text(redact(doc.title).text),
+            metadata=tuple((name, display_text(redact(value).text)) for name, value in doc.metadata),
+        ))
+    return replace(ingested, documents=tuple(documents)), counts
+
+
+def merge_near_duplicates(collection: Collection, near: NearDuplicates) -> Collection:
+    """Each near-duplicate group of distinct texts becomes one text to cluster, weighted by all its documents."""
+    text_of_doc = near.group_of[collection.text_of_doc]
+    copies = np.bincount(text_of_doc, weights=collection.copies[np.arange(near.group_of.size)],
+                         minlength=near.representative.size).astype(np.int64)
+    first = collection.first_doc_of_text[near.representative]
+    return Collection(collection.documents, text_of_doc, first, copies)
 
 
 def collect_distinct(documents: tuple[Document, ...]) -> Collection:

@@ -25,6 +25,10 @@ class Reporter:
         if not self.quiet:
             print(f"pilewise: {message}", file=sys.stderr, flush=True)
 
+    def warn(self, message: str) -> None:
+        """A warning is printed even when quiet."""
+        print(f"pilewise: warning: {message}", file=sys.stderr, flush=True)
+
     @contextmanager
     def stage(self, name: str) -> Iterator[None]:
         self.say(f"{name} ...")

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
 from pilewise.model import ClusterSummary, Document
+from pilewise.redact import display_text
 from pilewise.rules import RULES_ROWS
 from pilewise.sweep import Sweep
 
@@ -25,6 +26,7 @@ if TYPE_CHECKING:
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
 MARKED_TERMS = 12
+GROUP_LISTED = 50  # copies and near-duplicates linked from a document page
 STYLESHEET = "pilewise.css"
 
 CAUTION = (
@@ -134,15 +136,21 @@ def render_run_site(
         (folder / "docs").mkdir()
         template = env.get_template("document.html")
         keys_by_cluster = {c.cluster_id: [t.key for t in c.chi2_terms[:MARKED_TERMS]] for c in result.clusters}
+        members_of_text: dict[int, list[int]] = {}
+        for j, text_index in enumerate(result.collection.text_of_doc):
+            if result.collection.copies[text_index] > 1:
+                members_of_text.setdefault(int(text_index), []).append(j)
         numbered = enumerate(docs)
         for i, doc in track(numbered) if track else numbered:
             t = result.collection.text_of_doc[i]
             cluster_id = int(result.clustering.labels[t])
             segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
+            group = [j for j in members_of_text.get(int(t), []) if j != i][:GROUP_LISTED]
             _write(folder / doc_page_name(i), template.render(
                 common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id), distance=float(result.clustering.distances[t]),
-                copies=int(result.collection.copies[t]), up="../"))
+                copies=int(result.collection.copies[t]), up="../",
+                group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
 
 
 def _render_levels(folder: Path, result: RunResult, env: Environment, common: dict[str, Any]) -> None:
@@ -253,7 +261,7 @@ def _member_row(doc_index: int, distance: float, doc: Document, with_pages: bool
         "title": doc.title,
         "distance": distance,
         "href": doc_page_name(doc_index) if with_pages else None,
-        "snippet": " ".join(doc.text.split())[:160],
+        "snippet": " ".join(display_text(doc.text[:400]).split())[:160],
     }
 
 
@@ -286,11 +294,11 @@ def mark_terms(text: str, spans: Sequence[tuple[int, int, str]], keys: Sequence[
         if start < cursor:
             continue
         if start > cursor:
-            segments.append(Segment(text[cursor:start], False))
+            segments.append(Segment(display_text(text[cursor:start]), False))
         segments.append(Segment(text[start:end], True))
         cursor = end
     if cursor < len(text):
-        segments.append(Segment(text[cursor:], False))
+        segments.append(Segment(display_text(text[cursor:]), False))
     return segments
 
 
