@@ -54,7 +54,8 @@ def hostile_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
         "Subject: <script>window.__pwned='subject'</script>\nFrom: a@example.org\n\n"
         "chain saddle pedal spoke <b onmouseover=alert(1)>x</b>\n", encoding="utf-8")
     outcome = run_collection(RunOptions(source=data, k=3, out=base / "site", quiet=True, near_duplicate=1.0))
-    run_collection(RunOptions(source=data, k=4, out=base / "site", quiet=True, near_duplicate=1.0))  # a comparison page too
+    # a second run, so that a comparison page is written too
+    run_collection(RunOptions(source=data, k=4, out=base / "site", quiet=True, near_duplicate=1.0))
     return outcome.root_index.parent
 
 

@@ -37,8 +37,9 @@ def _as_table(collection, path: Path) -> dict[str, str]:  # type: ignore[no-unty
 @pytest.mark.corpus
 def test_two_newsgroups_are_recovered_through_the_cli(tmp_path: Path) -> None:
     # Open corpus: 20 Newsgroups sample (alt.atheism, sci.space; 200 posts) from the gensim 4.4.0 wheel.
-    # shared/CORPORA.md baseline, plain TF-IDF + k-means: NMI 0.47. pilewise measured 0.53-0.62 over seeds
-    # 0-4 (0.56 at seed 0), so 0.45 is a floor the measurements support.
+    # shared/CORPORA.md baseline, plain TF-IDF + k-means: NMI 0.47. pilewise (LSA capped at 20 dimensions for
+    # this size, 10 k-means starts) measured 0.67-0.79 over seeds 0-4 (0.673 at seed 0), so 0.6 is a floor
+    # the measurements support.
     collection = _load(open_sets.load_mini_newsgroups)
     table = tmp_path / "newsgroups.csv"
     truth = _as_table(collection, table)
@@ -48,7 +49,7 @@ def test_two_newsgroups_are_recovered_through_the_cli(tmp_path: Path) -> None:
     rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
     assert len(rows) == 200
     nmi = normalized_mutual_info_score([truth[r["doc_id"]] for r in rows], [r["cluster"] for r in rows])
-    assert nmi >= 0.45
+    assert nmi >= 0.6
     clusters = json.loads((out / "runs" / "k2" / "clusters.json").read_text(encoding="utf-8"))["clusters"]
     top_terms = {t["term"] for c in clusters for t in c["terms"]["chi2"][:15]}
     assert top_terms & {"space", "nasa", "orbit", "launch", "moon"}
@@ -57,14 +58,17 @@ def test_two_newsgroups_are_recovered_through_the_cli(tmp_path: Path) -> None:
 
 @pytest.mark.corpus
 def test_reuters_sample_runs_end_to_end(tmp_path: Path) -> None:
-    # Open corpus: Reuters-21578 sample (acq 50, crude 20) from Debian r-cran-tm. Its recovery varies
-    # widely with the seed (NMI 0.15-0.79 measured over seeds 0-4), so this is a smoke run without a floor.
+    # Open corpus: Reuters-21578 sample (acq 50, crude 20) from Debian r-cran-tm; shared/CORPORA.md baseline
+    # NMI 0.72. pilewise measured 0.60-0.72 over seeds 0-4 (0.632 at seed 0); the set is small and uneven,
+    # so the floor is a loose 0.5.
     collection = _load(open_sets.load_reuters_sample)
     table = tmp_path / "reuters.csv"
-    _as_table(collection, table)
+    truth = _as_table(collection, table)
     out = tmp_path / "site"
     result = CliRunner().invoke(app, ["run", str(table), "--k", "2", "--out", str(out), "--quiet"])
     assert result.exit_code == 0, result.stderr
     clusters = json.loads((out / "runs" / "k2" / "clusters.json").read_text(encoding="utf-8"))
     assert sum(c["size"] for c in clusters["clusters"]) == 70
     assert all(c["headline"] and c["terms"]["chi2"] for c in clusters["clusters"])
+    rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    assert normalized_mutual_info_score([truth[r["doc_id"]] for r in rows], [r["cluster"] for r in rows]) >= 0.5

@@ -26,7 +26,7 @@ from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
 from pilewise.names import Naming, carry_names, find_old_names, suggested_name
-from pilewise.options import RunOptions, check_k, check_k_range, validate
+from pilewise.options import RunOptions, check_k, check_k_range, kmeans_starts, validate
 from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles
 from pilewise.progress import Reporter
 from pilewise.quality import assess
@@ -295,7 +295,8 @@ def _cluster_at(options: RunOptions, prepared: Prepared, k: int, tree: Tree | No
     space, weights = prepared.vectors.space, prepared.weights
     if tree is not None:
         return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
-    return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=options.n_init)
+    starts = kmeans_starts(options, int(weights.size))
+    return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=starts)
 
 
 def _stability_fn(options: RunOptions, k: int, cache: dict[int, Tree] | None = None) -> ClusterFn:
@@ -320,7 +321,7 @@ def sweep_k(
     ks = list(range(k_min, k_max + 1))
     say = (lambda k: reporter.say(f"k={k}")) if not reporter.quiet else None
     if tree is None:
-        return sweep_kmeans(space, weights, ks, seed=options.seed, n_init=options.n_init,
+        return sweep_kmeans(space, weights, ks, seed=options.seed, n_init=kmeans_starts(options, int(weights.size)),
                             resamples=min(options.resamples, SWEEP_RESAMPLES), on_k=say)
     cache: dict[int, Tree] = {}
     k_max = min(k_max, tree.n_leaves)

@@ -192,7 +192,9 @@ def vectorize(
         "texts_without_terms": empty_rows,
         "bigrams_in_space": settings.bigrams_in_space,
     }
-    components = min(settings.lsa_components, tfidf.shape[1] - 1, n - 1)
+    # a tenth of the data's smaller side, at least 10: small collections cluster better in fewer dimensions
+    # (measured in docs/vectorizing.md); collections of 1,000+ texts and terms keep the full setting
+    components = min(settings.lsa_components, max(10, min(n, tfidf.shape[1]) // 10), tfidf.shape[1] - 1, n - 1)
     space: np.ndarray | sp.csr_matrix
     if settings.lsa_components > 0 and components >= 2:
         svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
