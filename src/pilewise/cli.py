@@ -199,7 +199,7 @@ def demo(
     """Write the invented demo collection (a plant shop's customer messages) and cluster it."""
     from pilewise.corpora.shop_messages import write_demo_collection
 
-    collection = write_demo_collection(out.parent.resolve() / f"{out.name}-demo-data")
+    collection = write_demo_collection(out.resolve() / "demo-data")
     typer.echo(f"demo collection written to {collection}", err=True)
     options = RunOptions(source=collection, k=k, out=out, seed=seed, name=f"demo-k{k}", quiet=quiet)
     _print_outcome(run_collection(options))

@@ -108,7 +108,8 @@ def render_run_site(
     _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
         common, entries=result.ingested.entries, notes=result.ingested.notes,
-        files_found=result.ingested.files_found, up=""))
+        files_found=result.ingested.files_found, boilerplate=result.boilerplate.lines,
+        boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up=""))
     members_by_cluster = _members_nearest_first(result)
     for cluster, card in zip(result.clusters, cards, strict=True):
         members = members_by_cluster[cluster.cluster_id]
