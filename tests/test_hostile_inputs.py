@@ -162,3 +162,24 @@ def test_ctrl_c_prints_one_line_and_leaves_the_previous_run_intact(tmp_path: Pat
     assert stderr.strip().splitlines()[-1] == "pilewise: interrupted; the previous site is unchanged"
     assert (out / "runs" / "k3" / "clusters.json").read_bytes() == before
     assert not list((out / "runs").glob(".k3-*"))
+
+
+def test_near_duplicates_are_clustered_once_and_every_copy_is_assigned(tmp_path: Path) -> None:
+    """Regression: merging near-duplicate groups once crashed on weights of the wrong length."""
+    folder = tmp_path / "data"
+    folder.mkdir()
+    _good_files(folder, n=30)
+    template = ("Thank you for your message about order {n}. We are out of the office until {d} January and will "
+                "reply as soon as we are back. For urgent matters please use the contact form on our website.")
+    for i in range(8):
+        (folder / f"auto-{i}.txt").write_text(template.format(n=40000 + 17 * i, d=3 + i), encoding="utf-8")
+    out = tmp_path / "site"
+    result = runner.invoke(app, ["run", str(folder), "--k", "4", "--out", str(out)])
+    assert result.exit_code == 0, result.stderr
+    assert "7 near-duplicate texts joined their groups" in result.stderr
+    rows = list(csv.DictReader((out / "runs" / "k4" / "assignments.csv").open(encoding="utf-8")))
+    assert len(rows) == 38
+    auto = [r for r in rows if r["doc_id"].startswith("auto-")]
+    assert {r["cluster"] for r in auto} == {auto[0]["cluster"]} and {r["copies"] for r in auto} == {"8"}
+    page = (out / "runs" / "k4" / "docs" / "d0000000.html").read_text(encoding="utf-8")
+    assert "near-duplicate" in page

@@ -373,8 +373,7 @@ def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:
 def merge_near_duplicates(collection: Collection, near: NearDuplicates) -> Collection:
     """Each near-duplicate group of distinct texts becomes one text to cluster, weighted by all its documents."""
     text_of_doc = near.group_of[collection.text_of_doc]
-    copies = np.bincount(text_of_doc, weights=collection.copies[np.arange(near.group_of.size)],
-                         minlength=near.representative.size).astype(np.int64)
+    copies = np.bincount(text_of_doc, minlength=near.representative.size).astype(np.int64)
     first = collection.first_doc_of_text[near.representative]
     return Collection(collection.documents, text_of_doc, first, copies)
 
