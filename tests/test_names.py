@@ -59,6 +59,8 @@ def test_names_carry_over_exactly_when_rerun_with_another_seed(topic_folder: Pat
         assert "Jaccard of members 1.00" in record["name_origin"]
     page = (out / "runs" / "second" / "index.html").read_text(encoding="utf-8")
     assert all(f"<h2>{name}</h2>" in page for name in given.values())
+    document_page = (out / "runs" / "second" / "docs" / "d0000000.html").read_text(encoding="utf-8")
+    assert any(f": {name}</a>" in document_page for name in given.values())
 
 
 def test_a_named_cluster_that_splits_is_flagged(topic_folder: Path, tmp_path: Path) -> None:

@@ -149,7 +149,9 @@ def render_run_site(
             group = [j for j in members_of_text.get(int(t), []) if j != i][:GROUP_LISTED]
             _write(folder / doc_page_name(i), template.render(
                 common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
-                cluster_href="../" + cluster_page_name(cluster_id), distance=float(result.clustering.distances[t]),
+                cluster_href="../" + cluster_page_name(cluster_id),
+                cluster_title=result.naming.clusters[cluster_id].name or result.clusters[cluster_id].headline,
+                distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../",
                 group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
 
