@@ -114,3 +114,22 @@ def test_bad_k_values_are_one_line_errors(site: tuple[Path, Path]) -> None:
     )
     result = runner.invoke(app, ["sweep", str(folder), "--k", "5:3", "--out", str(out)])
     assert result.stderr.strip() == "pilewise: error: --k '5:3' must have 2 <= LOW < HIGH, for example 2:20"
+
+
+def test_k_beyond_the_groups_of_identical_word_sets_is_a_user_error(tmp_path: Path) -> None:
+    """Regression: texts that differ only in numbers have one vector; k-means then left clusters empty."""
+    folder = tmp_path / "same-words"
+    folder.mkdir()
+    for i in range(5):
+        (folder / f"a{i}.txt").write_text(f"soil compost {i}", encoding="utf-8")
+        (folder / f"b{i}.txt").write_text(f"chain pedal {i}", encoding="utf-8")
+    out = tmp_path / "site"
+    result = runner.invoke(app, ["run", str(folder), "--k", "3", "--out", str(out), "--quiet", "--near-duplicate", "1"])
+    assert result.exit_code == 1
+    assert result.stderr.strip() == ("pilewise: error: k=3 is more than the 2 groups of texts that differ in their "
+                                     "counted words; pass a smaller --k (at most 2)")
+    sweep = runner.invoke(app, ["sweep", str(folder), "--k", "2:6", "--out", str(out), "--quiet",
+                                "--near-duplicate", "1"])
+    assert sweep.exit_code == 0, sweep.stderr
+    figures = json.loads((out / "sweeps" / "k2-6" / "sweep.json").read_text(encoding="utf-8"))
+    assert [p["k"] for p in figures["points"]] == [2]

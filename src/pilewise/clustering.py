@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.cluster import KMeans
+from sklearn.exceptions import ConvergenceWarning
 from sklearn.preprocessing import normalize
+
+from pilewise.errors import PilewiseError
 
 
 @dataclass(frozen=True)
@@ -42,7 +46,15 @@ def kmeans_clusters(
     """Seeded k-means (k-means++ starts, or the given `init` centroids) with duplicate counts as weights."""
     model = KMeans(n_clusters=k, n_init=1 if init is not None else n_init, random_state=seed,
                    init=init if init is not None else "k-means++")
-    raw_labels = model.fit_predict(space, sample_weight=weights)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)  # checked just below, with a message that helps
+        raw_labels = model.fit_predict(space, sample_weight=weights)
+    found = int(np.unique(raw_labels).size)
+    if found < k:
+        raise PilewiseError(
+            f"k={k} is more than the {found} groups of texts that differ in their counted words; "
+            f"pass a smaller --k (at most {found})"
+        )
     return clustering_from_labels(space, weights, raw_labels, k=k, inertia=float(model.inertia_))
 
 

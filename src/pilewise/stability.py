@@ -7,6 +7,7 @@ Analysis 52(1):258-271; the readings are the rules of thumb in the author's R pa
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TypeAlias
@@ -14,6 +15,7 @@ from typing import TypeAlias
 import numpy as np
 import scipy.sparse as sp
 from sklearn.cluster import KMeans
+from sklearn.exceptions import ConvergenceWarning
 
 ClusterFn: TypeAlias = Callable[[np.ndarray | sp.csr_matrix, np.ndarray, int], np.ndarray]
 """(space rows, weights, seed) -> one label per row; any integers serve as labels."""
@@ -202,7 +204,10 @@ def kmeans_cluster_fn(k: int, n_init: int = 1) -> ClusterFn:
 
     def cluster(rows: np.ndarray | sp.csr_matrix, row_weights: np.ndarray, seed: int) -> np.ndarray:
         model = KMeans(n_clusters=min(k, rows.shape[0]), n_init=n_init, random_state=seed)
-        return np.asarray(model.fit_predict(rows, sample_weight=row_weights))
+        with warnings.catch_warnings():
+            # a resample may hold fewer distinct points than k; the Jaccard matching copes with that
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            return np.asarray(model.fit_predict(rows, sample_weight=row_weights))
 
     return cluster
 

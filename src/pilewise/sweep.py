@@ -9,6 +9,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, farthest_row, kmeans_clusters
+from pilewise.errors import PilewiseError
 from pilewise.quality import assess
 from pilewise.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn, stability_rows
 
@@ -79,13 +80,21 @@ def sweep_kmeans(
     previous: Clustering | None = None
     warm_wins: dict[int, bool] = {}
     for k in ks:
-        fresh = kmeans_clusters(space, weights, k=k, seed=seed, n_init=n_init)
+        try:
+            fresh = kmeans_clusters(space, weights, k=k, seed=seed, n_init=n_init)
+        except PilewiseError:
+            if not clusterings:
+                raise
+            break  # fewer distinct groups of texts than k: the range ends here
         best, warm_wins[k] = fresh, False
         if previous is not None and previous.centroids.shape[0] == k - 1:
             new_row = farthest_row(space, previous, weights)
             extra = space[new_row].toarray() if sp.issparse(space) else np.asarray(space[new_row : new_row + 1])
             init = np.vstack([previous.centroids, extra.reshape(1, -1)])
-            warm = kmeans_clusters(space, weights, k=k, seed=seed, n_init=1, init=init)
+            try:
+                warm = kmeans_clusters(space, weights, k=k, seed=seed, n_init=1, init=init)
+            except PilewiseError:
+                warm = fresh
             if warm.inertia < fresh.inertia:
                 best, warm_wins[k] = warm, True
         previous = clusterings[k] = best
