@@ -5,7 +5,7 @@ from __future__ import annotations
 import functools
 from collections.abc import Callable
 from pathlib import Path
-from typing import Annotated, TypeVar
+from typing import Annotated, Any, TypeVar
 
 import typer
 
@@ -93,6 +93,17 @@ def parse_range(text: str, flag: str) -> tuple[int, int]:
         raise PilewiseError(f"{flag} {err}".replace(f"{flag} k range", flag)) from None
 
 
+# CLI parameter names that differ from RunOptions fields; parameters handled by the command itself are left out
+_OPTION_FIELDS = {"stop_words": "stop_words_file", "phrases_in_space": "bigrams_in_space"}
+_COMMAND_ONLY = {"k", "k_range", "k_value", "k_auto", "k_min", "k_max"}
+
+
+def _run_options(params: dict[str, Any], **fixed: Any) -> RunOptions:
+    """RunOptions from a command's parameters (its locals()), with the k settings it worked out."""
+    fields = {_OPTION_FIELDS.get(name, name): value for name, value in params.items() if name not in _COMMAND_ONLY}
+    return RunOptions(**fields, **fixed)
+
+
 @app.command()
 @user_errors
 def run(
@@ -124,14 +135,7 @@ def run(
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
     k_value, k_auto = parse_k(k)
     k_min, k_max = parse_range(k_range, "--k-range")
-    options = RunOptions(
-        source=source, k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max, method=method, out=out, seed=seed,
-        name=name, text_column=text_column, title_column=title_column, id_column=id_column,
-        date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
-        lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
-        max_doc_chars=max_doc_chars, max_documents=max_documents, resamples=resamples, redact=redact,
-        near_duplicate=near_duplicate, quiet=quiet,
-    )
+    options = _run_options(locals(), k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max)
     _print_outcome(run_collection(options))
 
 
@@ -163,14 +167,7 @@ def sweep(
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
     k_min, k_max = parse_range(k, "--k")
-    options = RunOptions(
-        source=source, k=0, k_auto=True, k_min=k_min, k_max=k_max, method=method, out=out, seed=seed,
-        name=name, text_column=text_column, title_column=title_column, id_column=id_column,
-        date_column=date_column, stop_words_file=stop_words, stem=stem, bigrams_in_space=phrases_in_space,
-        lsa_components=lsa_components, min_df=min_df, max_df=max_df, max_file_mb=max_file_mb,
-        max_doc_chars=max_doc_chars, resamples=resamples, redact=redact, near_duplicate=near_duplicate, quiet=quiet,
-    )
-    outcome = sweep_collection(options)
+    outcome = sweep_collection(_run_options(locals(), k=0, k_auto=True, k_min=k_min, k_max=k_max))
     typer.echo(f"recommended {outcome.reason}", err=True)
     typer.echo(str(outcome.page))
 

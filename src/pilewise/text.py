@@ -122,9 +122,3 @@ class Analyzer:
             return stem
         # most frequent, ties broken alphabetically so that output is reproducible
         return min(counts.items(), key=lambda item: (-item[1], item[0]))[0]
-
-
-def words_pattern(words: str) -> re.Pattern[str]:
-    """A case-insensitive whole-word pattern for a shown term (one or two words)."""
-    parts = [re.escape(w) for w in words.split()]
-    return re.compile(r"\b" + r"\W+".join(parts) + r"\b", re.IGNORECASE)
