@@ -74,6 +74,9 @@ MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate long
 Redact = Annotated[bool, typer.Option("--redact/--no-redact", help="Hide e-mails, phones, cards, IBANs, IPs.")]
 NearDuplicate = Annotated[float, typer.Option("--near-duplicate", help="Jaccard at which texts group; 1 = off.")]
 MaxDocuments = Annotated[int, typer.Option("--max-documents", help="Refuse collections with more documents.")]
+Mode = Annotated[str, typer.Option(
+    "--mode", help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
+Workers = Annotated[int, typer.Option("--workers", help="Tokenizing processes when streaming; 0 = one per core.")]
 KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
 
 
@@ -130,6 +133,8 @@ def run(
     max_documents: MaxDocuments = 2_000_000,
     redact: Redact = True,
     near_duplicate: NearDuplicate = 0.8,
+    mode: Mode = "auto",
+    workers: Workers = 0,
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""

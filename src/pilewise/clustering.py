@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from sklearn.cluster import KMeans
+from sklearn.cluster import KMeans, MiniBatchKMeans
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.preprocessing import normalize
 
@@ -58,6 +58,44 @@ def kmeans_clusters(
     return clustering_from_labels(space, weights, raw_labels, k=k, inertia=float(model.inertia_))
 
 
+MINIBATCH_ROWS = 4_096  # rows per mini-batch step
+MINIBATCH_EPOCHS = 3  # passes over the data after the seeding
+SEED_SAMPLE = 20_000  # rows of the seeded sample on which k-means picks the starting centroids
+ROW_BLOCK = 65_536  # rows per block when a pass over the whole space is made
+
+
+def minibatch_clusters(space: np.ndarray, weights: np.ndarray, *, k: int, seed: int) -> Clustering:
+    """Mini-batch k-means (Sculley 2010) fed block by block, for collections too large for full k-means.
+
+    Starting centroids come from full k-means (4 k-means++ starts) on a seeded sample of SEED_SAMPLE rows;
+    then MINIBATCH_EPOCHS passes over the rows in shuffled mini-batches refine them (scikit-learn's
+    MiniBatchKMeans.partial_fit), and every row goes to its nearest centroid.
+    """
+    n = space.shape[0]
+    rng = np.random.default_rng(seed)
+    sample = np.sort(rng.choice(n, min(n, SEED_SAMPLE), replace=False))
+    start = KMeans(n_clusters=k, n_init=4, random_state=seed).fit(space[sample], sample_weight=weights[sample])
+    model = MiniBatchKMeans(n_clusters=k, init=start.cluster_centers_, n_init=1, random_state=seed,
+                            batch_size=MINIBATCH_ROWS)
+    for _ in range(MINIBATCH_EPOCHS):
+        order = rng.permutation(n)
+        for begin in range(0, n, MINIBATCH_ROWS):
+            rows = np.sort(order[begin : begin + MINIBATCH_ROWS])
+            model.partial_fit(space[rows], sample_weight=weights[rows])
+    raw_labels = np.empty(n, dtype=np.int64)
+    inertia = 0.0
+    for begin in range(0, n, ROW_BLOCK):
+        block = np.asarray(space[begin : begin + ROW_BLOCK], dtype=np.float64)
+        distances = ((block**2).sum(axis=1)[:, None] - 2 * block @ model.cluster_centers_.T
+                     + (model.cluster_centers_**2).sum(axis=1)[None, :])
+        raw_labels[begin : begin + ROW_BLOCK] = np.argmin(distances, axis=1)
+        inertia += float(np.sum(np.min(distances, axis=1).clip(0) * weights[begin : begin + ROW_BLOCK]))
+    found = int(np.unique(raw_labels).size)
+    if found < k:
+        raise PilewiseError(f"mini-batch k-means filled only {found} of k={k} clusters; pass a smaller --k")
+    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=inertia)
+
+
 def clustering_from_labels(
     space: np.ndarray | sp.csr_matrix, weights: np.ndarray, raw_labels: np.ndarray, *, k: int, inertia: float = 0.0
 ) -> Clustering:
@@ -68,7 +106,7 @@ def clustering_from_labels(
     remap[order] = np.arange(k)
     labels = remap[raw_labels]
     centroids = weighted_centroids(space, weights, labels, k)
-    similarity = cosine_rowwise(space, centroids[labels])
+    similarity = cosine_to_centroids(space, centroids, labels)
     distances = np.clip(1.0 - similarity, 0.0, 2.0)
     return Clustering(labels=labels, centroids=centroids, distances=distances, inertia=inertia)
 
@@ -88,10 +126,15 @@ def farthest_row(space: np.ndarray | sp.csr_matrix, clustering: Clustering, weig
     return int(np.argmax(clustering.distances * weights))
 
 
-def cosine_rowwise(space: np.ndarray | sp.csr_matrix, other: np.ndarray) -> np.ndarray:
-    """Cosine similarity of each row of `space` with the same row of `other`."""
-    space = normalize(space)
-    other = normalize(other)
-    if sp.issparse(space):
-        return np.asarray(space.multiply(other).sum(axis=1)).ravel()
-    return np.einsum("ij,ij->i", np.asarray(space), other)
+def cosine_to_centroids(space: np.ndarray | sp.csr_matrix, centroids: np.ndarray, labels: np.ndarray) -> np.ndarray:
+    """Cosine similarity of each row of `space` with its cluster's centroid, block by block (no copy of `space`)."""
+    centroids = normalize(centroids)
+    out = np.empty(space.shape[0])
+    for begin in range(0, space.shape[0], ROW_BLOCK):
+        block = space[begin : begin + ROW_BLOCK]
+        own = centroids[labels[begin : begin + ROW_BLOCK]]
+        if sp.issparse(block):
+            out[begin : begin + ROW_BLOCK] = np.asarray(normalize(block).multiply(own).sum(axis=1)).ravel()
+        else:
+            out[begin : begin + ROW_BLOCK] = np.einsum("ij,ij->i", normalize(np.asarray(block, dtype=np.float64)), own)
+    return out

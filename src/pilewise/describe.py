@@ -24,6 +24,9 @@ from pilewise.vectors import Vectorized
 NEAREST_SHOWN = 5
 KWIC_TERMS = 5
 KWIC_LINES_PER_TERM = 5
+NEAREST_KEPT = 200  # nearest members kept per cluster: headline, next four, keyword-in-context candidates
+SAMPLE_KEPT = 200  # members sampled per cluster for keyword-in-context lines beyond the nearest
+ROW_BLOCK = 65_536  # rows per block in passes over all rows
 PRIOR_MASS = 1000.0  # Dirichlet pseudo-counts in all; our choice, see docs/method.md
 
 
@@ -46,38 +49,47 @@ def describe_clusters(
     *,
     top_terms: int,
     stability: StabilityResult | None = None,
+    seed: int = 0,
 ) -> tuple[ClusterSummary, ...]:
-    """Summaries of every cluster, numbered as in `clustering`, largest first."""
+    """Summaries of every cluster, numbered as in `clustering`, largest first.
+
+    Term statistics use exact per-cluster document frequencies and counts of every term; the
+    documents shown (nearest to the centroid, keyword-in-context lines) come from a bounded digest
+    of each cluster, so describing needs memory for k x terms figures, not for the documents.
+    """
     labels = clustering.labels
     weights = collection.copies.astype(float)
     k = clustering.centroids.shape[0]
     total = float(weights.sum())
-    present = vectors.counts.copy()
-    present.data = np.ones_like(present.data)
-    df_all = np.asarray(present.T @ weights).ravel()
-    counts_all = np.asarray(vectors.counts.T @ weights).ravel()
+    df_by_cluster, counts_by_cluster = cluster_term_totals(vectors.counts, labels, weights, k)
+    df_all = np.asarray(df_by_cluster.sum(axis=0)).ravel()
+    counts_all = np.asarray(counts_by_cluster.sum(axis=0)).ravel()
     prior = informative_prior(counts_all, PRIOR_MASS)
     shown = tuple(analyzer.surface(t) for t in vectors.terms)
-    present_csc = present.tocsc()
     column_of = {key: i for i, key in enumerate(vectors.terms)}
+    digest = ClusterDigest(k, nearest=NEAREST_KEPT, sample=SAMPLE_KEPT, seed=seed)
+    for begin in range(0, labels.size, ROW_BLOCK):
+        rows = np.arange(begin, min(begin + ROW_BLOCK, labels.size))
+        digest.update(rows, labels[rows], clustering.distances[rows])
+    sizes = np.bincount(labels, weights=weights, minlength=k)
+    members_per_cluster = np.bincount(labels, minlength=k)
+    mean_distance = np.bincount(labels, weights=weights * clustering.distances, minlength=k) / np.maximum(sizes, 1e-12)
     summaries = []
     for c in range(k):
-        members = np.flatnonzero(labels == c)
-        w = weights[members]
-        size = float(w.sum())
-        order = members[np.argsort(clustering.distances[members], kind="stable")]
+        size = float(sizes[c])
+        near_rows, near_distances = digest.nearest(c)
         nearest = tuple(
-            Neighbour(int(collection.first_doc_of_text[t]), float(clustering.distances[t]))
-            for t in order[:NEAREST_SHOWN]
+            Neighbour(int(collection.first_doc_of_text[t]), float(d))
+            for t, d in zip(near_rows[:NEAREST_SHOWN], near_distances[:NEAREST_SHOWN], strict=True)
         )
-        df_in = np.asarray(present[members].T @ w).ravel()
+        df_in = df_by_cluster[c].toarray().ravel()
         chi2_terms = _chi2_terms(df_in, df_all, size, total, shown, vectors.terms, top_terms)
-        counts_in = np.asarray(vectors.counts[members].T @ w).ravel()
+        counts_in = counts_by_cluster[c].toarray().ravel()
         log_odds_terms = _log_odds_terms(
             counts_in, counts_all - counts_in, prior, df_in, df_all, size, total, shown, vectors.terms, top_terms
         )
-        kwic = _kwic_for(chi2_terms[:KWIC_TERMS], members, clustering.distances, present_csc, column_of, collection,
-                         analyzer)
+        kwic = _kwic_for(chi2_terms[:KWIC_TERMS], digest.candidates(c, clustering.distances), vectors.counts,
+                         column_of, collection, analyzer)
         headline_doc = collection.documents[nearest[0].doc_index]
         silhouette = quality.per_cluster_silhouette[c] if c < len(quality.per_cluster_silhouette) else None
         summaries.append(
@@ -85,19 +97,106 @@ def describe_clusters(
                 cluster_id=c,
                 size=int(round(size)),
                 share=size / total,
-                distinct_texts=int(members.size),
+                distinct_texts=int(members_per_cluster[c]),
                 headline=headline_doc.title,
                 nearest=nearest,
                 chi2_terms=chi2_terms,
                 log_odds_terms=log_odds_terms,
                 kwic=kwic,
-                mean_distance=float(np.average(clustering.distances[members], weights=w)),
+                mean_distance=float(mean_distance[c]),
                 silhouette=None if silhouette is None or np.isnan(silhouette) else float(silhouette),
                 stability=_stability_value(stability, c),
                 stability_reading=stability.clusters[c].reading if stability else "",
             )
         )
     return tuple(summaries)
+
+
+def cluster_term_totals(
+    counts: sp.csr_matrix, labels: np.ndarray, weights: np.ndarray, k: int
+) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+    """Weighted document frequency and weighted count of every term in every cluster (k x terms, sparse).
+
+    Computed block by block of rows, so no copy of the count matrix is made.
+    """
+    df = sp.csr_matrix((k, counts.shape[1]))
+    totals = sp.csr_matrix((k, counts.shape[1]))
+    for begin in range(0, counts.shape[0], ROW_BLOCK):
+        block = counts[begin : begin + ROW_BLOCK]
+        rows = np.arange(block.shape[0])
+        block_labels = labels[begin : begin + ROW_BLOCK]
+        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, rows)),
+                                  shape=(k, block.shape[0]))
+        present = sp.csr_matrix((np.ones(block.nnz), block.indices, block.indptr), shape=block.shape)
+        df = df + indicator @ present
+        totals = totals + indicator @ sp.csr_matrix(block, dtype=np.float64)
+    return sp.csr_matrix(df), sp.csr_matrix(totals)
+
+
+class ClusterDigest:
+    """Bounded per-cluster summaries built in one pass over the rows, block by block.
+
+    For every cluster it keeps the `nearest` members closest to the centroid (a running top-N; ties
+    go to the earlier row) and a uniform random sample of at most `sample` members (reservoir
+    sampling, Vitter's algorithm R). Memory is O(k x (nearest + sample)) whatever the number of rows.
+    """
+
+    def __init__(self, k: int, *, nearest: int, sample: int, seed: int = 0) -> None:
+        self.k = k
+        self.nearest_cap = nearest
+        self.sample_cap = sample
+        self._rng = np.random.default_rng(seed)
+        self._near_rows = [np.zeros(0, dtype=np.int64) for _ in range(k)]
+        self._near_dist = [np.zeros(0) for _ in range(k)]
+        self._sample = [np.zeros(0, dtype=np.int64) for _ in range(k)]
+        self._seen = np.zeros(k, dtype=np.int64)
+
+    def update(self, rows: np.ndarray, labels: np.ndarray, distances: np.ndarray) -> None:
+        """Take in a block of rows (their global indices), their clusters and distances to the centroid."""
+        for c in np.unique(labels).tolist():
+            mine = labels == c
+            self._keep_nearest(c, rows[mine], distances[mine])
+            self._keep_sample(c, rows[mine])
+
+    def _keep_nearest(self, c: int, rows: np.ndarray, distances: np.ndarray) -> None:
+        all_rows = np.concatenate([self._near_rows[c], rows])
+        all_dist = np.concatenate([self._near_dist[c], distances])
+        order = np.lexsort((all_rows, all_dist))[: self.nearest_cap]
+        self._near_rows[c], self._near_dist[c] = all_rows[order], all_dist[order]
+
+    def _keep_sample(self, c: int, rows: np.ndarray) -> None:
+        held = self._sample[c]
+        seen = int(self._seen[c])
+        room = max(0, self.sample_cap - held.size)
+        held = np.concatenate([held, rows[:room]])
+        rest = rows[room:]
+        if rest.size:
+            position = seen + room + np.arange(rest.size)  # 0-based index of each row among the cluster's rows
+            slot = np.floor(self._rng.random(rest.size) * (position + 1)).astype(np.int64)
+            taken = slot < self.sample_cap
+            for s, r in zip(slot[taken].tolist(), rest[taken].tolist(), strict=True):  # in order: later rows win
+                held[s] = r
+        self._sample[c] = held
+        self._seen[c] = seen + rows.size
+
+    def nearest(self, c: int) -> tuple[np.ndarray, np.ndarray]:
+        """Rows nearest the centroid first, with their distances."""
+        return self._near_rows[c], self._near_dist[c]
+
+    def sample(self, c: int) -> np.ndarray:
+        return self._sample[c]
+
+    def held(self) -> tuple[int, int]:
+        """The largest number of nearest rows and of sampled rows held for any cluster."""
+        return (max((r.size for r in self._near_rows), default=0), max((r.size for r in self._sample), default=0))
+
+    def candidates(self, c: int, distances: np.ndarray) -> np.ndarray:
+        """Rows to look in for keyword-in-context lines: the nearest, then the sample nearest first."""
+        sample = self._sample[c]
+        sample = sample[np.lexsort((sample, distances[sample]))]
+        rows = np.concatenate([self._near_rows[c], sample])
+        _, first = np.unique(rows, return_index=True)
+        return rows[np.sort(first)]
 
 
 def _stability_value(stability: StabilityResult | None, c: int) -> float | None:
@@ -142,20 +241,17 @@ def _log_odds_terms(
 
 
 def _kwic_for(
-    terms: Sequence[TermScore], members: np.ndarray, distances: np.ndarray, present_csc: sp.csc_matrix,
+    terms: Sequence[TermScore], candidates: np.ndarray, counts: sp.csr_matrix,
     column_of: dict[str, int], collection: Collection, analyzer: Analyzer,
 ) -> tuple[KwicLine, ...]:
-    """Up to KWIC_LINES_PER_TERM lines per term, from distinct member texts, nearest first."""
+    """Up to KWIC_LINES_PER_TERM lines per term, from distinct member texts among `candidates`, in order."""
     lines: list[KwicLine] = []
-    is_member = np.zeros(present_csc.shape[0], dtype=bool)
-    is_member[members] = True
     for term in terms:
         column = column_of[term.key]
-        rows = present_csc.indices[present_csc.indptr[column] : present_csc.indptr[column + 1]]
-        holders = rows[is_member[rows]]
-        holders = holders[np.argsort(distances[holders], kind="stable")]
         found = 0
-        for text_index in holders:
+        for text_index in candidates.tolist():
+            if not np.any(counts.indices[counts.indptr[text_index] : counts.indptr[text_index + 1]] == column):
+                continue
             doc_index = int(collection.first_doc_of_text[text_index])
             doc = collection.documents[doc_index]
             line = kwic_line(doc.text, analyzer, term.key)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 
@@ -35,7 +36,7 @@ class IngestEntry:
 class Ingested:
     """Everything the reading stage found."""
 
-    documents: tuple[Document, ...]
+    documents: Sequence[Document]  # a tuple, or a disk-backed shelf when streaming
     entries: tuple[IngestEntry, ...]
     notes: tuple[str, ...] = ()
     files_found: int = 0

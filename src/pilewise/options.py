@@ -16,10 +16,15 @@ LIMITS: dict[str, tuple[float, float, str]] = {
     "max_documents": (2, 100_000_000, "--max-documents"),
     "top_terms": (1, 100, "--top-terms"),
     "resamples": (1, 1000, "--resamples"),
+    "workers": (0, 256, "--workers"),
 }
 
 
 METHODS = ("kmeans", "ward")
+MODES = ("auto", "memory", "stream")
+# --mode auto streams when the files to read hold at least this many bytes (about 200,000 short
+# texts; the in-memory path needs roughly 12 KB of memory per text, docs/performance.md)
+STREAM_ABOVE_BYTES = 100 * 1024 * 1024
 
 
 @dataclass(frozen=True)
@@ -67,6 +72,8 @@ class RunOptions:
     max_documents: int = 2_000_000
     redact: bool = True
     near_duplicate: float = 0.8
+    mode: str = "auto"  # memory, stream, or auto: stream above STREAM_ABOVE_BYTES of input
+    workers: int = 0  # tokenizing processes when streaming; 0: one per core
     quiet: bool = False
     extra: dict[str, str] = field(default_factory=dict)
 
@@ -96,6 +103,8 @@ def validate(options: RunOptions) -> None:
         problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
     if options.method not in METHODS:
         problems.append(f"--method {options.method!r} is not known; use one of: {', '.join(METHODS)}")
+    if options.mode not in MODES:
+        problems.append(f"--mode {options.mode!r} is not known; use one of: {', '.join(MODES)}")
     if not 2 <= options.k_min < options.k_max <= LIMITS["k"][1]:
         problems.append(f"k range {options.k_min}:{options.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}")
     name = options.run_name()

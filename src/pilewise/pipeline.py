@@ -10,28 +10,29 @@ import hashlib
 import os
 import shutil
 import tempfile
-from collections.abc import Callable
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters
+from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
 from pilewise.dedup import Boilerplate, NearDuplicates, find_boilerplate, near_duplicate_groups, strip_boilerplate
-from pilewise.describe import Collection, describe_clusters
+from pilewise.describe import ROW_BLOCK, Collection, describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.exports import write_exports
 from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
 from pilewise.names import Naming, carry_names, find_old_names, suggested_name
-from pilewise.options import RunOptions, check_k, check_k_range, kmeans_starts, validate
-from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles
+from pilewise.options import STREAM_ABOVE_BYTES, RunOptions, check_k, check_k_range, kmeans_starts, validate
+from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, profiles_from_sums
 from pilewise.progress import Reporter
 from pilewise.quality import assess
-from pilewise.reading import ReadLimits, read_source
-from pilewise.redact import display_text, redact
+from pilewise.reading import ReadLimits, SourceStream, read_source, stream_source
+from pilewise.redact import redact_document
 from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
 from pilewise.site import render_root_index, render_run_site
 from pilewise.stability import (
@@ -41,10 +42,11 @@ from pilewise.stability import (
     kmeans_cluster_fn,
     stability_rows,
 )
+from pilewise.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import Vectorized, VectorSettings, tfidf_weights, vectorize
+from pilewise.vectors import Vectorized, VectorSettings, tfidf_rows, vectorize
 
 
 @dataclass(frozen=True)
@@ -89,11 +91,12 @@ class RunOutcome:
 def run_collection(options: RunOptions, reporter: Reporter | None = None) -> RunOutcome:
     """Read, cluster and describe SOURCE, then write the run's site and exports under OUT."""
     reporter = reporter or Reporter(quiet=options.quiet)
-    result = compute_run(options, reporter)
-    with reporter.stage("writing site"):
-        run_folder = options.out / "runs" / result.name
-        _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
-        root_index = render_root_index(options.out)
+    with _work_folder(options.out) as work:
+        result = compute_run(options, reporter, work)
+        with reporter.stage("writing site"):
+            run_folder = options.out / "runs" / result.name
+            _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+            root_index = render_root_index(options.out)
     return RunOutcome(
         run_folder=run_folder,
         index_page=run_folder / "index.html",
@@ -118,6 +121,7 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     from pilewise.site import render_sweep
 
     reporter = reporter or Reporter(quiet=options.quiet)
+    options = replace(options, mode="memory")  # a sweep clusters at every k: on a large collection, use a sample
     validate(options)
     prepared = prepare_collection(options, reporter, k_needed=options.k_min)
     k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
@@ -166,13 +170,34 @@ class Prepared:
     weights: np.ndarray
     boilerplate: Boilerplate
     redacted: dict[str, int]
+    fingerprint: str
+    streamed: bool = False
 
 
-def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int) -> Prepared:
-    """Read SOURCE, group exact duplicates, check k against the distinct texts, vectorize."""
+@contextmanager
+def _work_folder(out: Path) -> Iterator[Path]:
+    """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end."""
+    out.mkdir(parents=True, exist_ok=True)
+    for stale in out.glob(".work-*"):  # left by a killed run
+        shutil.rmtree(stale, ignore_errors=True)
+    with tempfile.TemporaryDirectory(prefix=".work-", dir=out) as folder:
+        yield Path(folder)
+
+
+def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int, work: Path | None = None) -> Prepared:
+    """Read SOURCE, group exact duplicates, check k against the distinct texts, vectorize.
+
+    Large collections (--mode stream, or auto above STREAM_ABOVE_BYTES) go chunk by chunk through
+    the streaming path, which needs `work`, a scratch folder.
+    """
+    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
+    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
+    source = stream_source(options.source, columns, limits)
+    if options.mode == "stream" or (options.mode == "auto" and source.total_bytes >= STREAM_ABOVE_BYTES):
+        if work is None:
+            raise PilewiseError("streaming is for `pilewise run`; pass --mode memory or run on a sample")
+        return _prepare_streamed(options, reporter, source, k_needed, work)
     with reporter.stage("reading"):
-        limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
-        columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
         ingested = read_source(
             options.source, columns, limits,
             track=lambda paths: reporter.track(paths, total=len(paths), label="reading files"),
@@ -223,13 +248,65 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
-                    redacted)
+                    redacted, fingerprint(ingested.documents))
 
 
-def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
-    """All computation of a run, no writing."""
+def _prepare_streamed(
+    options: RunOptions, reporter: Reporter, source: SourceStream, k_needed: int, work: Path
+) -> Prepared:
+    """The streaming path: chunks of documents, a hashed vocabulary, LSA fitted on a sample."""
+    if options.k_auto or options.method == "ward":
+        raise PilewiseError(
+            "streaming mode clusters with mini-batch k-means at one given k; pass --k N without --method ward, "
+            "or --mode memory (choose k with `pilewise sweep` on a sample of the collection)"
+        )
+    reporter.say(f"streaming {source.total_bytes / 1e6:,.0f} MB of input in chunks of "
+                 f"{CHUNK_DOCUMENTS:,} documents")
+    if not options.redact:
+        reporter.warn("redaction is off (--no-redact); pages and exports show personal data as written")
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
+                              seed=options.seed)
+    with reporter.stage("reading and counting terms"), \
+            reporter.meter(total=source.total_bytes, label="reading") as meter:
+        def advance(documents: int) -> None:
+            meter(source.bytes_done, documents)
+
+        streamed = prepare_streamed(
+            _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
+            workers=options.workers or default_workers(), say=reporter.say, advance=advance,
+        )
+    ingested = Ingested(streamed.shelf, tuple(source.entries), tuple(source.notes), source.files_found)
+    for note in ingested.notes:
+        reporter.say(note)
+    if streamed.redacted:
+        reporter.say("redacted " + ", ".join(f"{n:,} {kind}" for kind, n in streamed.redacted.items()))
+    collection = streamed.collection
+    reporter.say(
+        f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
+        f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv); near-duplicate grouping "
+        "is not done in streaming mode"
+    )
+    check_k(k_needed, int(collection.copies.size))
+    return Prepared(ingested, collection, analyzer, streamed.vectors, collection.copies.astype(float),
+                    streamed.boilerplate, streamed.redacted, streamed.fingerprint, streamed=True)
+
+
+def _capped(documents: Iterable[Document], limit: int) -> Iterator[Document]:
+    for count, doc in enumerate(documents, start=1):
+        if count > limit:
+            raise PilewiseError(
+                f"found more than --max-documents {limit:,} documents; raise --max-documents or point SOURCE "
+                "at fewer files"
+            )
+        yield doc
+
+
+def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = None) -> RunResult:
+    """All computation of a run, no writing; `work` is a scratch folder for the streaming path."""
     validate(options)
-    prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k)
+    prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k,
+                                  work=work)
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
     k_min, k_max = check_k_range(options.k_min, options.k_max, distinct)
@@ -254,21 +331,20 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
     with reporter.stage("describing"):
         clusters = describe_clusters(
             prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-            top_terms=options.top_terms, stability=stability,
+            top_terms=options.top_terms, stability=stability, seed=options.seed,
         )
         levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
         shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
-        profiles = term_profiles(tfidf_weights(prepared.vectors.counts), clustering.labels, weights, shown, k=k)
+        profiles = _term_profiles(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
         columns = metadata_columns(prepared.collection)
         metadata = analyse_metadata(columns, clustering.labels, weights, k=k) if columns else None
     with reporter.stage("explaining"):
         rules = explain_run(prepared, clustering.labels, shown, metadata, columns, k=k, seed=options.seed)
     suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
-    old_names = find_old_names(options.out / "runs", source=str(options.source),
-                               fingerprint=fingerprint(prepared.ingested.documents))
+    old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
     naming = carry_names(old_names, doc_ids, clustering.labels[prepared.collection.text_of_doc], space,
                          prepared.collection.text_of_doc, suggestions)
     if naming.source_run:
@@ -281,8 +357,22 @@ def compute_run(options: RunOptions, reporter: Reporter) -> RunResult:
         redacted=prepared.redacted,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
-        fingerprint=fingerprint(prepared.ingested.documents), timings=reporter.timings,
+        fingerprint=prepared.fingerprint, timings=reporter.timings,
     )
+
+
+def _term_profiles(
+    counts: sp.csr_matrix, labels: np.ndarray, weights: np.ndarray, shown: list[str], *, k: int
+) -> tuple[ClusterProfile, ...]:
+    """Stronger and weaker terms per cluster, from TF-IDF sums accumulated over blocks of rows."""
+    idf = np.log((1 + counts.shape[0]) / (1 + np.bincount(counts.indices, minlength=counts.shape[1]))) + 1.0
+    sums = sp.csr_matrix((k, counts.shape[1]))
+    for begin in range(0, counts.shape[0], ROW_BLOCK):
+        block_labels = labels[begin : begin + ROW_BLOCK]
+        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, np.arange(block_labels.size))),
+                                  shape=(k, block_labels.size))
+        sums = sums + indicator @ tfidf_rows(counts[begin : begin + ROW_BLOCK], idf)
+    return profiles_from_sums(sp.csr_matrix(sums), np.bincount(labels, weights=weights, minlength=k), shown)
 
 
 def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
@@ -295,6 +385,8 @@ def _cluster_at(options: RunOptions, prepared: Prepared, k: int, tree: Tree | No
     space, weights = prepared.vectors.space, prepared.weights
     if tree is not None:
         return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
+    if prepared.streamed:
+        return minibatch_clusters(space, weights, k=k, seed=options.seed)
     starts = kmeans_starts(options, int(weights.size))
     return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=starts)
 
@@ -358,16 +450,8 @@ def metadata_columns(collection: Collection) -> dict[str, list[str]]:
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:
     """Replace personal data in texts (placeholders, for vectorizing) and titles and table cells (labels)."""
     counts: dict[str, int] = {}
-    documents = []
-    for doc in ingested.documents:
-        found = redact(doc.text)
-        for kind, n in found.counts:
-            counts[kind] = counts.get(kind, 0) + n
-        documents.append(replace(
-            doc, text=found.text, title=display_text(redact(doc.title).text),
-            metadata=tuple((name, display_text(redact(value).text)) for name, value in doc.metadata),
-        ))
-    return replace(ingested, documents=tuple(documents)), counts
+    documents = tuple(redact_document(doc, counts) for doc in ingested.documents)
+    return replace(ingested, documents=documents), counts
 
 
 def merge_near_duplicates(collection: Collection, near: NearDuplicates) -> Collection:
@@ -378,7 +462,7 @@ def merge_near_duplicates(collection: Collection, near: NearDuplicates) -> Colle
     return Collection(collection.documents, text_of_doc, first, copies)
 
 
-def collect_distinct(documents: tuple[Document, ...]) -> Collection:
+def collect_distinct(documents: Sequence[Document]) -> Collection:
     """Group exact duplicate texts (after collapsing whitespace) so that each is clustered once."""
     index_of: dict[str, int] = {}
     text_of_doc = np.empty(len(documents), dtype=np.int64)
@@ -393,7 +477,7 @@ def collect_distinct(documents: tuple[Document, ...]) -> Collection:
     return Collection(documents, text_of_doc, np.asarray(first, dtype=np.int64), copies)
 
 
-def fingerprint(documents: tuple[Document, ...]) -> str:
+def fingerprint(documents: Iterable[Document]) -> str:
     """SHA-256 over every document's id and text, in reading order."""
     digest = hashlib.sha256()
     for doc in documents:

@@ -202,17 +202,29 @@ def term_profiles(
     matrix = sp.csr_matrix(tfidf, dtype=float)
     w = np.asarray(weights, dtype=float)
     lab = _check_clusters(labels, w, k, matrix.shape[0])
-    if matrix.shape[1] != len(term_labels):
-        raise ValueError(f"{len(term_labels)} term labels for a matrix of {matrix.shape[1]} terms")
+    indicator = sp.csr_matrix((w, (lab, np.arange(lab.size))), shape=(k, lab.size))
+    return profiles_from_sums(sp.csr_matrix(indicator @ matrix), np.bincount(lab, weights=w, minlength=k),
+                              term_labels, top=top, bottom=bottom)
+
+
+def profiles_from_sums(
+    sums: sp.csr_matrix, sizes: np.ndarray, term_labels: Sequence[str], *, top: int = 10, bottom: int = 5
+) -> tuple[ClusterProfile, ...]:
+    """`term_profiles` from each cluster's weighted sum of TF-IDF rows (k x terms) and weighted size.
+
+    This is what a pass over the rows in blocks can accumulate, so large collections need no copy of
+    their TF-IDF matrix.
+    """
+    if sums.shape[1] != len(term_labels):
+        raise ValueError(f"{len(term_labels)} term labels for a matrix of {sums.shape[1]} terms")
     if top < 0 or bottom < 0:
         raise ValueError(f"top={top} and bottom={bottom} must not be negative")
-    total_weight = float(w.sum())
-    sums_all = np.asarray(matrix.T @ w).ravel()
+    total_weight = float(sizes.sum())
+    sums_all = np.asarray(sums.sum(axis=0)).ravel()
     profiles = []
-    for c in range(k):
-        members = np.flatnonzero(lab == c)
-        size = float(w[members].sum())
-        sums_in = np.asarray(matrix[members].T @ w[members]).ravel()
+    for c in range(sums.shape[0]):
+        size = float(sizes[c])
+        sums_in = sums[c].toarray().ravel()
         mean_in = sums_in / size
         mean_out = (sums_all - sums_in) / (total_weight - size)
         diff = mean_in - mean_out

@@ -2,14 +2,21 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 import numpy as np
 import scipy.sparse as sp
 from sklearn import config_context
-from sklearn.metrics import calinski_harabasz_score, davies_bouldin_score, silhouette_samples
+from sklearn.metrics import silhouette_samples
+from sklearn.metrics.pairwise import euclidean_distances
 
 from pilewise.model import QualityScores
 
 SILHOUETTE_SAMPLE = 10_000
+# CH and DB read the space in row blocks whose float64 working copy stays under BLOCK_BYTES (and at most
+# BLOCK_ROWS rows), so a memory-mapped or million-row space is never copied whole
+BLOCK_BYTES = 4 * 2**20
+BLOCK_ROWS = 50_000
 
 
 def silhouette_reading(value: float | None) -> str:
@@ -28,7 +35,8 @@ def silhouette_reading(value: float | None) -> str:
 def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, seed: int) -> QualityScores:
     """Silhouette (cosine; a seeded sample above SILHOUETTE_SAMPLE texts), CH and DB (Euclidean).
 
-    Scores are over the distinct texts. Silhouette is defined for 2 <= clusters <= n - 1.
+    Scores are over the distinct texts. Silhouette is defined for 2 <= clusters <= n - 1. CH and DB are
+    computed in row blocks (see `calinski_harabasz_davies_bouldin`), dense or sparse, at any size.
     """
     n = labels.shape[0]
     present = np.unique(labels).size
@@ -48,15 +56,7 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
         silhouette = float(widths.mean())
         per_cluster = [float(widths[sample_labels == c].mean()) if np.any(sample_labels == c) else float("nan")
                        for c in range(k)]
-    dense: np.ndarray | None = None
-    if not sp.issparse(space):
-        dense = np.asarray(space)
-    elif space.shape[0] * space.shape[1] <= 50_000_000:
-        dense = sp.csr_matrix(space).toarray()
-    ch = db = None
-    if dense is not None:
-        ch = float(calinski_harabasz_score(dense, labels))
-        db = float(davies_bouldin_score(dense, labels))
+    ch, db = calinski_harabasz_davies_bouldin(space, labels)
     return QualityScores(
         silhouette=silhouette,
         silhouette_sample=int(rows.size),
@@ -65,3 +65,107 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
         silhouette_reading=silhouette_reading(silhouette),
         per_cluster_silhouette=tuple(per_cluster),
     )
+
+
+def calinski_harabasz_davies_bouldin(
+    space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, block_rows: int | None = None
+) -> tuple[float, float]:
+    """Calinski-Harabasz and Davies-Bouldin scores (Euclidean) in two passes over row blocks.
+
+    Calinski, T. & Harabasz, J. (1974), "A dendrite method for cluster analysis", Communications in
+    Statistics 3(1); Davies, D. L. & Bouldin, D. W. (1979), "A cluster separation measure", IEEE TPAMI 1(2).
+    Same definitions and conventions as scikit-learn's ``calinski_harabasz_score`` and
+    ``davies_bouldin_score`` (which copy each cluster's rows and, for sparse input, need it densified).
+
+    Parameters
+    ----------
+    space : ndarray (any float dtype, memory-mapped or not) or csr_matrix, shape (n, n_dims)
+        The clustering space. It is read one block of rows at a time and never copied whole.
+    labels : ndarray of int, shape (n,)
+        Cluster ids 0..k-1; ids that no row carries are left out, as scikit-learn does. At least two
+        clusters must be present, and fewer than n.
+    block_rows : int, optional
+        Rows per block. Default: as many as keep a float64 block under BLOCK_BYTES, at most BLOCK_ROWS.
+
+    Returns
+    -------
+    calinski_harabasz, davies_bouldin : float
+    """
+    data: np.ndarray | sp.csr_matrix = sp.csr_matrix(space) if sp.issparse(space) else np.asarray(space)
+    labels = np.asarray(labels)
+    n, n_dims = data.shape
+    if labels.shape != (n,):
+        raise ValueError(f"labels have shape {labels.shape}; expected ({n},), one per row of the space")
+    counts = np.bincount(labels).astype(np.float64)
+    present = np.flatnonzero(counts)
+    if not 1 < present.size < n:
+        raise ValueError(f"{present.size} clusters present among {n} rows; need 2 to n - 1")
+    ids = counts.size
+    if block_rows is None:
+        # bytes of float64 working memory per row: a dense row's float64 copy, or for a sparse row its products
+        # with the centroids and the copy of its stored values
+        per_row = 8 * n_dims if isinstance(data, np.ndarray) else 8 * ids + 16 * data.nnz / max(n, 1)
+        block_rows = int(min(BLOCK_ROWS, max(1, BLOCK_BYTES // per_row)))
+
+    # pass 1: per-cluster sums, accumulated in float64, give the centroids
+    sums = np.zeros((ids, n_dims))
+    for start, stop in _blocks(n, block_rows):
+        block_sum = _indicator(labels[start:stop], ids) @ data[start:stop]
+        sums += block_sum.toarray() if sp.issparse(block_sum) else block_sum
+    centroids = np.zeros_like(sums)
+    centroids[present] = sums[present] / counts[present, None]
+
+    # pass 2: each row's distance to its own centroid, summed (DB) and squared (CH's within-cluster dispersion,
+    # exact where sum |x|^2 - n |c|^2 would cancel for clusters far from the origin); exact differences for
+    # dense rows, the expansion |x|^2 - 2 x.c + |c|^2 for sparse ones (densifying wide rows costs n x n_dims)
+    squares = np.zeros(ids)
+    distances = np.zeros(ids)
+    centroid_norms = np.einsum("ij,ij->i", centroids, centroids)
+    for start, stop in _blocks(n, block_rows):
+        block_labels = labels[start:stop]
+        squared = _squared_distances(data[start:stop], block_labels, centroids, centroid_norms)
+        squares += np.bincount(block_labels, weights=squared, minlength=ids)
+        distances += np.bincount(block_labels, weights=np.sqrt(squared), minlength=ids)
+
+    size, centres = counts[present], centroids[present]
+    n_clusters = present.size
+    mean = sums[present].sum(axis=0) / n
+    between = float(np.sum(size * np.sum((centres - mean) ** 2, axis=1)))
+    within = float(squares[present].sum())
+    ch = 1.0 if within == 0.0 else between * (n - n_clusters) / (within * (n_clusters - 1.0))
+
+    spread = distances[present] / size
+    separation = euclidean_distances(centres)
+    if np.allclose(spread, 0.0) or np.allclose(separation, 0.0):
+        return ch, 0.0
+    separation[separation == 0] = np.inf
+    db = float(np.mean(np.max((spread[:, None] + spread) / separation, axis=1)))
+    return ch, db
+
+
+def _blocks(n: int, block_rows: int) -> Iterator[tuple[int, int]]:
+    """Start and stop of consecutive row blocks covering 0..n."""
+    for start in range(0, n, block_rows):
+        yield start, min(start + block_rows, n)
+
+
+def _squared_distances(
+    rows: np.ndarray | sp.csr_matrix, labels: np.ndarray, centroids: np.ndarray, centroid_norms: np.ndarray
+) -> np.ndarray:
+    """Squared Euclidean distance of each row to its own cluster's centroid, shape (rows,).
+
+    A function of its own so that a block's (rows x n_dims) temporary is freed before the next block's.
+    """
+    if isinstance(rows, np.ndarray):
+        difference = centroids[labels]
+        np.subtract(rows, difference, out=difference)
+        return np.einsum("ij,ij->i", difference, difference)
+    dots = np.asarray(rows @ centroids.T)[np.arange(rows.shape[0]), labels]
+    row_norms = np.asarray(rows.multiply(rows).sum(axis=1)).ravel()
+    return np.maximum(row_norms - 2.0 * dots + centroid_norms[labels], 0.0)
+
+
+def _indicator(labels: np.ndarray, ids: int) -> sp.csc_matrix:
+    """Sparse (ids x rows) matrix with a 1.0 at (label, row): its product with the rows sums each cluster."""
+    rows = labels.size
+    return sp.csc_matrix((np.ones(rows), labels, np.arange(rows + 1)), shape=(ids, rows))

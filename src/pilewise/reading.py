@@ -11,7 +11,7 @@ import email.policy
 import os
 import re
 import stat
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 from email.message import EmailMessage
 from pathlib import Path
@@ -21,7 +21,7 @@ from bs4 import BeautifulSoup
 from pilewise.errors import PilewiseError
 from pilewise.model import Document, Ingested, IngestEntry
 from pilewise.plaintext import decode_bytes, first_line_title
-from pilewise.tables import TABLE_SUFFIXES, ColumnChoice, read_table
+from pilewise.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_table
 
 TEXT_SUFFIXES = {".txt", ".md", ".markdown", ".text"}
 HTML_SUFFIXES = {".html", ".htm", ".xhtml"}
@@ -37,43 +37,151 @@ class ReadLimits:
     max_doc_chars: int = 1_000_000
 
 
+class SourceStream:
+    """Documents of SOURCE in reading order, read lazily; the report fills in as iteration goes.
+
+    Made by `stream_source`. Iterate it once; ``entries`` and ``notes`` are complete when the
+    iteration has finished (a table's entries are added when its last row has been read).
+
+    Attributes
+    ----------
+    entries : list of IngestEntry
+        What became of every file, and of every table row without a document.
+    notes : list of str
+        Column guesses and other remarks to show the user.
+    files_found : int
+        Files found in SOURCE, including links to folders that were not followed.
+    total_bytes : int
+        Sum of the sizes of the files that will be read; known before iterating.
+    bytes_done : int
+        About how many of those bytes have been read so far, for a progress bar.
+    """
+
+    def __init__(
+        self,
+        planned: list[_Planned],
+        entries: list[IngestEntry],
+        files_found: int,
+        total_bytes: int,
+        source: Path,
+        columns: ColumnChoice,
+        limits: ReadLimits,
+        track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None,
+    ) -> None:
+        self.entries = entries
+        self.notes: list[str] = []
+        self.files_found = files_found
+        self.total_bytes = total_bytes
+        self.bytes_done = 0
+        self._planned = planned
+        self._source = source
+        self._columns = columns
+        self._limits = limits
+        self._track = track
+        self._state = "new"
+
+    def __iter__(self) -> Iterator[Document]:
+        """The documents, read as they are asked for.
+
+        Raises
+        ------
+        PilewiseError
+            At the end, when no file or row held a document.
+        """
+        if self._state != "new":
+            raise RuntimeError("a SourceStream can be iterated once; call stream_source again")
+        self._state = "reading"
+        return self._documents()
+
+    def ingested(self, documents: Iterable[Document]) -> Ingested:
+        """The report of a finished iteration, with `documents` (those it gave, or what became of them)."""
+        if self._state != "done":
+            raise RuntimeError("the ingest report is complete only once the SourceStream has been iterated")
+        return Ingested(tuple(documents), tuple(self.entries), tuple(self.notes), self.files_found)
+
+    def _documents(self) -> Iterator[Document]:
+        found = 0
+        paths = [(planned.path, planned.rel) for planned in self._planned]
+        for planned, _ in zip(self._planned, self._track(paths) if self._track else paths, strict=True):
+            start = self.bytes_done
+            if planned.skipped is not None:
+                self.entries.append(planned.skipped)
+            elif planned.path.suffix.lower() in TABLE_SUFFIXES:
+                report = TableReport()
+                for doc in iter_table(planned.path, planned.rel, self._columns, self._limits.max_doc_chars, report):
+                    found += 1
+                    self.bytes_done = start + min(report.bytes_read, planned.size)
+                    yield doc
+                self.entries.extend(report.entries)
+                self.notes.extend(report.notes)
+            else:
+                read, file_entries = _read_file(planned.path, planned.rel, self._limits)
+                self.entries.extend(file_entries)
+                self.bytes_done = start + planned.size
+                if read is not None:
+                    found += 1
+                    yield read
+            self.bytes_done = start + planned.size
+        self._state = "done"
+        if not found:
+            reasons = _reason_counts(self.entries)
+            where = repr(str(self._source))
+            if self._source.is_dir():
+                where = f"{len(paths)} file(s) in {where}"
+            raise PilewiseError(
+                f"no documents found in {where} ({reasons or 'nothing readable'}); point SOURCE at "
+                "a folder of .txt/.md/.html/.eml files or a .csv/.tsv/.json/.jsonl/.parquet table"
+            )
+
+
+def stream_source(
+    source: Path,
+    columns: ColumnChoice,
+    limits: ReadLimits,
+    *,
+    track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None = None,
+) -> SourceStream:
+    """Read SOURCE (a folder, read recursively, or one file) lazily, document by document.
+
+    The files are listed and checked (type, size) now; their contents are read while the
+    stream is iterated, a table row by row, so no more than one file (or a table's first
+    rows) is held in memory. `track` may wrap the list of files, e.g. in a progress bar.
+
+    Raises
+    ------
+    PilewiseError
+        When SOURCE is missing or is one file of an unsupported type; iterating raises it when
+        SOURCE holds no readable document at all.
+    """
+    if not source.exists():
+        raise PilewiseError(f"source {str(source)!r} does not exist; pass a folder or a table file")
+    entries: list[IngestEntry] = []
+    if source.is_file():
+        paths = [(source, source.name)]
+    else:
+        paths, entries = _discover(source)
+    planned = [_plan(path, rel, limits, single=source.is_file()) for path, rel in paths]
+    files_found = len(paths) + sum(1 for e in entries if e.status == "skipped" and e.reason.startswith("link"))
+    total_bytes = sum(p.size for p in planned)
+    return SourceStream(planned, entries, files_found, total_bytes, source, columns, limits, track)
+
+
 def read_source(
     source: Path,
     columns: ColumnChoice,
     limits: ReadLimits,
     track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None = None,
 ) -> Ingested:
-    """Read SOURCE (a folder, read recursively, or one file) into documents.
+    """Read SOURCE (a folder, read recursively, or one file) into documents, all at once.
 
     Raises
     ------
     PilewiseError
         When SOURCE is missing or holds no readable document at all.
     """
-    if not source.exists():
-        raise PilewiseError(f"source {str(source)!r} does not exist; pass a folder or a table file")
-    documents: list[Document] = []
-    entries: list[IngestEntry] = []
-    notes: list[str] = []
-    if source.is_file():
-        paths = [(source, source.name)]
-    else:
-        paths, walk_entries = _discover(source)
-        entries.extend(walk_entries)
-    for path, rel in track(paths) if track else paths:
-        docs, file_entries, file_notes = _read_one(path, rel, columns, limits, single=source.is_file())
-        documents.extend(docs)
-        entries.extend(file_entries)
-        notes.extend(file_notes)
-    files_found = len(paths) + sum(1 for e in entries if e.status == "skipped" and e.reason.startswith("link"))
-    if not documents:
-        reasons = _reason_counts(entries)
-        where = f"{len(paths)} file(s) in {str(source)!r}" if source.is_dir() else repr(str(source))
-        raise PilewiseError(
-            f"no documents found in {where} ({reasons or 'nothing readable'}); point SOURCE at "
-            "a folder of .txt/.md/.html/.eml files or a .csv/.tsv/.json/.jsonl/.parquet table"
-        )
-    return Ingested(tuple(documents), tuple(entries), tuple(notes), files_found)
+    stream = stream_source(source, columns, limits, track=track)
+    documents = list(stream)
+    return stream.ingested(documents)
 
 
 def _reason_counts(entries: list[IngestEntry]) -> str:
@@ -113,40 +221,52 @@ def _relative(path: Path, folder: Path) -> str:
         return path.as_posix()
 
 
-def _read_one(
-    path: Path, rel: str, columns: ColumnChoice, limits: ReadLimits, *, single: bool
-) -> tuple[list[Document], list[IngestEntry], list[str]]:
+@dataclass(frozen=True)
+class _Planned:
+    """A file found: the bytes it will be read for, or why it is skipped without reading it."""
+
+    path: Path
+    rel: str
+    size: int
+    skipped: IngestEntry | None = None
+
+
+def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned:
     suffix = path.suffix.lower()
     try:
         info = path.stat()
     except OSError as err:
-        return [], [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))], []
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err)))
     if not stat.S_ISREG(info.st_mode):  # pipes, sockets, devices: reading could block or never end
-        return [], [IngestEntry(rel, "skipped", "not a regular file", "a pipe, socket or device")], []
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "not a regular file", "a pipe, socket or device"))
     size = info.st_size
     if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES | TABLE_SUFFIXES:
         if single:
             raise PilewiseError(
                 f"{rel!r} is not a supported file type; pass a folder, or a .csv/.tsv/.json/.jsonl/.parquet table"
             )
-        return [], [IngestEntry(rel, "skipped", "unsupported", f"file type {suffix or '(none)'}")], []
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "unsupported", f"file type {suffix or '(none)'}"))
     if size == 0:
-        return [], [IngestEntry(rel, "skipped", "empty", "0 bytes")], []
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "empty", "0 bytes"))
     if size > limits.max_file_bytes:
         limit_mb = limits.max_file_bytes / 1024 / 1024
         detail = f"{size / 1024 / 1024:.1f} MB; raise --max-file-mb (now {limit_mb:g}) to read it"
-        return [], [IngestEntry(rel, "skipped", "too large", detail)], []
-    if suffix in TABLE_SUFFIXES:
-        return read_table(path, rel, columns, limits.max_doc_chars)
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "too large", detail))
+    return _Planned(path, rel, size)
+
+
+def _read_file(path: Path, rel: str, limits: ReadLimits) -> tuple[Document | None, list[IngestEntry]]:
+    """One text, HTML or mail file: its document, if any, and its report entries."""
+    suffix = path.suffix.lower()
     try:
         raw = path.read_bytes()
     except OSError as err:
-        return [], [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))], []
+        return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
     if suffix in MAIL_SUFFIXES:
         title, text, note = _read_mail(raw)
     else:
         if _looks_binary(raw):
-            return [], [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")], []
+            return None, [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")]
         decoded, note = decode_bytes(raw)
         if suffix in HTML_SUFFIXES:
             title, text = html_to_text(decoded)
@@ -154,14 +274,14 @@ def _read_one(
             title, text = "", decoded
     text = text.strip()
     if not text:
-        return [], [IngestEntry(rel, "skipped", "empty", "no visible text")], []
+        return None, [IngestEntry(rel, "skipped", "empty", "no visible text")]
     entries = []
     text, cut = _truncate(text, limits.max_doc_chars)
     if cut:
         entries.append(IngestEntry(rel, "note", "truncated", cut))
     doc = Document(doc_id=rel, source=rel, title=title.strip() or first_line_title(text), text=text)
     entries.insert(0, IngestEntry(rel, "document", "read", note))
-    return [doc], entries, []
+    return doc, entries
 
 
 def _truncate(text: str, max_chars: int) -> tuple[str, str]:

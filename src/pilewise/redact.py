@@ -71,8 +71,9 @@ from __future__ import annotations
 
 import ipaddress
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
+from pilewise.model import Document
 from pilewise.text import PLACEHOLDER_PREFIX
 
 KINDS = ("email", "phone", "card", "iban", "ip")
@@ -235,6 +236,18 @@ def redact(text: str) -> Redaction:
             counts[kind] += n
         text, found = _redact_once(text)
     return Redaction(text, tuple((kind, n) for kind, n in counts.items() if n))
+
+
+def redact_document(doc: Document, counts: dict[str, int]) -> Document:
+    """`doc` with placeholders in its text (for vectorizing) and labels in its title and table cells (for
+    display); the values replaced are added to `counts` per kind."""
+    found = redact(doc.text)
+    for kind, n in found.counts:
+        counts[kind] = counts.get(kind, 0) + n
+    return replace(
+        doc, text=found.text, title=display_text(redact(doc.title).text),
+        metadata=tuple((name, display_text(redact(value).text)) for name, value in doc.metadata),
+    )
 
 
 def _redact_once(text: str) -> tuple[str, dict[str, int]]:

@@ -68,6 +68,14 @@ def tfidf_weights(counts: sp.spmatrix, *, sublinear: bool = True) -> sp.csr_matr
     return sp.csr_matrix(TfidfTransformer(sublinear_tf=sublinear).fit_transform(counts))
 
 
+def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
+    """L2-normalized sublinear TF-IDF rows, as `tfidf_weights`, with a given
+    idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection)."""
+    weighted = sp.csr_matrix(counts, dtype=np.float64, copy=True)
+    weighted.data = (1.0 + np.log(weighted.data)) * idf[weighted.indices]
+    return sp.csr_matrix(normalize(weighted))
+
+
 def with_phrases(terms: list[str]) -> list[str]:
     """Terms followed by the two-word phrases of adjacent kept terms."""
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]

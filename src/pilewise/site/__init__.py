@@ -25,6 +25,7 @@ if TYPE_CHECKING:
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
+MEMBERS_LISTED = 5_000  # members listed per cluster (nearest first, 10 pages); assignments.csv has them all
 MARKED_TERMS = 12
 GROUP_LISTED = 50  # copies and near-duplicates linked from a document page
 STYLESHEET = "pilewise.css"
@@ -90,6 +91,7 @@ def render_run_site(
         "quality": result.quality,
         "with_doc_pages": with_doc_pages,
         "doc_page_cap": DOC_PAGE_CAP,
+        "members_listed": MEMBERS_LISTED,
         "stability_mean": result.stability.mean,
         "has_sweep": result.sweep is not None,
         "metadata": result.metadata,
@@ -129,6 +131,7 @@ def render_run_site(
                 "page": page,
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
                 "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
+                "listed": len(members),
                 "up": "",
             }
             _write(folder / cluster_page_name(cluster.cluster_id, page),
@@ -269,16 +272,18 @@ def _member_row(doc_index: int, distance: float, doc: Document, with_pages: bool
 
 
 def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float]]]:
-    """Every document of every cluster, nearest to the centroid first (copies next to each other)."""
+    """The MEMBERS_LISTED documents of every cluster nearest to its centroid, nearest first (copies together)."""
     import numpy as np
 
     labels = result.clustering.labels[result.collection.text_of_doc]
     distances = result.clustering.distances[result.collection.text_of_doc]
     order = np.lexsort((np.arange(labels.size), distances, labels))
-    grouped: dict[int, list[tuple[int, float]]] = {c.cluster_id: [] for c in result.clusters}
-    for i in order:
-        grouped[int(labels[i])].append((int(i), float(distances[i])))
-    return grouped
+    starts = np.searchsorted(labels[order], np.arange(len(result.clusters) + 1))
+    return {
+        c.cluster_id: [(int(i), float(distances[i]))
+                       for i in order[starts[c.cluster_id] : starts[c.cluster_id + 1]][:MEMBERS_LISTED]]
+        for c in result.clusters
+    }
 
 
 def mark_terms(text: str, spans: Sequence[tuple[int, int, str]], keys: Sequence[str]) -> list[Segment]:

@@ -1,0 +1,314 @@
+"""Streaming preparation: read, de-duplicate and vectorize a collection chunk by chunk.
+
+For collections too large for the in-memory path. Raw texts never stay in memory: each chunk of
+documents is redacted, written to a disk-backed shelf (the run's work folder) and tokenized, and
+only its term counts are kept. Terms are counted in a fixed-size hashed vocabulary (a word's column
+is its MurmurHash3 modulo HASH_BUCKETS, as scikit-learn's HashingVectorizer does), so memory does not
+depend on how many distinct words the collection holds; the word shown for a column is the most
+frequent word that fell into it. Document frequencies from the same pass choose the kept columns;
+LSA is fitted on a seeded sample of rows and applied chunk by chunk.
+
+Tokenizing runs in worker processes (one per core) while the main process reads the next chunk.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import multiprocessing
+import os
+from collections import Counter
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import scipy.sparse as sp
+from sklearn.decomposition import TruncatedSVD
+from sklearn.preprocessing import normalize
+from sklearn.utils import murmurhash3_32
+
+from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate
+from pilewise.describe import Collection
+from pilewise.errors import PilewiseError
+from pilewise.model import Document, Ingested
+from pilewise.redact import redact_document
+from pilewise.shelf import DocumentShelf
+from pilewise.text import Analyzer
+from pilewise.vectors import Vectorized, VectorSettings, default_min_df, tfidf_rows
+
+HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
+CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step
+SVD_FIT_ROWS = 50_000  # rows of the seeded sample the LSA is fitted on
+WORD_COUNT_CAP = 2_000_000  # words whose counts are kept to name the columns (least frequent pruned)
+TRANSFORM_ROWS = 50_000  # rows weighted and projected per step
+
+
+@dataclass(frozen=True)
+class StreamedCollection:
+    """What the streaming preparation hands to the clustering stages."""
+
+    ingested: Ingested
+    collection: Collection
+    vectors: Vectorized
+    boilerplate: Boilerplate
+    redacted: dict[str, int]
+    fingerprint: str
+    shelf: DocumentShelf
+
+
+@dataclass
+class _Tally:
+    """Running state of the first pass."""
+
+    text_of_doc: list[int]
+    first_doc_of_text: list[int]
+    copies: list[int]
+    index_of: dict[bytes, int]
+    blocks: list[sp.csr_matrix]
+    df: np.ndarray
+    words: Counter[str]
+
+
+def prepare_streamed(
+    documents: Iterable[Document],
+    work: Path,
+    analyzer: Analyzer,
+    settings: VectorSettings,
+    *,
+    redact: bool,
+    workers: int,
+    say: Callable[[str], None],
+    advance: Callable[[int], None] | None = None,
+) -> StreamedCollection:
+    """First pass over `documents` (read lazily), then the kept columns, TF-IDF and LSA.
+
+    `advance` is called after every chunk with the number of documents it held (for a progress bar).
+    """
+    shelf = DocumentShelf(work / "documents.jsonl")
+    digest = hashlib.sha256()
+    redacted: dict[str, int] = {}
+    tally = _Tally([], [], [], {}, [], np.zeros(HASH_BUCKETS, dtype=np.int64), Counter())
+    boilerplate: Boilerplate | None = None
+    pool = _pool(workers, analyzer)
+    pending: Any = None
+    try:
+        for chunk in _chunks(documents, CHUNK_DOCUMENTS):
+            if redact:
+                chunk = [redact_document(doc, redacted) for doc in chunk]
+            for doc in chunk:
+                digest.update(doc.doc_id.encode("utf-8", "surrogatepass") + b"\0")
+                digest.update(doc.text.encode("utf-8", "surrogatepass") + b"\0")
+            start = len(shelf)
+            shelf.extend(chunk)
+            new_texts = _collect_distinct(chunk, start, tally)
+            if boilerplate is None:  # found on the first chunk's distinct texts: a sample of 20,000
+                boilerplate = find_boilerplate(new_texts)
+            if boilerplate.lines:
+                new_texts = [strip_boilerplate(text, boilerplate) for text in new_texts]
+            job = _submit(pool, analyzer, new_texts, workers)
+            if pending is not None:
+                _absorb(pending, tally)
+            pending = job
+            if advance:
+                advance(len(chunk))
+        if pending is not None:
+            _absorb(pending, tally)
+    finally:
+        if pool is not None:
+            pool.terminate()
+    shelf.close_writing()
+    if len(shelf) == 0:
+        raise PilewiseError("no documents found; point SOURCE at a folder of text files or a table")
+    collection = Collection(
+        shelf,
+        np.asarray(tally.text_of_doc, dtype=np.int64),
+        np.asarray(tally.first_doc_of_text, dtype=np.int64),
+        np.asarray(tally.copies, dtype=np.int64),
+    )
+    tally.index_of.clear()
+    vectors = _vectorize_blocks(tally, settings, say)
+    ingested = Ingested(documents=shelf, entries=(), notes=())  # the caller fills in the reading report
+    return StreamedCollection(ingested, collection, vectors, boilerplate or Boilerplate((), 0.0), redacted,
+                              "sha256:" + digest.hexdigest(), shelf)
+
+
+def _chunks(documents: Iterable[Document], size: int) -> Iterator[list[Document]]:
+    chunk: list[Document] = []
+    for doc in documents:
+        chunk.append(doc)
+        if len(chunk) == size:
+            yield chunk
+            chunk = []
+    if chunk:
+        yield chunk
+
+
+def _collect_distinct(chunk: list[Document], start: int, tally: _Tally) -> list[str]:
+    """Exact duplicates (after collapsing white space) by a 128-bit digest; returns the chunk's new texts."""
+    new_texts = []
+    for offset, doc in enumerate(chunk):
+        key = hashlib.blake2b(" ".join(doc.text.split()).encode("utf-8", "surrogatepass"), digest_size=16).digest()
+        t = tally.index_of.setdefault(key, len(tally.copies))
+        if t == len(tally.copies):
+            tally.first_doc_of_text.append(start + offset)
+            tally.copies.append(0)
+            new_texts.append(doc.text)
+        tally.copies[t] += 1
+        tally.text_of_doc.append(t)
+    return new_texts
+
+
+# ---- tokenizing and hashing, in worker processes ----------------------------------------------
+
+_worker_analyzer: Analyzer | None = None
+
+
+class _Buckets(dict[str, int]):
+    """word -> hashed column, computed once per word."""
+
+    def __missing__(self, word: str) -> int:
+        column = abs(murmurhash3_32(word, seed=0)) % HASH_BUCKETS  # scikit-learn's FeatureHasher rule
+        self[word] = column
+        return column
+
+
+_buckets = _Buckets()
+
+
+def hashed_counts(texts: list[str], analyzer: Analyzer | None = None) -> tuple[sp.csr_matrix, Counter[str]]:
+    """Term counts of `texts` in the hashed vocabulary, and how often each word occurred."""
+    analyzer = analyzer or _worker_analyzer
+    assert analyzer is not None
+    if len(_buckets) > WORD_COUNT_CAP:
+        _buckets.clear()
+    column_of = _buckets.__getitem__
+    columns: list[int] = []
+    indptr = [0]
+    words: Counter[str] = Counter()
+    for text in texts:
+        terms = analyzer.terms(text)
+        columns.extend(map(column_of, terms))
+        indptr.append(len(columns))
+        words.update(terms)
+    matrix = sp.csr_matrix(
+        (np.ones(len(columns), dtype=np.int32), np.asarray(columns, dtype=np.int32), np.asarray(indptr)),
+        shape=(len(texts), HASH_BUCKETS),
+    )
+    matrix.sum_duplicates()
+    return matrix, words
+
+
+def _start_worker(analyzer: Analyzer) -> None:
+    global _worker_analyzer
+    _worker_analyzer = analyzer
+
+
+def _pool(workers: int, analyzer: Analyzer) -> Any:
+    if workers <= 1:
+        return None
+    method = "fork" if "fork" in multiprocessing.get_all_start_methods() else "spawn"
+    return multiprocessing.get_context(method).Pool(workers, initializer=_start_worker, initargs=(analyzer,))
+
+
+def _submit(pool: Any, analyzer: Analyzer, texts: list[str], workers: int) -> Any:
+    if pool is None or len(texts) < 2_000:
+        return [hashed_counts(texts, analyzer)]
+    step = math.ceil(len(texts) / (2 * workers))
+    parts = [texts[i : i + step] for i in range(0, len(texts), step)]
+    return pool.map_async(hashed_counts, parts)
+
+
+def _absorb(job: Any, tally: _Tally) -> None:
+    results = job if isinstance(job, list) else job.get()
+    for matrix, words in results:
+        tally.blocks.append(matrix)
+        tally.df += np.bincount(matrix.indices, minlength=HASH_BUCKETS)
+        tally.words.update(words)
+    if len(tally.words) > WORD_COUNT_CAP:  # keep the most frequent words; rare ones cannot name a column
+        tally.words = Counter(dict(tally.words.most_common(WORD_COUNT_CAP // 2)))
+
+
+# ---- kept columns, TF-IDF and LSA --------------------------------------------------------------
+
+
+def column_names(words: Counter[str], columns: np.ndarray) -> list[str]:
+    """The most frequent word of every hashed column in `columns` (ties: alphabetical)."""
+    best: dict[int, tuple[int, str]] = {}
+    wanted = set(columns.tolist())
+    for word, count in words.items():
+        column = _buckets[word]
+        if column in wanted:
+            held = best.get(column)
+            if held is None or (count, held[1]) > (held[0], word):
+                best[column] = (count, word)
+    return [best[c][1] if c in best else f"(column {c})" for c in columns.tolist()]
+
+
+def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[str], None]) -> Vectorized:
+    n = len(tally.copies)
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
+    max_df = settings.max_df if n * settings.max_df >= min_df else 1.0
+    kept = np.flatnonzero((tally.df >= min_df) & (tally.df <= max_df * n))
+    if kept.size < 2:
+        raise PilewiseError(
+            f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
+            f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
+        )
+    names = column_names(tally.words, kept)
+    order = np.argsort(np.array(names, dtype=object), kind="stable")  # alphabetical, as in memory mode
+    terms = tuple(names[i] for i in order)
+    column_of = np.full(HASH_BUCKETS, -1, dtype=np.int64)
+    column_of[kept[order]] = np.arange(kept.size)
+    df = tally.df[kept[order]]
+    tally.df = np.zeros(0, dtype=np.int64)
+    blocks = []
+    while tally.blocks:  # renumber block by block, freeing each hashed block as it goes
+        blocks.append(_keep_columns(tally.blocks.pop(0), column_of, kept.size))
+    counts = sp.vstack(blocks, format="csr", dtype=np.int32) if blocks else sp.csr_matrix((0, kept.size))
+    del blocks
+    say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
+    idf = np.log((1 + n) / (1 + df)) + 1.0
+    components = min(settings.lsa_components, max(10, min(n, len(terms)) // 10), len(terms) - 1, n - 1)
+    facts: dict[str, float | int | str | bool] = {
+        "min_df": min_df, "max_df": float(max_df), "terms": len(terms), "phrases": 0, "phrases_within_df": 0,
+        "space_terms": len(terms), "texts_without_terms": int(np.sum(np.diff(counts.indptr) == 0)),
+        "bigrams_in_space": False, "hashed_columns": HASH_BUCKETS, "streamed": True,
+    }
+    space: np.ndarray | sp.csr_matrix
+    if settings.lsa_components > 0 and components >= 2:
+        rng = np.random.default_rng(settings.seed)
+        sample = np.sort(rng.choice(n, min(n, SVD_FIT_ROWS), replace=False))
+        svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
+        svd.fit(tfidf_rows(counts[sample], idf))
+        space = np.empty((n, components), dtype=np.float32)
+        for start in range(0, n, TRANSFORM_ROWS):
+            block = tfidf_rows(counts[start : start + TRANSFORM_ROWS], idf)
+            space[start : start + TRANSFORM_ROWS] = normalize(svd.transform(block))
+        facts["lsa_components"] = components
+        facts["lsa_explained_variance"] = round(float(svd.explained_variance_ratio_.sum()), 4)
+        facts["lsa_fitted_on_rows"] = int(sample.size)
+    else:
+        space = tfidf_rows(counts, idf)
+        facts["lsa_components"] = 0
+    return Vectorized(counts=counts, terms=terms, is_phrase=np.zeros(len(terms), dtype=bool), space=space,
+                      facts=facts)
+
+
+def _keep_columns(block: sp.csr_matrix, column_of: np.ndarray, n_columns: int) -> sp.csr_matrix:
+    columns = column_of[block.indices]
+    keep = columns >= 0
+    row_of = np.repeat(np.arange(block.shape[0]), np.diff(block.indptr))[keep]
+    indptr = np.concatenate([[0], np.cumsum(np.bincount(row_of, minlength=block.shape[0]))])
+    kept = sp.csr_matrix((block.data[keep], columns[keep].astype(np.int32), indptr), shape=(block.shape[0], n_columns))
+    kept.sort_indices()
+    return kept
+
+
+def default_workers() -> int:
+    """One tokenizing process per core this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
