@@ -115,10 +115,22 @@ def weighted_centroids(
     space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int
 ) -> np.ndarray:
     """Unit-length weighted mean direction of each cluster's rows, shape (k, n_dims)."""
-    indicator = sp.csr_matrix((weights, (labels, np.arange(labels.size))), shape=(k, labels.size))
-    sums = indicator @ space
-    sums = sums.toarray() if sp.issparse(sums) else np.asarray(sums)
-    return normalize(sums)
+    return normalize(weighted_sums(space, weights, labels, k))
+
+
+def weighted_sums(space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int) -> np.ndarray:
+    """Weighted sum of each group's rows, shape (k, n_dims), in float64; dense spaces go block by block, so a
+    float32 space is never copied whole."""
+    if sp.issparse(space):
+        indicator = sp.csr_matrix((weights, (labels, np.arange(labels.size))), shape=(k, labels.size))
+        return np.asarray((indicator @ space).toarray())
+    sums = np.zeros((k, space.shape[1]))
+    for begin in range(0, space.shape[0], ROW_BLOCK):
+        block_labels = labels[begin : begin + ROW_BLOCK]
+        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, np.arange(block_labels.size))),
+                                  shape=(k, block_labels.size))
+        sums += indicator @ np.asarray(space[begin : begin + ROW_BLOCK], dtype=np.float64)
+    return sums
 
 
 def farthest_row(space: np.ndarray | sp.csr_matrix, clustering: Clustering, weights: np.ndarray) -> int:

@@ -306,7 +306,8 @@ def split_table(cuts: dict[int, np.ndarray], weights: np.ndarray) -> list[Split]
     splits = []
     for k in ks[:-1]:
         before, after = cuts[k], cuts[k + 1]
-        pairs, inverse = np.unique(np.column_stack([before, after]), axis=0, return_inverse=True)
+        codes, inverse = np.unique(before.astype(np.int64) * (k + 1) + after, return_inverse=True)  # (before, after)
+        pairs = np.column_stack([codes // (k + 1), codes % (k + 1)])
         pair_sizes = np.bincount(inverse.ravel(), weights=weights, minlength=len(pairs))
         parents = pairs[:, 0]
         splitting = [int(c) for c in np.unique(parents) if np.count_nonzero(parents == c) > 1]

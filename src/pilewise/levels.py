@@ -10,8 +10,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
+from sklearn.preprocessing import normalize
 
-from pilewise.clustering import Clustering, clustering_from_labels
+from pilewise.clustering import ROW_BLOCK, Clustering, weighted_sums
 from pilewise.hierarchy import Split, Tree, cuts_for_range, dendrogram_svg, split_table, weighted_ward
 
 DENDROGRAM_LEAVES = 30
@@ -66,18 +67,41 @@ def build_levels(
     """Cut `tree` at every k from `k_min` to `k_max` and describe each cut's clusters."""
     k_max = min(k_max, tree.n_leaves)
     k_min = min(k_min, k_max)
-    cuts = cuts_for_range(tree, k_min, k_max)
+    cuts = {k: labels.astype(np.int32) for k, labels in cuts_for_range(tree, k_min, k_max).items()}
+    ks = sorted(cuts)
+    # every cut's centroids from the leaves' weighted sums (one pass over the rows), then one more pass in
+    # blocks finds each cut cluster's member nearest its centroid, for all cuts at once
+    leaf_sums = weighted_sums(space, weights, tree.leaf_of_row, tree.n_leaves)
+    centroids = []
+    for k in ks:
+        leaf_label = np.zeros(tree.n_leaves, dtype=np.int64)
+        leaf_label[tree.leaf_of_row] = cuts[k]
+        centroids.append(normalize(weighted_sums(leaf_sums, np.ones(tree.n_leaves), leaf_label, k)))
+    offsets = np.cumsum([0] + ks[:-1])
+    stacked = np.vstack(centroids)
+    best_distance = {k: np.full(k, np.inf) for k in ks}
+    best_row = {k: np.zeros(k, dtype=np.int64) for k in ks}
+    for begin in range(0, weights.size, ROW_BLOCK):
+        block = space[begin : begin + ROW_BLOCK]
+        block = normalize(block) if sp.issparse(block) else normalize(np.asarray(block, dtype=np.float64))
+        similarity = np.asarray(block @ stacked.T)
+        rows = np.arange(similarity.shape[0])
+        for k, offset in zip(ks, offsets, strict=True):
+            labels = cuts[k][begin : begin + ROW_BLOCK]
+            distance = np.clip(1.0 - similarity[rows, offset + labels], 0.0, 2.0)
+            order = np.lexsort((rows, distance, labels))
+            present, first = np.unique(labels[order], return_index=True)
+            candidate = order[first]
+            better = distance[candidate] < best_distance[k][present]  # strict: ties keep the earlier row
+            best_distance[k][present[better]] = distance[candidate[better]]
+            best_row[k][present[better]] = begin + candidate[better]
+    run_k_of = int(run_labels.max()) + 1
     clusters: dict[int, tuple[LevelCluster, ...]] = {}
-    for k, labels in cuts.items():
-        cut = clustering_from_labels(space, weights, labels, k=k)
-        level = []
-        for c in range(k):
-            members = np.flatnonzero(cut.labels == c)
-            nearest = members[int(np.argmin(cut.distances[members]))]
-            overlap = tuple(int(r) for r in np.unique(run_labels[members]))
-            level.append(LevelCluster(c, int(round(weights[members].sum())), int(nearest), overlap))
-        clusters[k] = tuple(level)
-        cuts[k] = cut.labels  # numbered by size, the same rule as the run's own clusters
+    for k in ks:
+        sizes = np.bincount(cuts[k], weights=weights, minlength=k)
+        pairs = np.unique(cuts[k].astype(np.int64) * run_k_of + run_labels)
+        overlap = {c: tuple(int(p % run_k_of) for p in pairs[pairs // run_k_of == c]) for c in range(k)}
+        clusters[k] = tuple(LevelCluster(c, int(round(sizes[c])), int(best_row[k][c]), overlap[c]) for c in range(k))
     splits = tuple(split_table(cuts, weights)) if k_max > k_min else ()
     leaf_names = None
     if tree.n_leaves == run_k:  # a tree over the run's own clusters: name the leaves after them

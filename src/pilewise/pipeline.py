@@ -437,14 +437,16 @@ def explain_run(
 
 
 def metadata_columns(collection: Collection) -> dict[str, list[str]]:
-    """Extra table columns, one cell per distinct text (its first document's)."""
-    names = sorted({name for doc in collection.documents for name, _ in doc.metadata})
-    cells: dict[str, list[str]] = {name: [] for name in names}
-    for i in collection.first_doc_of_text:
-        found = dict(collection.documents[i].metadata)
-        for name in names:
-            cells[name].append(found.get(name, ""))
-    return cells
+    """Extra table columns, one cell per distinct text (its first document's); one pass in reading order."""
+    is_first = np.zeros(len(collection.documents), dtype=bool)
+    is_first[collection.first_doc_of_text] = True
+    found: dict[int, dict[str, str]] = {}
+    for i, doc in enumerate(collection.documents):
+        if doc.metadata and is_first[i]:
+            found[int(collection.text_of_doc[i])] = dict(doc.metadata)
+    names = sorted({name for cells in found.values() for name in cells})
+    empty: dict[str, str] = {}
+    return {name: [found.get(t, empty).get(name, "") for t in range(collection.copies.size)] for name in names}
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

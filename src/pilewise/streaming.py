@@ -17,6 +17,7 @@ import hashlib
 import math
 import multiprocessing
 import os
+from array import array
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
@@ -62,11 +63,11 @@ class StreamedCollection:
 class _Tally:
     """Running state of the first pass."""
 
-    text_of_doc: list[int]
-    first_doc_of_text: list[int]
-    copies: list[int]
+    text_of_doc: array[int]
+    first_doc_of_text: array[int]
+    copies: array[int]
     index_of: dict[bytes, int]
-    blocks: list[sp.csr_matrix]
+    blocks: list[Path]  # hashed count blocks, saved in the work folder
     df: np.ndarray
     words: Counter[str]
 
@@ -89,7 +90,7 @@ def prepare_streamed(
     shelf = DocumentShelf(work / "documents.jsonl")
     digest = hashlib.sha256()
     redacted: dict[str, int] = {}
-    tally = _Tally([], [], [], {}, [], np.zeros(HASH_BUCKETS, dtype=np.int64), Counter())
+    tally = _Tally(array("q"), array("q"), array("q"), {}, [], np.zeros(HASH_BUCKETS, dtype=np.int64), Counter())
     boilerplate: Boilerplate | None = None
     pool = _pool(workers, analyzer)
     pending: Any = None
@@ -109,12 +110,12 @@ def prepare_streamed(
                 new_texts = [strip_boilerplate(text, boilerplate) for text in new_texts]
             job = _submit(pool, analyzer, new_texts, workers)
             if pending is not None:
-                _absorb(pending, tally)
+                _absorb(pending, tally, work)
             pending = job
             if advance:
                 advance(len(chunk))
         if pending is not None:
-            _absorb(pending, tally)
+            _absorb(pending, tally, work)
     finally:
         if pool is not None:
             pool.terminate()
@@ -220,10 +221,12 @@ def _submit(pool: Any, analyzer: Analyzer, texts: list[str], workers: int) -> An
     return pool.map_async(hashed_counts, parts)
 
 
-def _absorb(job: Any, tally: _Tally) -> None:
+def _absorb(job: Any, tally: _Tally, work: Path) -> None:
     results = job if isinstance(job, list) else job.get()
     for matrix, words in results:
-        tally.blocks.append(matrix)
+        path = work / f"hashed-{len(tally.blocks):05d}.npz"
+        np.savez(path, indices=matrix.indices, indptr=matrix.indptr, data=matrix.data)
+        tally.blocks.append(path)
         tally.df += np.bincount(matrix.indices, minlength=HASH_BUCKETS)
         tally.words.update(words)
     if len(tally.words) > WORD_COUNT_CAP:  # keep the most frequent words; rare ones cannot name a column
@@ -263,11 +266,7 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[st
     column_of[kept[order]] = np.arange(kept.size)
     df = tally.df[kept[order]]
     tally.df = np.zeros(0, dtype=np.int64)
-    blocks = []
-    while tally.blocks:  # renumber block by block, freeing each hashed block as it goes
-        blocks.append(_keep_columns(tally.blocks.pop(0), column_of, kept.size))
-    counts = sp.vstack(blocks, format="csr", dtype=np.int32) if blocks else sp.csr_matrix((0, kept.size))
-    del blocks
+    counts = _kept_counts(tally.blocks, column_of, kept.size, n)
     say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
     idf = np.log((1 + n) / (1 + df)) + 1.0
     components = min(settings.lsa_components, max(10, min(n, len(terms)) // 10), len(terms) - 1, n - 1)
@@ -296,14 +295,32 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[st
                       facts=facts)
 
 
-def _keep_columns(block: sp.csr_matrix, column_of: np.ndarray, n_columns: int) -> sp.csr_matrix:
-    columns = column_of[block.indices]
-    keep = columns >= 0
-    row_of = np.repeat(np.arange(block.shape[0]), np.diff(block.indptr))[keep]
-    indptr = np.concatenate([[0], np.cumsum(np.bincount(row_of, minlength=block.shape[0]))])
-    kept = sp.csr_matrix((block.data[keep], columns[keep].astype(np.int32), indptr), shape=(block.shape[0], n_columns))
-    kept.sort_indices()
-    return kept
+def _kept_counts(blocks: list[Path], column_of: np.ndarray, n_columns: int, n_rows: int) -> sp.csr_matrix:
+    """The count matrix over the kept columns, filled block by block into arrays allocated once."""
+    kept_per_block = []
+    for path in blocks:
+        with np.load(path) as block:
+            kept_per_block.append(int(np.count_nonzero(column_of[block["indices"]] >= 0)))
+    indices = np.empty(sum(kept_per_block), dtype=np.int32)
+    data = np.empty(indices.size, dtype=np.int32)
+    indptr = np.zeros(n_rows + 1, dtype=np.int64)
+    row = at = 0
+    for path in blocks:
+        with np.load(path) as block:
+            columns = column_of[block["indices"]]
+            keep = columns >= 0
+            lengths = np.diff(block["indptr"])
+            row_of = np.repeat(np.arange(lengths.size), lengths)[keep]
+            taken = int(keep.sum())
+            indices[at : at + taken] = columns[keep]
+            data[at : at + taken] = block["data"][keep]
+            indptr[row + 1 : row + 1 + lengths.size] = at + np.cumsum(np.bincount(row_of, minlength=lengths.size))
+            row += lengths.size
+            at += taken
+        path.unlink()
+    counts = sp.csr_matrix((data, indices, indptr), shape=(n_rows, n_columns))
+    counts.sort_indices()
+    return counts
 
 
 def default_workers() -> int:
