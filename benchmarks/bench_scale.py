@@ -167,7 +167,7 @@ def draw(cdf: np.ndarray, uniform: np.ndarray) -> np.ndarray:
 
 
 def generate_chunk(
-    vocab: Vocabulary, seed: int, index: int, times: GenerationTimes
+    vocab: Vocabulary, seed: int, index: int, times: GenerationTimes, topic_share: float = TOPIC_SHARE
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """CHUNK_DOCS documents numbered from index * CHUNK_DOCS, as CSV rows ``doc_id,text\\n``.
 
@@ -181,7 +181,7 @@ def generate_chunk(
     topics = rng.integers(0, TOPICS, size=n)
     lengths = rng.integers(MIN_WORDS, MAX_WORDS + 1, size=n)
     total = int(lengths.sum())
-    from_topic = rng.random(total) < TOPIC_SHARE
+    from_topic = rng.random(total) < topic_share
     n_topic = int(from_topic.sum())
     words = np.empty(total, dtype=np.int64)
     topic_of_word = np.repeat(topics, lengths)
@@ -228,7 +228,9 @@ def generate_chunk(
     return rows, row_offsets, topics, lengths
 
 
-def generate_collections(sizes: list[int], folder: Path, seed: int) -> tuple[dict[int, Collection], GenerationTimes]:
+def generate_collections(
+    sizes: list[int], folder: Path, seed: int, topic_share: float = TOPIC_SHARE
+) -> tuple[dict[int, Collection], GenerationTimes]:
     """Write synthetic-N.csv and synthetic-N-topics.csv for every N in `sizes`, in one pass over the largest.
 
     Each Collection's `seconds` is the time from the start until its files were complete.
@@ -250,7 +252,7 @@ def generate_collections(sizes: list[int], folder: Path, seed: int) -> tuple[dic
             topic_out.write("doc_id,topic\n")
         times.writing += time.perf_counter() - mark
         for index in range(math.ceil(largest / CHUNK_DOCS)):
-            rows, offsets, topics, doc_words = generate_chunk(vocab, seed, index, times)
+            rows, offsets, topics, doc_words = generate_chunk(vocab, seed, index, times, topic_share)
             mark = time.perf_counter()
             first = index * CHUNK_DOCS
             for n, (text_out, topic_out) in handles.items():
@@ -709,6 +711,9 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--threads", type=int, default=None,
                         help="set OMP/OpenBLAS/MKL thread counts of every child (default: the libraries' own)")
     parser.add_argument("--repeat", type=int, default=1, help="runs per pipeline (median time, largest memory)")
+    parser.add_argument("--topic-share", type=float, default=0.15,
+                        help="share of each document's words drawn from its planted topic (default 0.15; lower is "
+                             "harder to separate)")
     parser.add_argument("--generate-only", action="store_true", help="generate the collections, time it, stop")
     parser.add_argument("--child", choices=tuple(BARE_CHILDREN), help=argparse.SUPPRESS)
     parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
@@ -737,7 +742,7 @@ def main(argv: list[str] | None = None) -> None:
     OUT_FOLDER.mkdir(exist_ok=True)
     try:
         print(f"generating {', '.join(f'{n:,}' for n in sizes)} documents in {work} ...", flush=True)
-        collections, times = generate_collections(sizes, work, args.seed)
+        collections, times = generate_collections(sizes, work, args.seed, args.topic_share)
         generation = {
             "seconds": {**{key: round(value, 3) for key, value in asdict(times).items()},
                         "total": round(times.total(), 3)},
@@ -749,7 +754,7 @@ def main(argv: list[str] | None = None) -> None:
             "settings": {"sizes": sizes, "memory_up_to": args.memory_up_to, "k": args.k, "seed": args.seed,
                          "repeat": args.repeat, "words_per_document": [MIN_WORDS, MAX_WORDS],
                          "background_words": BACKGROUND_WORDS, "topics": TOPICS, "topic_words": TOPIC_WORDS,
-                         "topic_share": TOPIC_SHARE, "lsa_components": LSA_COMPONENTS, "max_df": MAX_DF,
+                         "topic_share": args.topic_share, "lsa_components": LSA_COMPONENTS, "max_df": MAX_DF,
                          "n_init": N_INIT, "minibatch_size": MINIBATCH_SIZE},
             "machine": info,
             "generation": generation,

@@ -267,15 +267,11 @@ def _prepare_streamed(
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
                               seed=options.seed)
-    with reporter.stage("reading and counting terms"), \
-            reporter.meter(total=source.total_bytes, label="reading") as meter:
-        def advance(documents: int) -> None:
-            meter(source.bytes_done, documents)
-
-        streamed = prepare_streamed(
-            _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
-            workers=options.workers or default_workers(), say=reporter.say, advance=advance,
-        )
+    streamed = prepare_streamed(
+        _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
+        workers=options.workers or default_workers(), reporter=reporter, progress=lambda: source.bytes_done,
+        total_bytes=source.total_bytes,
+    )
     ingested = Ingested(streamed.shelf, tuple(source.entries), tuple(source.notes), source.files_found)
     for note in ingested.notes:
         reporter.say(note)

@@ -29,14 +29,15 @@ class DocumentShelf(Sequence[Document]):
         self._reader: BinaryIO | None = None
 
     def extend(self, documents: Iterable[Document]) -> None:
-        lines = []
-        for doc in documents:
-            line = json.dumps([doc.doc_id, doc.source, doc.title, doc.text, doc.date, doc.metadata],
-                              ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
-            self._offsets.append(self._end)
-            self._end += len(line)
-            lines.append(line)
-        self._writer.write(b"".join(lines))
+        lines = [shelf_record(doc) for doc in documents]
+        self.extend_records(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)))
+
+    def extend_records(self, records: bytes, lengths: np.ndarray) -> None:
+        """Append records made by `shelf_record` (concatenated), given the length of each."""
+        starts = self._end + np.concatenate([[0], np.cumsum(lengths)[:-1]]) if lengths.size else lengths
+        self._offsets.extend(starts.tolist())
+        self._end += len(records)
+        self._writer.write(records)
 
     def close_writing(self) -> None:
         self._writer.close()
@@ -76,6 +77,12 @@ class DocumentShelf(Sequence[Document]):
         with self.path.open("rb") as handle:
             for line in handle:
                 yield _document(line)
+
+
+def shelf_record(doc: Document) -> bytes:
+    """One document as one line of JSON (a list of its fields)."""
+    return json.dumps([doc.doc_id, doc.source, doc.title, doc.text, doc.date, doc.metadata],
+                      ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
 
 
 def _document(line: bytes) -> Document:

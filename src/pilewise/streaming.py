@@ -14,11 +14,11 @@ Tokenizing runs in worker processes (one per core) while the main process reads 
 from __future__ import annotations
 
 import hashlib
-import math
+import itertools
 import multiprocessing
 import os
 from array import array
-from collections import Counter
+from collections import Counter, deque
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -34,8 +34,9 @@ from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate
 from pilewise.describe import Collection
 from pilewise.errors import PilewiseError
 from pilewise.model import Document, Ingested
+from pilewise.progress import Reporter
 from pilewise.redact import redact_document
-from pilewise.shelf import DocumentShelf
+from pilewise.shelf import DocumentShelf, shelf_record
 from pilewise.text import Analyzer
 from pilewise.vectors import Vectorized, VectorSettings, default_min_df, tfidf_rows
 
@@ -80,59 +81,64 @@ def prepare_streamed(
     *,
     redact: bool,
     workers: int,
-    say: Callable[[str], None],
-    advance: Callable[[int], None] | None = None,
+    reporter: Reporter,
+    progress: Callable[[], int] = lambda: 0,
+    total_bytes: int = 0,
 ) -> StreamedCollection:
-    """First pass over `documents` (read lazily), then the kept columns, TF-IDF and LSA.
+    """First pass over `documents` (read lazily), then the kept columns, TF-IDF and LSA, as two timed stages.
 
-    `advance` is called after every chunk with the number of documents it held (for a progress bar).
+    `progress` tells how many bytes of the `total_bytes` to read have been read so far (for the progress
+    display).
     """
+    with reporter.stage("reading and counting terms"), \
+            reporter.meter(total=total_bytes, label="reading") as meter:
+        tally, shelf, digest, boilerplate, redacted = _first_pass(
+            documents, work, analyzer, redact=redact, workers=workers,
+            advance=lambda n: meter(progress(), n))
+    with reporter.stage("weighting and reducing"):
+        collection = Collection(
+            shelf,
+            np.asarray(tally.text_of_doc, dtype=np.int64),
+            np.asarray(tally.first_doc_of_text, dtype=np.int64),
+            np.asarray(tally.copies, dtype=np.int64),
+        )
+        tally.index_of.clear()
+        vectors = _vectorize_blocks(tally, settings, reporter.say)
+    ingested = Ingested(documents=shelf, entries=(), notes=())  # the caller fills in the reading report
+    return StreamedCollection(ingested, collection, vectors, boilerplate, redacted, "sha256:" + digest.hexdigest(),
+                              shelf)
+
+
+def _first_pass(
+    documents: Iterable[Document], work: Path, analyzer: Analyzer, *, redact: bool, workers: int,
+    advance: Callable[[int], None],
+) -> tuple[_Tally, DocumentShelf, Any, Boilerplate, dict[str, int]]:
     shelf = DocumentShelf(work / "documents.jsonl")
     digest = hashlib.sha256()
     redacted: dict[str, int] = {}
     tally = _Tally(array("q"), array("q"), array("q"), {}, [], np.zeros(HASH_BUCKETS, dtype=np.int64), Counter())
-    boilerplate: Boilerplate | None = None
+    chunks = _chunks(documents, CHUNK_DOCUMENTS)
+    first = next(chunks, [])
+    # boilerplate lines are found on the first chunk's distinct (redacted) texts: a sample of 20,000
+    sample = [redact_document(doc, {}) for doc in first] if redact else first
+    boilerplate = find_boilerplate(list({" ".join(doc.text.split()): doc.text for doc in sample}.values()))
     pool = _pool(workers, analyzer)
-    pending: Any = None
+    pending: deque[Any] = deque()
     try:
-        for chunk in _chunks(documents, CHUNK_DOCUMENTS):
-            if redact:
-                chunk = [redact_document(doc, redacted) for doc in chunk]
-            for doc in chunk:
-                digest.update(doc.doc_id.encode("utf-8", "surrogatepass") + b"\0")
-                digest.update(doc.text.encode("utf-8", "surrogatepass") + b"\0")
-            start = len(shelf)
-            shelf.extend(chunk)
-            new_texts = _collect_distinct(chunk, start, tally)
-            if boilerplate is None:  # found on the first chunk's distinct texts: a sample of 20,000
-                boilerplate = find_boilerplate(new_texts)
-            if boilerplate.lines:
-                new_texts = [strip_boilerplate(text, boilerplate) for text in new_texts]
-            job = _submit(pool, analyzer, new_texts, workers)
-            if pending is not None:
-                _absorb(pending, tally, work)
-            pending = job
-            if advance:
-                advance(len(chunk))
-        if pending is not None:
-            _absorb(pending, tally, work)
+        for chunk in itertools.chain([first] if first else [], chunks):
+            pending.append(_submit(pool, analyzer, chunk, redact, boilerplate))
+            advance(len(chunk))
+            while len(pending) > max(1, workers):  # keep every worker busy while this process reads on
+                _absorb(pending.popleft(), tally, shelf, digest, redacted, work)
+        while pending:
+            _absorb(pending.popleft(), tally, shelf, digest, redacted, work)
     finally:
         if pool is not None:
             pool.terminate()
     shelf.close_writing()
     if len(shelf) == 0:
         raise PilewiseError("no documents found; point SOURCE at a folder of text files or a table")
-    collection = Collection(
-        shelf,
-        np.asarray(tally.text_of_doc, dtype=np.int64),
-        np.asarray(tally.first_doc_of_text, dtype=np.int64),
-        np.asarray(tally.copies, dtype=np.int64),
-    )
-    tally.index_of.clear()
-    vectors = _vectorize_blocks(tally, settings, say)
-    ingested = Ingested(documents=shelf, entries=(), notes=())  # the caller fills in the reading report
-    return StreamedCollection(ingested, collection, vectors, boilerplate or Boilerplate((), 0.0), redacted,
-                              "sha256:" + digest.hexdigest(), shelf)
+    return tally, shelf, digest, boilerplate, redacted
 
 
 def _chunks(documents: Iterable[Document], size: int) -> Iterator[list[Document]]:
@@ -146,22 +152,18 @@ def _chunks(documents: Iterable[Document], size: int) -> Iterator[list[Document]
         yield chunk
 
 
-def _collect_distinct(chunk: list[Document], start: int, tally: _Tally) -> list[str]:
-    """Exact duplicates (after collapsing white space) by a 128-bit digest; returns the chunk's new texts."""
-    new_texts = []
-    for offset, doc in enumerate(chunk):
-        key = hashlib.blake2b(" ".join(doc.text.split()).encode("utf-8", "surrogatepass"), digest_size=16).digest()
-        t = tally.index_of.setdefault(key, len(tally.copies))
-        if t == len(tally.copies):
-            tally.first_doc_of_text.append(start + offset)
-            tally.copies.append(0)
-            new_texts.append(doc.text)
-        tally.copies[t] += 1
-        tally.text_of_doc.append(t)
-    return new_texts
+@dataclass(frozen=True)
+class ChunkWork:
+    """What a worker makes of one chunk of documents: everything but the collection-wide bookkeeping."""
 
+    shelf_lines: bytes  # the redacted documents as shelf records
+    line_lengths: np.ndarray
+    fingerprint_bytes: bytes  # id NUL text NUL of every document, in order
+    keys: list[bytes]  # 128-bit digest of each whitespace-collapsed text: exact duplicates share it
+    counts: sp.csr_matrix  # hashed term counts of every document (boilerplate lines stripped)
+    words: Counter[str]
+    redacted: dict[str, int]
 
-# ---- tokenizing and hashing, in worker processes ----------------------------------------------
 
 _worker_analyzer: Analyzer | None = None
 
@@ -176,6 +178,25 @@ class _Buckets(dict[str, int]):
 
 
 _buckets = _Buckets()
+
+
+def process_chunk(
+    documents: list[Document], redact: bool, boilerplate: Boilerplate, analyzer: Analyzer | None = None
+) -> ChunkWork:
+    """Redact, serialize, key and count one chunk; runs in a worker process (or inline with one worker)."""
+    redacted: dict[str, int] = {}
+    if redact:
+        documents = [redact_document(doc, redacted) for doc in documents]
+    lines = [shelf_record(doc) for doc in documents]
+    fingerprint = b"".join(f"{doc.doc_id}\0{doc.text}\0".encode("utf-8", "surrogatepass") for doc in documents)
+    keys = [hashlib.blake2b(" ".join(doc.text.split()).encode("utf-8", "surrogatepass"), digest_size=16).digest()
+            for doc in documents]
+    texts = [doc.text for doc in documents]
+    if boilerplate.lines:
+        texts = [strip_boilerplate(text, boilerplate) for text in texts]
+    counts, words = hashed_counts(texts, analyzer)
+    return ChunkWork(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)), fingerprint,
+                     keys, counts, words, redacted)
 
 
 def hashed_counts(texts: list[str], analyzer: Analyzer | None = None) -> tuple[sp.csr_matrix, Counter[str]]:
@@ -213,22 +234,35 @@ def _pool(workers: int, analyzer: Analyzer) -> Any:
     return multiprocessing.get_context(method).Pool(workers, initializer=_start_worker, initargs=(analyzer,))
 
 
-def _submit(pool: Any, analyzer: Analyzer, texts: list[str], workers: int) -> Any:
-    if pool is None or len(texts) < 2_000:
-        return [hashed_counts(texts, analyzer)]
-    step = math.ceil(len(texts) / (2 * workers))
-    parts = [texts[i : i + step] for i in range(0, len(texts), step)]
-    return pool.map_async(hashed_counts, parts)
+def _submit(pool: Any, analyzer: Analyzer, chunk: list[Document], redact: bool, boilerplate: Boilerplate) -> Any:
+    if pool is None:
+        return process_chunk(chunk, redact, boilerplate, analyzer)
+    return pool.apply_async(process_chunk, (chunk, redact, boilerplate))
 
 
-def _absorb(job: Any, tally: _Tally, work: Path) -> None:
-    results = job if isinstance(job, list) else job.get()
-    for matrix, words in results:
-        path = work / f"hashed-{len(tally.blocks):05d}.npz"
-        np.savez(path, indices=matrix.indices, indptr=matrix.indptr, data=matrix.data)
-        tally.blocks.append(path)
-        tally.df += np.bincount(matrix.indices, minlength=HASH_BUCKETS)
-        tally.words.update(words)
+def _absorb(job: Any, tally: _Tally, shelf: DocumentShelf, digest: Any, redacted: dict[str, int], work: Path) -> None:
+    """Take in a chunk's work in reading order: shelf, fingerprint, exact duplicates, counts of new texts."""
+    done: ChunkWork = job if isinstance(job, ChunkWork) else job.get()
+    start = len(shelf)
+    shelf.extend_records(done.shelf_lines, done.line_lengths)
+    digest.update(done.fingerprint_bytes)
+    for kind, n in done.redacted.items():
+        redacted[kind] = redacted.get(kind, 0) + n
+    new_rows = []
+    for offset, key in enumerate(done.keys):
+        t = tally.index_of.setdefault(key, len(tally.copies))
+        if t == len(tally.copies):
+            tally.first_doc_of_text.append(start + offset)
+            tally.copies.append(0)
+            new_rows.append(offset)
+        tally.copies[t] += 1
+        tally.text_of_doc.append(t)
+    counts = done.counts if len(new_rows) == len(done.keys) else done.counts[new_rows]
+    path = work / f"hashed-{len(tally.blocks):05d}.npz"
+    np.savez(path, indices=counts.indices, indptr=counts.indptr, data=counts.data)
+    tally.blocks.append(path)
+    tally.df += np.bincount(counts.indices, minlength=HASH_BUCKETS)
+    tally.words.update(done.words)
     if len(tally.words) > WORD_COUNT_CAP:  # keep the most frequent words; rare ones cannot name a column
         tally.words = Counter(dict(tally.words.most_common(WORD_COUNT_CAP // 2)))
 
