@@ -272,7 +272,9 @@ def _prepare_streamed(
         workers=options.workers or default_workers(), reporter=reporter, progress=lambda: source.bytes_done,
         total_bytes=source.total_bytes,
     )
-    ingested = Ingested(streamed.shelf, tuple(source.entries), tuple(source.notes), source.files_found)
+    streaming_note = ("streaming mode: read and vectorized in chunks; terms counted in a hashed vocabulary; "
+                      "near-duplicate grouping not done (exact duplicates are)")
+    ingested = Ingested(streamed.shelf, tuple(source.entries), (*source.notes, streaming_note), source.files_found)
     for note in ingested.notes:
         reporter.say(note)
     if streamed.redacted:
@@ -280,8 +282,7 @@ def _prepare_streamed(
     collection = streamed.collection
     reporter.say(
         f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
-        f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv); near-duplicate grouping "
-        "is not done in streaming mode"
+        f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
     )
     check_k(k_needed, int(collection.copies.size))
     return Prepared(ingested, collection, analyzer, streamed.vectors, collection.copies.astype(float),
