@@ -253,3 +253,30 @@ def test_hashed_matrix_is_sparse_and_integer() -> None:
     analyzer = Analyzer(stop_words=load_stop_words(None), stem=False)
     matrix, _ = hashed_counts(TEXTS, analyzer)
     assert sp.isspmatrix_csr(matrix) and matrix.dtype == np.int32 and matrix.shape == (3, HASH_BUCKETS)
+
+
+def test_a_streamed_run_shows_progress_on_a_terminal_and_nothing_when_quiet(
+    planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
+    tmp_path: Path,
+) -> None:
+    import pilewise.streaming as streaming
+    from pilewise.options import RunOptions
+    from pilewise.pipeline import run_collection
+
+    folder, _, _ = planted
+    monkeypatch.setattr(streaming, "TRANSFORM_ROWS", 1_000)  # six projection blocks
+    for quiet in (False, True):
+        stream = io.StringIO()
+        monkeypatch.setattr("sys.stderr", stream)
+        reporter = Reporter(quiet=quiet)
+        reporter._tty = True
+        options = RunOptions(source=folder / "planted.csv", k=8, out=tmp_path / f"site-{quiet}", mode="stream",
+                             resamples=2, quiet=quiet)
+        run_collection(options, reporter)
+        shown = stream.getvalue()
+        labels = ("reading:", "projecting:", "mini-batches:", "writing exports:")
+        if quiet:
+            assert shown == ""
+        else:
+            assert all(label in shown for label in labels), shown[-2000:]
+            assert "6,000 documents" in shown and "<" in shown  # counts, and tqdm's elapsed<left estimate

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -64,12 +65,16 @@ SEED_SAMPLE = 20_000  # rows of the seeded sample on which k-means picks the sta
 ROW_BLOCK = 65_536  # rows per block when a pass over the whole space is made
 
 
-def minibatch_clusters(space: np.ndarray, weights: np.ndarray, *, k: int, seed: int) -> Clustering:
+def minibatch_clusters(
+    space: np.ndarray, weights: np.ndarray, *, k: int, seed: int,
+    track: Callable[[list[tuple[int, int]], int], Iterable[tuple[int, int]]] | None = None,
+) -> Clustering:
     """Mini-batch k-means (Sculley 2010) fed block by block, for collections too large for full k-means.
 
     Starting centroids come from full k-means (4 k-means++ starts) on a seeded sample of SEED_SAMPLE rows;
     then MINIBATCH_EPOCHS passes over the rows in shuffled mini-batches refine them (scikit-learn's
-    MiniBatchKMeans.partial_fit), and every row goes to its nearest centroid.
+    MiniBatchKMeans.partial_fit), and every row goes to its nearest centroid. `track(steps, total)` may wrap
+    the mini-batch loop (a progress bar).
     """
     n = space.shape[0]
     rng = np.random.default_rng(seed)
@@ -77,11 +82,13 @@ def minibatch_clusters(space: np.ndarray, weights: np.ndarray, *, k: int, seed: 
     start = KMeans(n_clusters=k, n_init=4, random_state=seed).fit(space[sample], sample_weight=weights[sample])
     model = MiniBatchKMeans(n_clusters=k, init=start.cluster_centers_, n_init=1, random_state=seed,
                             batch_size=MINIBATCH_ROWS)
-    for _ in range(MINIBATCH_EPOCHS):
-        order = rng.permutation(n)
-        for begin in range(0, n, MINIBATCH_ROWS):
-            rows = np.sort(order[begin : begin + MINIBATCH_ROWS])
-            model.partial_fit(space[rows], sample_weight=weights[rows])
+    batches = [(epoch, begin) for epoch in range(MINIBATCH_EPOCHS) for begin in range(0, n, MINIBATCH_ROWS)]
+    order, shuffled_for = np.arange(n), -1
+    for epoch, begin in track(batches, len(batches)) if track else batches:
+        if epoch != shuffled_for:  # a fresh shuffle for every pass
+            order, shuffled_for = rng.permutation(n), epoch
+        rows = np.sort(order[begin : begin + MINIBATCH_ROWS])
+        model.partial_fit(space[rows], sample_weight=weights[rows])
     raw_labels = np.empty(n, dtype=np.int64)
     inertia = 0.0
     for begin in range(0, n, ROW_BLOCK):

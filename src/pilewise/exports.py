@@ -9,6 +9,7 @@ import csv
 import json
 import os
 import platform
+from collections.abc import Callable, Iterable
 from dataclasses import asdict
 from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
@@ -30,9 +31,11 @@ LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "ji
              "charset-normalizer", "typer")
 
 
-def write_exports(folder: Path, result: RunResult) -> None:
-    """Write every export of `result` into `folder`."""
-    write_assignments(folder / "assignments.csv", result)
+def write_exports(
+    folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
+) -> None:
+    """Write every export of `result` into `folder`; `track` wraps the pass over the documents (progress)."""
+    write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
     _write_json(folder / "clusters.json", clusters_document(result))
     _write_json(folder / "manifest.json", manifest_document(result))
     write_ingest_report(folder / "ingest-report.csv", result)
@@ -42,7 +45,6 @@ def write_exports(folder: Path, result: RunResult) -> None:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(["line", "texts"])
         writer.writerows(result.boilerplate.lines)
-    write_cuts(folder / "cuts.csv", result)
     if result.sweep is not None:
         _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
 
@@ -72,19 +74,6 @@ def levels_document(result: RunResult) -> dict[str, Any]:
     }
 
 
-def write_cuts(path: Path, result: RunResult) -> None:
-    """One row per document: its cluster at every cut of the tree (columns k2, k3, ...)."""
-    cuts = result.levels.cuts
-    ks = sorted(cuts)
-    text_of_doc = result.collection.text_of_doc
-    with path.open("w", encoding="utf-8", newline="") as handle:
-        writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
-        for i, doc in enumerate(result.collection.documents):
-            t = text_of_doc[i]
-            writer.writerow([doc.doc_id, *(int(cuts[k][t]) for k in ks)])
-
-
 def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
     """Every figure of a sweep over k, and the recommended k with the rule's reason."""
     return {
@@ -104,25 +93,36 @@ def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
     }
 
 
-def write_assignments(path: Path, result: RunResult) -> None:
-    """One row per document, in reading order; metadata columns of table inputs follow."""
+def write_document_tables(
+    assignments: Path, cuts_path: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
+) -> None:
+    """assignments.csv (one row per document in reading order; metadata columns of table inputs follow) and
+    cuts.csv (its cluster at every cut of the tree, columns k2, k3, ...), in one pass over the documents."""
     docs = result.collection.documents
-    extra = sorted({name for doc in docs for name, _ in doc.metadata})
+    known = getattr(docs, "metadata_names", None)  # a shelf keeps them; a tuple is looked through
+    extra = sorted(known if known is not None else {name for doc in docs for name, _ in doc.metadata})
     labels = result.clustering.labels
     distances = result.clustering.distances
     text_of_doc = result.collection.text_of_doc
     copies = result.collection.copies
-    with path.open("w", encoding="utf-8", newline="") as handle:
+    cuts = result.levels.cuts
+    ks = sorted(cuts)
+    shown = [c.shown for c in result.naming.clusters]
+    with assignments.open("w", encoding="utf-8", newline="") as handle, \
+            cuts_path.open("w", encoding="utf-8", newline="") as cuts_handle:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies", *extra])
-        shown = [c.shown for c in result.naming.clusters]
-        for i, doc in enumerate(docs):
+        cuts_writer = csv.writer(cuts_handle, lineterminator="\n")
+        cuts_writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
+        numbered = enumerate(docs)
+        for i, doc in track(numbered) if track else numbered:
             t = text_of_doc[i]
             meta = dict(doc.metadata)
             writer.writerow([
                 doc.doc_id, doc.source, doc.title, int(labels[t]), shown[labels[t]], f"{distances[t]:.6f}", doc.date,
                 int(copies[t]), *(meta.get(name, "") for name in extra),
             ])
+            cuts_writer.writerow([doc.doc_id, *(int(cuts[k][t]) for k in ks)])
 
 
 def write_ingest_report(path: Path, result: RunResult) -> None:

@@ -317,7 +317,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
             clustering = clusterings[k]
         else:
             k = options.k
-            clustering = _cluster_at(options, prepared, k, tree)
+            clustering = _cluster_at(options, prepared, k, tree, reporter)
     with reporter.stage("assessing"):
         quality = assess(space, clustering.labels, k=k, seed=options.seed)
         rows = stability_rows(distinct, options.seed)
@@ -378,12 +378,16 @@ def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
     return np.asarray(space)
 
 
-def _cluster_at(options: RunOptions, prepared: Prepared, k: int, tree: Tree | None) -> Clustering:
+def _cluster_at(
+    options: RunOptions, prepared: Prepared, k: int, tree: Tree | None, reporter: Reporter | None = None
+) -> Clustering:
     space, weights = prepared.vectors.space, prepared.weights
     if tree is not None:
         return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
     if prepared.streamed:
-        return minibatch_clusters(space, weights, k=k, seed=options.seed)
+        track = (lambda batches, total: reporter.track(batches, total=total, label="mini-batches", unit="batch")) \
+            if reporter is not None else None
+        return minibatch_clusters(space, weights, k=k, seed=options.seed, track=track)
     starts = kmeans_starts(options, int(weights.size))
     return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=starts)
 
@@ -488,8 +492,8 @@ def fingerprint(documents: Iterable[Document]) -> str:
 
 
 def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
-    write_exports(folder, result)
     total = len(result.collection.documents)
+    write_exports(folder, result, track=lambda items: reporter.track(items, total=total, label="writing exports"))
     render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
 
 

@@ -66,11 +66,15 @@ class Reporter:
             if bar is not None:
                 bar.close()
 
-    def track(self, items: Iterable[T], *, total: int, label: str) -> Iterable[T]:
-        """Wrap a loop with a progress bar (terminal only; quiet and pipes get none)."""
-        if self.quiet or not self._tty or total < 200:
+    def track(self, items: Iterable[T], *, total: int, label: str, unit: str = "doc") -> Iterable[T]:
+        """Wrap a loop with a progress bar with counts and time left (terminal only; quiet and pipes get none).
+
+        Loops over documents get a bar from 200 documents on; loops over blocks or batches whenever there
+        are at least two.
+        """
+        if self.quiet or not self._tty or total < (200 if unit == "doc" else 2):
             return items
-        return tqdm(items, total=total, desc=label, unit="doc", leave=False, file=sys.stderr)
+        return tqdm(items, total=total, desc=label, unit=unit, leave=False, file=sys.stderr)
 
 
 def progress_line(done: int, total: int, documents: int, elapsed: float) -> str:

@@ -27,8 +27,11 @@ class DocumentShelf(Sequence[Document]):
         self._end = 0
         self._starts: np.ndarray | None = None
         self._reader: BinaryIO | None = None
+        self.metadata_names: set[str] = set()  # names of the table columns carried by any document
 
     def extend(self, documents: Iterable[Document]) -> None:
+        documents = list(documents)
+        self.metadata_names.update(name for doc in documents for name, _ in doc.metadata)
         lines = [shelf_record(doc) for doc in documents]
         self.extend_records(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)))
 

@@ -103,7 +103,7 @@ def prepare_streamed(
             np.asarray(tally.copies, dtype=np.int64),
         )
         tally.index_of.clear()
-        vectors = _vectorize_blocks(tally, settings, reporter.say)
+        vectors = _vectorize_blocks(tally, settings, reporter)
     ingested = Ingested(documents=shelf, entries=(), notes=())  # the caller fills in the reading report
     return StreamedCollection(ingested, collection, vectors, boilerplate, redacted, "sha256:" + digest.hexdigest(),
                               shelf)
@@ -163,6 +163,7 @@ class ChunkWork:
     counts: sp.csr_matrix  # hashed term counts of every document (boilerplate lines stripped)
     words: Counter[str]
     redacted: dict[str, int]
+    metadata_names: frozenset[str]
 
 
 _worker_analyzer: Analyzer | None = None
@@ -195,8 +196,9 @@ def process_chunk(
     if boilerplate.lines:
         texts = [strip_boilerplate(text, boilerplate) for text in texts]
     counts, words = hashed_counts(texts, analyzer)
+    names = frozenset(name for doc in documents for name, _ in doc.metadata)
     return ChunkWork(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)), fingerprint,
-                     keys, counts, words, redacted)
+                     keys, counts, words, redacted, names)
 
 
 def hashed_counts(texts: list[str], analyzer: Analyzer | None = None) -> tuple[sp.csr_matrix, Counter[str]]:
@@ -245,6 +247,7 @@ def _absorb(job: Any, tally: _Tally, shelf: DocumentShelf, digest: Any, redacted
     done: ChunkWork = job if isinstance(job, ChunkWork) else job.get()
     start = len(shelf)
     shelf.extend_records(done.shelf_lines, done.line_lengths)
+    shelf.metadata_names.update(done.metadata_names)
     digest.update(done.fingerprint_bytes)
     for kind, n in done.redacted.items():
         redacted[kind] = redacted.get(kind, 0) + n
@@ -283,7 +286,7 @@ def column_names(words: Counter[str], columns: np.ndarray) -> list[str]:
     return [best[c][1] if c in best else f"(column {c})" for c in columns.tolist()]
 
 
-def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[str], None]) -> Vectorized:
+def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporter) -> Vectorized:
     n = len(tally.copies)
     min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
     max_df = settings.max_df if n * settings.max_df >= min_df else 1.0
@@ -301,7 +304,7 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[st
     df = tally.df[kept[order]]
     tally.df = np.zeros(0, dtype=np.int64)
     counts = _kept_counts(tally.blocks, column_of, kept.size, n)
-    say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
+    reporter.say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
     idf = np.log((1 + n) / (1 + df)) + 1.0
     components = min(settings.lsa_components, max(10, min(n, len(terms)) // 10), len(terms) - 1, n - 1)
     facts: dict[str, float | int | str | bool] = {
@@ -316,7 +319,8 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, say: Callable[[st
         svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
         svd.fit(tfidf_rows(counts[sample], idf))
         space = np.empty((n, components), dtype=np.float32)
-        for start in range(0, n, TRANSFORM_ROWS):
+        starts = range(0, n, TRANSFORM_ROWS)
+        for start in reporter.track(starts, total=len(starts), label="projecting", unit="block"):
             block = tfidf_rows(counts[start : start + TRANSFORM_ROWS], idf)
             space[start : start + TRANSFORM_ROWS] = normalize(svd.transform(block))
         facts["lsa_components"] = components
