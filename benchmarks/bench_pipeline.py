@@ -22,9 +22,10 @@ c. ``pilewise`` ``pilewise run <csv> --k 20 --out <dir> --quiet``, exports and s
 For each: wall time (process start to exit, interpreter start and imports included), CPU time
 (user + system; less sensitive than wall time to other work on the machine, whose 1-minute load
 average is recorded before every run), peak resident memory of the process (``ru_maxrss`` of that
-one child, from ``os.wait4``), and the normalized mutual information of its clusters with the
-planted topics. pilewise writes its manifest inside its "writing site" stage, so that stage's time
-is estimated as the wall time less the recorded stages and a separately timed ``import pilewise.cli``.
+one child, from ``os.wait4`` in a small launcher process: see ``run_measured``), and the normalized
+mutual information of its clusters with the planted topics. pilewise writes its manifest inside its
+"writing site" stage, so that stage's time is estimated as the wall time less the recorded stages and a
+separately timed ``import pilewise.cli``.
 
 The script prints the machine, a Markdown table, the ratios pilewise / bare, and writes every
 figure to ``benchmarks/.out/bench-<N>[-threads<T>]-<UTC time>.json`` (gitignored).
@@ -248,24 +249,41 @@ class Measurement:
     extra: dict[str, Any] = field(default_factory=dict)
 
 
-def run_measured(command: list[str], log: Path) -> tuple[float, float, float]:
-    """Run `command` to completion; (wall seconds, peak RSS in MB, CPU seconds) of that one child process.
+# A fresh interpreter that starts the command, waits for it with os.wait4 and writes its figures as JSON.
+LAUNCHER = """
+import json, os, sys, time
+command, log, result = json.loads(sys.argv[1]), sys.argv[2], sys.argv[3]
+fd = os.open(log, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+actions = [(os.POSIX_SPAWN_DUP2, fd, 1), (os.POSIX_SPAWN_DUP2, fd, 2)]
+start = time.perf_counter()
+pid = os.posix_spawn(command[0], command, os.environ, file_actions=actions)
+_, status, usage = os.wait4(pid, 0)
+wall = time.perf_counter() - start
+with open(result, "w") as handle:
+    json.dump({"status": os.waitstatus_to_exitcode(status), "wall": wall, "maxrss": usage.ru_maxrss,
+               "cpu": usage.ru_utime + usage.ru_stime}, handle)
+"""
 
-    ``os.wait4`` returns the resource usage of exactly this child. (``getrusage(RUSAGE_CHILDREN)``
-    would report the largest peak among *all* children waited for so far, which is wrong for every
-    pipeline measured after a bigger one.)
+
+def run_measured(command: list[str], log: Path) -> tuple[float, float, float]:
+    """Run `command` to its end: wall seconds, peak resident MB and CPU seconds of that process alone.
+
+    The command is started from a small launcher process rather than from this one:
+    on Linux a child's ru_maxrss starts from the resident memory of the process that spawned it (the kernel
+    keeps the old address space's high-water mark at exec), so children of this script, which holds numpy,
+    pandas, scikit-learn and the generated collection, would never report less than its own resident size.
     """
-    with log.open("wb") as handle:
-        start = time.perf_counter()
-        process = subprocess.Popen(command, stdout=handle, stderr=subprocess.STDOUT)
-        _, status, usage = os.wait4(process.pid, 0)
-        wall = time.perf_counter() - start
-    process.returncode = os.waitstatus_to_exitcode(status)
-    if process.returncode != 0:
+    result = log.with_suffix(".usage.json")
+    executable = command[0] if os.sep in command[0] else shutil.which(command[0]) or command[0]
+    launcher = [sys.executable, "-I", "-S", "-c", LAUNCHER, json.dumps([executable, *command[1:]]), str(log),
+                str(result)]
+    subprocess.run(launcher, check=True)
+    usage = json.loads(result.read_text(encoding="utf-8"))
+    if usage["status"] != 0:
         tail = log.read_text(encoding="utf-8", errors="replace")[-3000:]
-        raise SystemExit(f"command failed with status {process.returncode}: {' '.join(command)}\n{tail}")
+        raise SystemExit(f"command failed with status {usage['status']}: {' '.join(command)}\n{tail}")
     scale = 1024 * 1024 if sys.platform == "darwin" else 1024  # bytes on macOS, KiB on Linux
-    return wall, usage.ru_maxrss / scale, usage.ru_utime + usage.ru_stime
+    return usage["wall"], usage["maxrss"] / scale, usage["cpu"]
 
 
 def read_labels(path: Path, column: str) -> dict[str, int]:

@@ -64,7 +64,6 @@ import json
 import math
 import os
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -91,7 +90,9 @@ from bench_pipeline import (  # noqa: E402
     Measurement,
     machine,
     make_words,
+    measure,
     pilewise_command,
+    run_measured,
     zipf_weights,
 )
 
@@ -377,75 +378,6 @@ def nmi_from_file(path: Path, planted: np.ndarray) -> float:
         raise SystemExit(f"{path}: {index.size:,} rows ({np.unique(index).size:,} distinct ids) for "
                          f"{planted.size:,} documents; every document needs exactly one label")
     return float(normalized_mutual_info_score(planted[index], frame[cluster_column].to_numpy()))
-
-
-# A fresh interpreter that starts the command, waits for it with os.wait4 and writes its figures as JSON.
-LAUNCHER = """
-import json, os, sys, time
-command, log, result = json.loads(sys.argv[1]), sys.argv[2], sys.argv[3]
-fd = os.open(log, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
-actions = [(os.POSIX_SPAWN_DUP2, fd, 1), (os.POSIX_SPAWN_DUP2, fd, 2)]
-start = time.perf_counter()
-pid = os.posix_spawn(command[0], command, os.environ, file_actions=actions)
-_, status, usage = os.wait4(pid, 0)
-wall = time.perf_counter() - start
-with open(result, "w") as handle:
-    json.dump({"status": os.waitstatus_to_exitcode(status), "wall": wall, "maxrss": usage.ru_maxrss,
-               "cpu": usage.ru_utime + usage.ru_stime}, handle)
-"""
-
-
-def run_measured(command: list[str], log: Path) -> tuple[float, float, float]:
-    """Run `command` to its end: wall seconds, peak resident MB and CPU seconds of that process alone.
-
-    Like bench_pipeline.run_measured, but started from a small launcher process rather than from this one:
-    on Linux a child's ru_maxrss starts from the resident memory of the process that spawned it (the kernel
-    keeps the old address space's high-water mark at exec), so children of this script, which holds numpy,
-    pandas and scikit-learn, would never report less than its ~300 MB.
-    """
-    result = log.with_suffix(".usage.json")
-    executable = command[0] if os.sep in command[0] else shutil.which(command[0]) or command[0]
-    launcher = [sys.executable, "-I", "-S", "-c", LAUNCHER, json.dumps([executable, *command[1:]]), str(log),
-                str(result)]
-    subprocess.run(launcher, check=True)
-    usage = json.loads(result.read_text(encoding="utf-8"))
-    if usage["status"] != 0:
-        tail = log.read_text(encoding="utf-8", errors="replace")[-3000:]
-        raise SystemExit(f"command failed with status {usage['status']}: {' '.join(command)}\n{tail}")
-    scale = 1024 * 1024 if sys.platform == "darwin" else 1024  # bytes on macOS, KiB on Linux
-    return usage["wall"], usage["maxrss"] / scale, usage["cpu"]
-
-
-def measure(
-    name: str, command: list[str], work: Path, repeat: int, labels_of: Any, stages_of: Any, prepare: Any = None
-) -> Measurement:
-    """bench_pipeline.measure with this module's run_measured: the median run by wall time, the largest peak."""
-    runs: list[tuple[float, float, float, float, dict[str, float], dict[str, Any]]] = []
-    for r in range(repeat):
-        if prepare:
-            prepare()
-        load = os.getloadavg()[0]
-        print(f"  {name}: run {r + 1}/{repeat} (load average {load:.2f}) ...", end="", flush=True)
-        wall, peak, cpu = run_measured(command, work / f"{name}-{r + 1}.log")
-        print(f" {wall:.1f} s, {peak:,.0f} MB, {cpu:.1f} CPU s", flush=True)
-        stages, extra = stages_of()
-        extra["nmi"] = labels_of()
-        runs.append((round(wall, 3), round(peak, 1), round(cpu, 3), round(load, 2), stages, extra))
-    wall, _, cpu, _, stages, extra = sorted(runs, key=lambda run: run[0])[(len(runs) - 1) // 2]
-    nmi = float(extra.pop("nmi"))
-    return Measurement(
-        name, command, wall, max(run[1] for run in runs), cpu, nmi,
-        wall_seconds_all=[run[0] for run in runs], peak_rss_mb_all=[run[1] for run in runs],
-        cpu_seconds_all=[run[2] for run in runs], load_average_before=[run[3] for run in runs],
-        stage_seconds=stages, extra=extra,
-    )
-
-
-def run_has_mode() -> bool:
-    """Whether `pilewise run --help` lists --mode (being added; until then pilewise runs without it)."""
-    result = subprocess.run([*pilewise_command(), "run", "--help"], capture_output=True, text=True,
-                            env={**os.environ, "COLUMNS": "200", "NO_COLOR": "1"}, check=False)
-    return "--mode" in result.stdout
 
 
 @dataclass(frozen=True)
@@ -762,10 +694,6 @@ def main(argv: list[str] | None = None) -> None:
         rows: list[Row] = []
         startup = {"wall_seconds": 0.0, "peak_rss_mb": 0.0, "cpu_seconds": 0.0}
         if not args.generate_only:
-            has_mode = run_has_mode()
-            if not has_mode:
-                print("  note: `pilewise run` has no --mode option yet; pilewise runs once per size without it",
-                      flush=True)
             wall, peak, cpu = run_measured([sys.executable, "-c", "import pilewise.cli"], work / "import.log")
             startup = {"wall_seconds": round(wall, 3), "peak_rss_mb": round(peak, 1), "cpu_seconds": round(cpu, 3)}
             setting = Setting(work, args.k, args.repeat, keep=not temporary)
@@ -774,7 +702,7 @@ def main(argv: list[str] | None = None) -> None:
                 planted = read_planted(collection.topics_path)
                 in_memory = n <= args.memory_up_to
                 print(f"{n:,} documents ({collection.bytes / 1e6:,.0f} MB):", flush=True)
-                modes: list[str | None] = (["stream", "memory"] if in_memory else ["stream"]) if has_mode else [None]
+                modes: list[str | None] = ["stream", "memory"] if in_memory else ["stream"]
                 for mode in modes:
                     m = measure_pilewise(mode, collection, planted, setting, startup["wall_seconds"])
                     rows.append(Row(n, f"pilewise-{mode or 'default'}", m))
