@@ -91,8 +91,9 @@ def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
     assert texts["export.csv#row1"] == 'soil "quoted" compost,\nover two lines'
 
 
-def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Path, tmp_path: Path) -> None:
-    result = runner.invoke(app, ["run", str(hostile), "--k", "3", "--out", str(tmp_path / "site")])
+@pytest.mark.parametrize("mode", ["memory", "stream"])
+def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Path, tmp_path: Path, mode: str) -> None:
+    result = runner.invoke(app, ["run", str(hostile), "--k", "3", "--out", str(tmp_path / "site"), "--mode", mode])
     assert result.exit_code == 0, result.stderr
     report = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "ingest-report.csv").open(encoding="utf-8")))
     assignments = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
@@ -100,6 +101,9 @@ def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Pa
     summary = [line for line in result.stderr.splitlines() if "documents in 3 clusters" in line][0]
     assert summary.startswith(f"{len(assignments):,} documents")
     assert f"{len(skipped):,} files or rows skipped" in summary
+    found = {p.relative_to(hostile).as_posix() for p in hostile.iterdir()}
+    listed = {row["source"].split("#")[0] for row in assignments} | {row["source"].split("#")[0] for row in report}
+    assert found <= listed  # nothing lost, in either mode
 
 
 def test_a_folder_where_every_document_is_identical(tmp_path: Path) -> None:

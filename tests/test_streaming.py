@@ -280,3 +280,21 @@ def test_a_streamed_run_shows_progress_on_a_terminal_and_nothing_when_quiet(
         else:
             assert all(label in shown for label in labels), shown[-2000:]
             assert "6,000 documents" in shown and "<" in shown  # counts, and tqdm's elapsed<left estimate
+
+
+def test_auto_mode_streams_above_the_size_threshold(
+    planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
+    tmp_path: Path,
+) -> None:
+    import pilewise.pipeline as pipeline
+
+    folder, _, _ = planted
+    size = (folder / "planted.csv").stat().st_size
+    for threshold, streamed in ((size + 1, False), (size, True)):
+        monkeypatch.setattr(pipeline, "STREAM_ABOVE_BYTES", threshold)
+        out = tmp_path / f"site-{threshold}"
+        result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--out", str(out),
+                                          "--quiet", "--resamples", "2"])
+        assert result.exit_code == 0, result.stderr
+        manifest = json.loads((out / "runs" / "k8" / "manifest.json").read_text(encoding="utf-8"))
+        assert manifest["vectors"].get("streamed", False) is streamed
