@@ -16,7 +16,7 @@ from typer.testing import CliRunner
 
 import pilewise.describe as describe
 from pilewise.cli import app
-from pilewise.describe import ClusterDigest
+from pilewise.describe import NearestDigest
 from pilewise.progress import Reporter, progress_line
 from pilewise.streaming import HASH_BUCKETS, column_names, hashed_counts
 from pilewise.text import Analyzer, load_stop_words
@@ -49,50 +49,38 @@ def test_column_names_are_the_most_frequent_word_of_each_column() -> None:
     assert parcel.tolist() == [2, 0, 0]
 
 
-def _assert_exact_top_n(digest: ClusterDigest, labels: np.ndarray, distances: np.ndarray, n: int) -> None:
-    for c in range(digest.k):
-        members = np.flatnonzero(labels == c)
-        expected = members[np.lexsort((members, distances[members]))][:n]
-        rows, dist = digest.nearest(c)
-        assert rows.tolist() == expected.tolist()
-        assert dist.tolist() == distances[expected].tolist()
-
-
-def test_digest_keeps_the_exact_nearest_and_a_bounded_sample() -> None:
+def test_digest_keeps_exactly_the_nearest_rows_of_every_key() -> None:
+    # checked against a full sort of all rows (ties by row number), fed in blocks of 1,000
     rng = np.random.default_rng(3)
-    n, k = 20_000, 6
-    labels = rng.integers(0, k, n)
+    n, keys = 20_000, 6
+    labels = rng.integers(0, keys, n)
     distances = np.round(rng.random(n), 3)  # rounded: many ties, broken by row
-    digest = ClusterDigest(k, nearest=7, sample=11, seed=0)
+    digest = NearestDigest(7)
     for begin in range(0, n, 1_000):
         rows = np.arange(begin, begin + 1_000)
         digest.update(rows, labels[rows], distances[rows])
-        assert digest.held()[0] <= 7 and digest.held()[1] <= 11
-    _assert_exact_top_n(digest, labels, distances, 7)
-    for c in range(k):
-        sample = digest.sample(c)
-        assert sample.size == 11 and np.unique(sample).size == 11
-        assert np.all(labels[sample] == c)
+        assert digest.largest_held() <= 7
+    for key in range(keys):
+        members = np.flatnonzero(labels == key)
+        expected = members[np.lexsort((members, distances[members]))][:7]
+        rows, dist = digest.nearest(key)
+        assert rows.tolist() == expected.tolist()
+        assert dist.tolist() == distances[expected].tolist()
+    assert digest.nearest(keys)[0].size == 0
 
 
-def test_reservoir_sample_is_uniform() -> None:
-    # Vitter (1985), algorithm R: every one of m rows ends up in a sample of s with probability s / m.
-    # 2,000 digests of 100 rows fed in blocks of 7, sample of 10: each row is expected 200 times; a
-    # chi-square goodness-of-fit over the 100 rows (99 degrees of freedom, 0.999 quantile about 148.2,
-    # scipy.stats.chi2.ppf) must not reject uniformity.
-    from scipy.stats import chi2
-
-    m, s, trials = 100, 10, 2_000
-    hits = np.zeros(m)
-    for seed in range(trials):
-        digest = ClusterDigest(1, nearest=1, sample=s, seed=seed)
-        for begin in range(0, m, 7):
-            rows = np.arange(begin, min(begin + 7, m))
-            digest.update(rows, np.zeros(rows.size, dtype=int), np.zeros(rows.size))
-        hits[digest.sample(0)] += 1
-    expected = trials * s / m
-    statistic = float(((hits - expected) ** 2 / expected).sum())
-    assert statistic < chi2.ppf(0.999, m - 1)
+def test_term_holders_are_the_nearest_members_holding_each_term() -> None:
+    rng = np.random.default_rng(4)
+    counts = sp.random(3_000, 40, density=0.1, format="csr", random_state=4, data_rvs=lambda m: np.ones(m))
+    labels = rng.integers(0, 3, 3_000)
+    distances = rng.random(3_000)
+    pairs = [(0, 5), (1, 5), (2, 17), (1, 39)]
+    holders = describe.term_holders(counts, labels, distances, pairs, cap=4)
+    dense = counts.toarray() > 0
+    for key, (c, column) in enumerate(pairs):
+        members = np.flatnonzero((labels == c) & dense[:, column])
+        expected = members[np.argsort(distances[members], kind="stable")][:4]
+        assert holders.nearest(key)[0].tolist() == expected.tolist()
 
 
 def planted_table(path: Path, n_docs: int, seed: int) -> dict[str, int]:
@@ -188,27 +176,32 @@ def test_describing_respects_small_digest_bounds(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
     tmp_path: Path,
 ) -> None:
-    # a small memory budget for the summaries: 3 nearest and 4 sampled members per cluster
+    # a small memory budget for the summaries: 2 nearest members per cluster, 3 holders per cluster and term
     folder, _, _ = planted
-    monkeypatch.setattr(describe, "NEAREST_KEPT", 3)
-    monkeypatch.setattr(describe, "SAMPLE_KEPT", 4)
+    monkeypatch.setattr(describe, "NEAREST_SHOWN", 2)
+    monkeypatch.setattr(describe, "KWIC_HOLDERS_KEPT", 3)
     monkeypatch.setattr(describe, "ROW_BLOCK", 500)
     seen: list[tuple[int, int]] = []
-    update = ClusterDigest.update
+    update = NearestDigest.update
 
-    def checked(self: ClusterDigest, *args: object) -> None:
-        update(self, *args)  # type: ignore[arg-type]
-        seen.append(self.held())
+    def checked(self: NearestDigest, *args: np.ndarray) -> None:
+        update(self, *args)
+        seen.append((self.cap, self.largest_held()))
 
-    monkeypatch.setattr(ClusterDigest, "update", checked)
+    monkeypatch.setattr(NearestDigest, "update", checked)
     out = tmp_path / "site"
     result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
                                       "--out", str(out), "--quiet", "--resamples", "2"])
     assert result.exit_code == 0, result.stderr
-    assert len(seen) == 12  # 6,000 rows in blocks of 500
-    assert max(n for n, _ in seen) == 3 and max(s for _, s in seen) == 4
+    assert len(seen) == 2 * 12  # 6,000 rows in blocks of 500, for the nearest members and for the term holders
+    assert all(held <= cap for cap, held in seen) and {cap for cap, _ in seen} == {2, 3}
     clusters = json.loads((out / "runs" / "k8" / "clusters.json").read_text(encoding="utf-8"))["clusters"]
-    assert all(len(c["kwic"]) <= 5 * 5 for c in clusters)
+    for cluster in clusters:
+        assert len(cluster["nearest"]) == 2
+        lines_per_term: dict[str, int] = {}
+        for line in cluster["kwic"]:
+            lines_per_term[line["term"]] = lines_per_term.get(line["term"], 0) + 1
+        assert lines_per_term and max(lines_per_term.values()) <= 3
 
 
 def test_streaming_refuses_what_it_cannot_do(planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]],

@@ -24,8 +24,7 @@ from pilewise.vectors import Vectorized
 NEAREST_SHOWN = 5
 KWIC_TERMS = 5
 KWIC_LINES_PER_TERM = 5
-NEAREST_KEPT = 200  # nearest members kept per cluster: headline, next four, keyword-in-context candidates
-SAMPLE_KEPT = 200  # members sampled per cluster for keyword-in-context lines beyond the nearest
+KWIC_HOLDERS_KEPT = 20  # members holding a top term kept per cluster and term, nearest first
 ROW_BLOCK = 65_536  # rows per block in passes over all rows
 PRIOR_MASS = 1000.0  # Dirichlet pseudo-counts in all; our choice, see docs/method.md
 
@@ -49,13 +48,13 @@ def describe_clusters(
     *,
     top_terms: int,
     stability: StabilityResult | None = None,
-    seed: int = 0,
 ) -> tuple[ClusterSummary, ...]:
     """Summaries of every cluster, numbered as in `clustering`, largest first.
 
-    Term statistics use exact per-cluster document frequencies and counts of every term; the
-    documents shown (nearest to the centroid, keyword-in-context lines) come from a bounded digest
-    of each cluster, so describing needs memory for k x terms figures, not for the documents.
+    Term statistics use exact per-cluster document frequencies and counts of every term. The
+    documents shown come from bounded digests filled in passes over the rows in blocks: the members
+    nearest each centroid, and for each cluster's top terms the members holding the term nearest the
+    centroid. Describing needs memory for k x terms figures, not for the documents.
     """
     labels = clustering.labels
     weights = collection.copies.astype(float)
@@ -67,29 +66,37 @@ def describe_clusters(
     prior = informative_prior(counts_all, PRIOR_MASS)
     shown = tuple(analyzer.surface(t) for t in vectors.terms)
     column_of = {key: i for i, key in enumerate(vectors.terms)}
-    digest = ClusterDigest(k, nearest=NEAREST_KEPT, sample=SAMPLE_KEPT, seed=seed)
+    digest = NearestDigest(NEAREST_SHOWN)
     for begin in range(0, labels.size, ROW_BLOCK):
         rows = np.arange(begin, min(begin + ROW_BLOCK, labels.size))
         digest.update(rows, labels[rows], clustering.distances[rows])
     sizes = np.bincount(labels, weights=weights, minlength=k)
     members_per_cluster = np.bincount(labels, minlength=k)
     mean_distance = np.bincount(labels, weights=weights * clustering.distances, minlength=k) / np.maximum(sizes, 1e-12)
+    terms_of: list[tuple[tuple[TermScore, ...], tuple[TermScore, ...]]] = []
+    for c in range(k):
+        size = float(sizes[c])
+        df_in = df_by_cluster[c].toarray().ravel()
+        counts_in = counts_by_cluster[c].toarray().ravel()
+        terms_of.append((
+            _chi2_terms(df_in, df_all, size, total, shown, vectors.terms, top_terms),
+            _log_odds_terms(counts_in, counts_all - counts_in, prior, df_in, df_all, size, total, shown,
+                            vectors.terms, top_terms),
+        ))
+    pairs = [(c, column_of[t.key]) for c, (chi2, _) in enumerate(terms_of) for t in chi2[:KWIC_TERMS]]
+    holders = term_holders(vectors.counts, labels, clustering.distances, pairs, KWIC_HOLDERS_KEPT)
+    key_of = {pair: i for i, pair in enumerate(pairs)}
     summaries = []
     for c in range(k):
         size = float(sizes[c])
         near_rows, near_distances = digest.nearest(c)
-        nearest = tuple(
-            Neighbour(int(collection.first_doc_of_text[t]), float(d))
-            for t, d in zip(near_rows[:NEAREST_SHOWN], near_distances[:NEAREST_SHOWN], strict=True)
+        nearest = tuple(Neighbour(int(collection.first_doc_of_text[t]), float(d))
+                        for t, d in zip(near_rows, near_distances, strict=True))
+        chi2_terms, log_odds_terms = terms_of[c]
+        kwic = _kwic_for(
+            [(t, holders.nearest(key_of[c, column_of[t.key]])[0]) for t in chi2_terms[:KWIC_TERMS]],
+            collection, analyzer,
         )
-        df_in = df_by_cluster[c].toarray().ravel()
-        chi2_terms = _chi2_terms(df_in, df_all, size, total, shown, vectors.terms, top_terms)
-        counts_in = counts_by_cluster[c].toarray().ravel()
-        log_odds_terms = _log_odds_terms(
-            counts_in, counts_all - counts_in, prior, df_in, df_all, size, total, shown, vectors.terms, top_terms
-        )
-        kwic = _kwic_for(chi2_terms[:KWIC_TERMS], digest.candidates(c, clustering.distances), vectors.counts,
-                         column_of, collection, analyzer)
         headline_doc = collection.documents[nearest[0].doc_index]
         silhouette = quality.per_cluster_silhouette[c] if c < len(quality.per_cluster_silhouette) else None
         summaries.append(
@@ -133,70 +140,62 @@ def cluster_term_totals(
     return sp.csr_matrix(df), sp.csr_matrix(totals)
 
 
-class ClusterDigest:
-    """Bounded per-cluster summaries built in one pass over the rows, block by block.
+class NearestDigest:
+    """For every key (a cluster, or a cluster and a term), the rows nearest the centroid seen so far.
 
-    For every cluster it keeps the `nearest` members closest to the centroid (a running top-N; ties
-    go to the earlier row) and a uniform random sample of at most `sample` members (reservoir
-    sampling, Vitter's algorithm R). Memory is O(k x (nearest + sample)) whatever the number of rows.
+    Fed block by block, it keeps at most `cap` rows per key (ties go to the earlier row), so its memory
+    is O(keys x cap) whatever the number of rows.
     """
 
-    def __init__(self, k: int, *, nearest: int, sample: int, seed: int = 0) -> None:
-        self.k = k
-        self.nearest_cap = nearest
-        self.sample_cap = sample
-        self._rng = np.random.default_rng(seed)
-        self._near_rows = [np.zeros(0, dtype=np.int64) for _ in range(k)]
-        self._near_dist = [np.zeros(0) for _ in range(k)]
-        self._sample = [np.zeros(0, dtype=np.int64) for _ in range(k)]
-        self._seen = np.zeros(k, dtype=np.int64)
+    def __init__(self, cap: int) -> None:
+        self.cap = cap
+        self._keys = np.zeros(0, dtype=np.int64)
+        self._rows = np.zeros(0, dtype=np.int64)
+        self._distances = np.zeros(0)
 
-    def update(self, rows: np.ndarray, labels: np.ndarray, distances: np.ndarray) -> None:
-        """Take in a block of rows (their global indices), their clusters and distances to the centroid."""
-        for c in np.unique(labels).tolist():
-            mine = labels == c
-            self._keep_nearest(c, rows[mine], distances[mine])
-            self._keep_sample(c, rows[mine])
+    def update(self, rows: np.ndarray, keys: np.ndarray, distances: np.ndarray) -> None:
+        """Take in rows (global indices), each with its key and its distance to the centroid."""
+        all_keys = np.concatenate([self._keys, keys.astype(np.int64)])
+        all_rows = np.concatenate([self._rows, rows.astype(np.int64)])
+        all_distances = np.concatenate([self._distances, distances])
+        order = np.lexsort((all_rows, all_distances, all_keys))
+        sorted_keys = all_keys[order]
+        starts = np.flatnonzero(np.r_[True, sorted_keys[1:] != sorted_keys[:-1]])
+        rank = np.arange(order.size) - np.repeat(starts, np.diff(np.r_[starts, order.size]))
+        kept = order[rank < self.cap]
+        self._keys, self._rows, self._distances = all_keys[kept], all_rows[kept], all_distances[kept]
 
-    def _keep_nearest(self, c: int, rows: np.ndarray, distances: np.ndarray) -> None:
-        all_rows = np.concatenate([self._near_rows[c], rows])
-        all_dist = np.concatenate([self._near_dist[c], distances])
-        order = np.lexsort((all_rows, all_dist))[: self.nearest_cap]
-        self._near_rows[c], self._near_dist[c] = all_rows[order], all_dist[order]
+    def nearest(self, key: int) -> tuple[np.ndarray, np.ndarray]:
+        """Rows of `key`, nearest first, with their distances."""
+        low, high = np.searchsorted(self._keys, [key, key + 1])  # held rows are sorted by key
+        return self._rows[low:high], self._distances[low:high]
 
-    def _keep_sample(self, c: int, rows: np.ndarray) -> None:
-        held = self._sample[c]
-        seen = int(self._seen[c])
-        room = max(0, self.sample_cap - held.size)
-        held = np.concatenate([held, rows[:room]])
-        rest = rows[room:]
-        if rest.size:
-            position = seen + room + np.arange(rest.size)  # 0-based index of each row among the cluster's rows
-            slot = np.floor(self._rng.random(rest.size) * (position + 1)).astype(np.int64)
-            taken = slot < self.sample_cap
-            for s, r in zip(slot[taken].tolist(), rest[taken].tolist(), strict=True):  # in order: later rows win
-                held[s] = r
-        self._sample[c] = held
-        self._seen[c] = seen + rows.size
+    def largest_held(self) -> int:
+        """The most rows held for any one key."""
+        return int(np.bincount(self._keys).max()) if self._keys.size else 0
 
-    def nearest(self, c: int) -> tuple[np.ndarray, np.ndarray]:
-        """Rows nearest the centroid first, with their distances."""
-        return self._near_rows[c], self._near_dist[c]
 
-    def sample(self, c: int) -> np.ndarray:
-        return self._sample[c]
+def term_holders(
+    counts: sp.csr_matrix, labels: np.ndarray, distances: np.ndarray, pairs: Sequence[tuple[int, int]], cap: int
+) -> NearestDigest:
+    """For each (cluster, column) pair, the `cap` members of the cluster holding the term nearest the centroid.
 
-    def held(self) -> tuple[int, int]:
-        """The largest number of nearest rows and of sampled rows held for any cluster."""
-        return (max((r.size for r in self._near_rows), default=0), max((r.size for r in self._sample), default=0))
-
-    def candidates(self, c: int, distances: np.ndarray) -> np.ndarray:
-        """Rows to look in for keyword-in-context lines: the nearest, then the sample nearest first."""
-        sample = self._sample[c]
-        sample = sample[np.lexsort((sample, distances[sample]))]
-        rows = np.concatenate([self._near_rows[c], sample])
-        _, first = np.unique(rows, return_index=True)
-        return rows[np.sort(first)]
+    Keys of the digest are positions in `pairs`. One pass over the count matrix in blocks of rows.
+    """
+    holders = NearestDigest(cap)
+    if not pairs:
+        return holders
+    n_columns = counts.shape[1]
+    codes = np.array([c * n_columns + j for c, j in pairs], dtype=np.int64)
+    order = np.argsort(codes, kind="stable")
+    for begin in range(0, counts.shape[0], ROW_BLOCK):
+        block = counts[begin : begin + ROW_BLOCK]
+        row_of = begin + np.repeat(np.arange(block.shape[0]), np.diff(block.indptr))
+        found = labels[row_of].astype(np.int64) * n_columns + block.indices
+        hit = np.isin(found, codes)
+        at = order[np.searchsorted(codes[order], found[hit])]
+        holders.update(row_of[hit], at, distances[row_of[hit]])
+    return holders
 
 
 def _stability_value(stability: StabilityResult | None, c: int) -> float | None:
@@ -241,17 +240,13 @@ def _log_odds_terms(
 
 
 def _kwic_for(
-    terms: Sequence[TermScore], candidates: np.ndarray, counts: sp.csr_matrix,
-    column_of: dict[str, int], collection: Collection, analyzer: Analyzer,
+    terms: Sequence[tuple[TermScore, np.ndarray]], collection: Collection, analyzer: Analyzer,
 ) -> tuple[KwicLine, ...]:
-    """Up to KWIC_LINES_PER_TERM lines per term, from distinct member texts among `candidates`, in order."""
+    """Up to KWIC_LINES_PER_TERM lines per term, from the distinct member texts holding it, nearest first."""
     lines: list[KwicLine] = []
-    for term in terms:
-        column = column_of[term.key]
+    for term, holders in terms:
         found = 0
-        for text_index in candidates.tolist():
-            if not np.any(counts.indices[counts.indptr[text_index] : counts.indptr[text_index + 1]] == column):
-                continue
+        for text_index in holders.tolist():
             doc_index = int(collection.first_doc_of_text[text_index])
             doc = collection.documents[doc_index]
             line = kwic_line(doc.text, analyzer, term.key)

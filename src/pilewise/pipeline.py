@@ -328,7 +328,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     with reporter.stage("describing"):
         clusters = describe_clusters(
             prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-            top_terms=options.top_terms, stability=stability, seed=options.seed,
+            top_terms=options.top_terms, stability=stability,
         )
         levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
