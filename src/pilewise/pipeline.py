@@ -324,6 +324,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         stability = bootstrap_stability(
             space[rows], weights[rows], clustering.labels[rows], k=k, resamples=options.resamples,
             seed=options.seed, cluster_fn=_stability_fn(options, k),
+            track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
         )
     with reporter.stage("describing"):
         clusters = describe_clusters(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import TypeAlias
 
@@ -111,6 +111,7 @@ def bootstrap_stability(
     resamples: int,
     seed: int,
     cluster_fn: ClusterFn,
+    track: Callable[[range], Iterable[int]] | None = None,
 ) -> StabilityResult:
     """Clusterwise bootstrap stability (Hennig 2007): mean Jaccard similarity to the best-matching cluster.
 
@@ -138,6 +139,8 @@ def bootstrap_stability(
         depends only on `seed` and i, not on B, and never coincides with ``default_rng(seed)``.
     cluster_fn : ClusterFn
         Called as ``cluster_fn(rows, row_weights, resample_seed)``; returns one integer label per row.
+    track : callable, optional
+        Wraps the loop over the resamples (a progress bar).
 
     Returns
     -------
@@ -153,7 +156,7 @@ def bootstrap_stability(
     labels = np.asarray(labels, dtype=np.int64)
     weights = np.asarray(weights, dtype=float)
     values = np.full((resamples, k), np.nan)
-    for i in range(resamples):
+    for i in track(range(resamples)) if track else range(resamples):
         rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(i,)))
         rows = np.unique(rng.integers(0, n, size=n))
         resample_seed = int(rng.integers(0, 2**31 - 1))
