@@ -68,6 +68,7 @@ from typing import Any
 import numpy as np
 
 K = 20
+MINIBATCH_SIZE = 4096
 N_INIT = 4
 LSA_COMPONENTS = 100
 MAX_DF = 0.5
@@ -191,8 +192,14 @@ def generate_collection(n_docs: int, folder: Path, seed: int) -> Collection:
 # --------------------------------------------------------------------------------------------
 
 
-def bare_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int, lsa: bool) -> None:
-    """The library pipeline, timed step by step; writes doc_id,cluster to `labels_out`."""
+def bare_child(
+    csv_path: Path, labels_out: Path, timings_out: Path, min_df: int, lsa: bool, *, k: int = K, minibatch: bool = False
+) -> None:
+    """The library pipeline, timed step by step; writes doc_id,cluster to `labels_out`.
+
+    With `minibatch`, MiniBatchKMeans(k, n_init=N_INIT, batch_size=MINIBATCH_SIZE) instead of KMeans: the
+    library pipeline a streaming clusterer is built on (bench_scale.py).
+    """
     timings: dict[str, float] = {}
     mark = time.perf_counter()
 
@@ -203,7 +210,7 @@ def bare_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int,
         mark = now
 
     import pandas as pd
-    from sklearn.cluster import KMeans
+    from sklearn.cluster import KMeans, MiniBatchKMeans
     from sklearn.decomposition import TruncatedSVD
     from sklearn.feature_extraction.text import TfidfVectorizer
     from sklearn.preprocessing import Normalizer
@@ -219,7 +226,9 @@ def bare_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int,
         space = TruncatedSVD(n_components=LSA_COMPONENTS, random_state=0).fit_transform(space)
         space = Normalizer(copy=False).fit_transform(space)
         lap("lsa")
-    labels = KMeans(n_clusters=K, n_init=N_INIT, random_state=0).fit_predict(space)
+    model = MiniBatchKMeans(n_clusters=k, n_init=N_INIT, batch_size=MINIBATCH_SIZE, random_state=0) if minibatch \
+        else KMeans(n_clusters=k, n_init=N_INIT, random_state=0)
+    labels = model.fit_predict(space)
     lap("clustering")
     pd.DataFrame({"doc_id": frame["doc_id"], "cluster": labels}).to_csv(labels_out, index=False)
     lap("writing")
@@ -386,6 +395,28 @@ def source_fingerprint() -> str:
     return digest.hexdigest()[:16]
 
 
+def add_child_arguments(parser: argparse.ArgumentParser, children: tuple[str, ...]) -> None:
+    """The hidden options with which the script runs itself as one bare pipeline's child process."""
+    parser.add_argument("--child", choices=children, help=argparse.SUPPRESS)
+    parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--labels-out", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--timings-out", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--min-df", type=int, help=argparse.SUPPRESS)
+
+
+def start_benchmark(threads: int | None, workdir: Path | None, prefix: str) -> tuple[dict[str, Any], Path, bool]:
+    """Thread settings for every child, the machine's description, and the work folder (temporary unless given)."""
+    if threads:
+        for variable in THREAD_VARIABLES:
+            os.environ[variable] = str(threads)  # inherited by every child
+    info = machine()
+    info["threads_setting"] = threads
+    temporary = workdir is None
+    work = Path(tempfile.mkdtemp(prefix=prefix)) if workdir is None else workdir.resolve()
+    work.mkdir(parents=True, exist_ok=True)
+    return info, work, temporary
+
+
 def ratio(a: float, b: float) -> float:
     return round(a / b, 2) if b else float("nan")
 
@@ -478,11 +509,7 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--profile", action="store_true", help="also run pilewise once under cProfile")
     parser.add_argument("--threads", type=int, default=None,
                         help="set OMP/OpenBLAS/MKL thread counts of every child (default: the libraries' own)")
-    parser.add_argument("--child", choices=("bare", "bare+lsa"), help=argparse.SUPPRESS)
-    parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--labels-out", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--timings-out", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--min-df", type=int, help=argparse.SUPPRESS)
+    add_child_arguments(parser, ("bare", "bare+lsa"))
     args = parser.parse_args(argv)
 
     if args.child:
@@ -492,14 +519,7 @@ def main(argv: list[str] | None = None) -> None:
     from pilewise.options import RunOptions
     from pilewise.vectors import default_min_df
 
-    if args.threads:
-        for variable in THREAD_VARIABLES:
-            os.environ[variable] = str(args.threads)  # inherited by every child
-    info = machine()
-    info["threads_setting"] = args.threads
-    temporary = args.workdir is None
-    work = Path(tempfile.mkdtemp(prefix="pilewise-bench-")) if temporary else args.workdir.resolve()
-    work.mkdir(parents=True, exist_ok=True)
+    info, work, temporary = start_benchmark(args.threads, args.workdir, "pilewise-bench-")
     try:
         print(f"generating {args.docs:,} documents in {work} ...", flush=True)
         collection = generate_collection(args.docs, work, args.seed)

@@ -62,10 +62,8 @@ import argparse
 import csv
 import json
 import math
-import os
 import shutil
 import sys
-import tempfile
 import time
 from dataclasses import asdict, dataclass
 from pathlib import Path
@@ -80,15 +78,14 @@ from bench_pipeline import (  # noqa: E402
     BACKGROUND_WORDS,
     LSA_COMPONENTS,
     MAX_DF,
+    MINIBATCH_SIZE,
     N_INIT,
     OUT_FOLDER,
-    THREAD_VARIABLES,
     TOPIC_SHARE,
     TOPIC_WORDS,
     TOPICS,
     Collection,
     Measurement,
-    machine,
     make_words,
     measure,
     pilewise_command,
@@ -102,7 +99,6 @@ MIN_WORDS, MAX_WORDS = 20, 120
 SENTENCE_WORDS = (6, 18)
 CHUNK_DOCS = 10_000
 ID_DIGITS = 7  # doc ids d0000000 .. d9999999, as in bench_pipeline.py
-MINIBATCH_SIZE = 4096
 # word forms in the vocabulary blob: word * FORMS + CAPITALIZED * capital + ending
 ENDINGS = (" ", ". ", ".\n")  # inside a sentence, end of a sentence, end of the document (and of its CSV row)
 FORMS = 2 * len(ENDINGS)
@@ -298,44 +294,13 @@ def read_planted(path: Path) -> np.ndarray:
 
 
 def bare_minibatch_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int, k: int) -> None:
-    """The bare reference for streaming: TF-IDF, LSA, MiniBatchKMeans; writes doc_id,cluster to `labels_out`."""
-    timings: dict[str, float] = {}
-    mark = time.perf_counter()
-
-    def lap(name: str) -> None:
-        nonlocal mark
-        now = time.perf_counter()
-        timings[name] = round(now - mark, 3)
-        mark = now
-
-    import pandas as pd
-    from sklearn.cluster import MiniBatchKMeans
-    from sklearn.decomposition import TruncatedSVD
-    from sklearn.feature_extraction.text import TfidfVectorizer
-    from sklearn.preprocessing import Normalizer
-
-    lap("imports")
-    frame = pd.read_csv(csv_path, dtype=str, keep_default_na=False)
-    lap("reading")
-    vectorizer = TfidfVectorizer(stop_words="english", sublinear_tf=True, min_df=min_df, max_df=MAX_DF)
-    space: Any = vectorizer.fit_transform(frame["text"])
-    terms = len(vectorizer.vocabulary_)
-    lap("vectorizing")
-    space = TruncatedSVD(n_components=LSA_COMPONENTS, random_state=0).fit_transform(space)
-    space = Normalizer(copy=False).fit_transform(space)
-    lap("lsa")
-    model = MiniBatchKMeans(n_clusters=k, n_init=N_INIT, batch_size=MINIBATCH_SIZE, random_state=0)
-    labels = model.fit_predict(space)
-    lap("clustering")
-    pd.DataFrame({"doc_id": frame["doc_id"], "cluster": labels}).to_csv(labels_out, index=False)
-    lap("writing")
-    timings_out.write_text(json.dumps({"timings_seconds": timings, "terms": terms}), encoding="utf-8")
+    """The bare reference for streaming: TF-IDF, LSA, MiniBatchKMeans(k) (bench_pipeline's bare_child)."""
+    bench_pipeline.bare_child(csv_path, labels_out, timings_out, min_df, lsa=True, k=k, minibatch=True)
 
 
 def bare_kmeans_child(csv_path: Path, labels_out: Path, timings_out: Path, min_df: int, k: int) -> None:
     """The bare in-memory reference: bench_pipeline's bare_child with LSA and KMeans(k)."""
-    bench_pipeline.K = k  # bare_child reads k from this module constant (20 there); this child is its own process
-    bench_pipeline.bare_child(csv_path, labels_out, timings_out, min_df, lsa=True)
+    bench_pipeline.bare_child(csv_path, labels_out, timings_out, min_df, lsa=True, k=k)
 
 
 BARE_CHILDREN = {"bare-minibatch": bare_minibatch_child, "bare-kmeans": bare_kmeans_child}
@@ -647,11 +612,7 @@ def main(argv: list[str] | None = None) -> None:
                         help="share of each document's words drawn from its planted topic (default 0.15; lower is "
                              "harder to separate)")
     parser.add_argument("--generate-only", action="store_true", help="generate the collections, time it, stop")
-    parser.add_argument("--child", choices=tuple(BARE_CHILDREN), help=argparse.SUPPRESS)
-    parser.add_argument("--csv", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--labels-out", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--timings-out", type=Path, help=argparse.SUPPRESS)
-    parser.add_argument("--min-df", type=int, help=argparse.SUPPRESS)
+    bench_pipeline.add_child_arguments(parser, tuple(BARE_CHILDREN))
     args = parser.parse_args(argv)
 
     if args.child:
@@ -662,14 +623,7 @@ def main(argv: list[str] | None = None) -> None:
         parser.error("; ".join(problems))
     sizes = sorted(set(args.sizes))
 
-    if args.threads:
-        for variable in THREAD_VARIABLES:
-            os.environ[variable] = str(args.threads)  # inherited by every child
-    info = machine()
-    info["threads_setting"] = args.threads
-    temporary = args.workdir is None
-    work = Path(tempfile.mkdtemp(prefix="pilewise-scale-")) if temporary else args.workdir.resolve()
-    work.mkdir(parents=True, exist_ok=True)
+    info, work, temporary = bench_pipeline.start_benchmark(args.threads, args.workdir, "pilewise-scale-")
     stamp = info["measured_at"].replace("-", "").replace(":", "").replace("+0000", "Z")
     OUT_FOLDER.mkdir(exist_ok=True)
     try:
