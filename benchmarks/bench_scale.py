@@ -395,7 +395,7 @@ def measure_pilewise(mode: str | None, collection: Collection, planted: np.ndarr
         stages_of=stages,
         prepare=lambda: shutil.rmtree(out, ignore_errors=True),
     )
-    # the manifest is written inside the "writing site" stage: estimate that one as the rest of the wall time
+    # what the manifest's stages leave out (the root index, process exit): the rest of the wall time
     rest = measurement.wall_seconds - sum(measurement.stage_seconds.values()) - startup
     measurement.extra["writing_site_estimate_seconds"] = round(rest, 3)
     if not setting.keep:
@@ -506,12 +506,12 @@ def report_lines(info: dict[str, Any], generation: dict[str, Any], rows: list[Ro
         lines.append(f"| {r.documents:,} | {r.mode} | {m.wall_seconds:.1f} | {m.cpu_seconds:.1f} | "
                      f"{m.peak_rss_mb:,.0f} | {m.nmi:.3f} | {m.wall_seconds / per_k:.3f} | "
                      f"{m.peak_rss_mb / per_k:.1f} |")
-    lines += ["", "Stage timings of pilewise (s; writing site estimated as wall time less the rest and startup):"]
+    lines += ["", "Stage timings of pilewise (s; the rest: wall time less the stages and startup):"]
     for r in rows:
         if r.mode.startswith("pilewise"):
             m = r.measurement
             stages = ", ".join(f"{name} {seconds:.2f}" for name, seconds in m.stage_seconds.items())
-            lines.append(f"- {r.documents:,} {r.mode}: {stages}, writing site ~"
+            lines.append(f"- {r.documents:,} {r.mode}: {stages}, the rest ~"
                          f"{m.extra['writing_site_estimate_seconds']:.2f}")
     if pairs:
         lines += ["", "Growth between successive sizes (x / size x: 1.00 = linear, above = faster than linear):", "",

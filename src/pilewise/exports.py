@@ -37,7 +37,7 @@ def write_exports(
     """Write every export of `result` into `folder`; `track` wraps the pass over the documents (progress)."""
     write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
     _write_json(folder / "clusters.json", clusters_document(result))
-    _write_json(folder / "manifest.json", manifest_document(result))
+    write_manifest(folder, result)
     write_ingest_report(folder / "ingest-report.csv", result)
     _write_json(folder / "levels.json", levels_document(result))
     write_names_csv(folder / "names.csv", result.naming)
@@ -262,6 +262,10 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],
     }
+
+
+def write_manifest(folder: Path, result: RunResult) -> None:
+    _write_json(folder / "manifest.json", manifest_document(result))
 
 
 def build_time() -> str:

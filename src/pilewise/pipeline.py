@@ -10,6 +10,7 @@ import hashlib
 import os
 import shutil
 import tempfile
+import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
@@ -22,7 +23,7 @@ from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clust
 from pilewise.dedup import Boilerplate, NearDuplicates, find_boilerplate, near_duplicate_groups, strip_boilerplate
 from pilewise.describe import ROW_BLOCK, Collection, describe_clusters
 from pilewise.errors import PilewiseError
-from pilewise.exports import write_exports
+from pilewise.exports import write_exports, write_manifest
 from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
@@ -493,9 +494,13 @@ def fingerprint(documents: Iterable[Document]) -> str:
 
 
 def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
+    start = time.perf_counter()
     total = len(result.collection.documents)
     write_exports(folder, result, track=lambda items: reporter.track(items, total=total, label="writing exports"))
     render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
+    # the manifest is written again last, so that its timings include writing the exports and pages
+    result.timings["writing site"] = round(time.perf_counter() - start, 3)
+    write_manifest(folder, result)
 
 
 def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
