@@ -35,6 +35,7 @@ from pilewise.quality import assess
 from pilewise.reading import ReadLimits, SourceStream, read_source, stream_source
 from pilewise.redact import redact_document
 from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
+from pilewise.shelf import DocumentShelf
 from pilewise.site import render_root_index, render_run_site
 from pilewise.stability import (
     ClusterFn,
@@ -94,10 +95,14 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     reporter = reporter or Reporter(quiet=options.quiet)
     with _work_folder(options.out) as work:
         result = compute_run(options, reporter, work)
-        with reporter.stage("writing site"):
-            run_folder = options.out / "runs" / result.name
-            _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
-            root_index = render_root_index(options.out)
+        try:
+            with reporter.stage("writing site"):
+                run_folder = options.out / "runs" / result.name
+                _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+                root_index = render_root_index(options.out)
+        finally:
+            if isinstance(result.ingested.documents, DocumentShelf):
+                result.ingested.documents.close()
     return RunOutcome(
         run_folder=run_folder,
         index_page=run_folder / "index.html",
