@@ -1,14 +1,13 @@
 """Streaming preparation: read, de-duplicate and vectorize a collection chunk by chunk.
 
-For collections too large for the in-memory path. Raw texts never stay in memory: each chunk of
-documents is redacted, written to a disk-backed shelf (the run's work folder) and tokenized, and
-only its term counts are kept. Terms are counted in a fixed-size hashed vocabulary (a word's column
-is its MurmurHash3 modulo HASH_BUCKETS, as scikit-learn's HashingVectorizer does), so memory does not
-depend on how many distinct words the collection holds; the word shown for a column is the most
-frequent word that fell into it. Document frequencies from the same pass choose the kept columns;
-LSA is fitted on a seeded sample of rows and applied chunk by chunk.
-
-Tokenizing runs in worker processes (one per core) while the main process reads the next chunk.
+For collections too large for the in-memory path. Raw texts never stay in memory: worker processes
+(one per core) redact, serialize, key and tokenize each chunk of documents while the main process
+reads the next; the main process writes the chunk to a disk-backed shelf (in the run's work folder),
+looks its texts up among those seen (exact duplicates), and keeps only the term counts of new texts.
+Terms are counted in a fixed-size hashed vocabulary (a word's column is its MurmurHash3 modulo
+HASH_BUCKETS, as scikit-learn's HashingVectorizer does), so memory does not depend on how many distinct
+words the collection holds; the word shown for a column is the most frequent word that fell into it. Document frequencies from the same pass choose the kept columns;
+LSA is fitted on a seeded sample of rows and applied block by block.
 """
 
 from __future__ import annotations
@@ -33,7 +32,7 @@ from sklearn.utils import murmurhash3_32
 from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate
 from pilewise.describe import Collection
 from pilewise.errors import PilewiseError
-from pilewise.model import Document, Ingested
+from pilewise.model import Document
 from pilewise.progress import Reporter
 from pilewise.redact import redact_document
 from pilewise.shelf import DocumentShelf, shelf_record
@@ -51,7 +50,6 @@ TRANSFORM_ROWS = 50_000  # rows weighted and projected per step
 class StreamedCollection:
     """What the streaming preparation hands to the clustering stages."""
 
-    ingested: Ingested
     collection: Collection
     vectors: Vectorized
     boilerplate: Boilerplate
@@ -104,8 +102,7 @@ def prepare_streamed(
         )
         tally.index_of.clear()
         vectors = _vectorize_blocks(tally, settings, reporter)
-    ingested = Ingested(documents=shelf, entries=(), notes=())  # the caller fills in the reading report
-    return StreamedCollection(ingested, collection, vectors, boilerplate, redacted, "sha256:" + digest.hexdigest(),
+    return StreamedCollection(collection, vectors, boilerplate, redacted, "sha256:" + digest.hexdigest(),
                               shelf)
 
 
