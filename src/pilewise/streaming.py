@@ -6,8 +6,9 @@ reads the next; the main process writes the chunk to a disk-backed shelf (in the
 looks its texts up among those seen (exact duplicates), and keeps only the term counts of new texts.
 Terms are counted in a fixed-size hashed vocabulary (a word's column is its MurmurHash3 modulo
 HASH_BUCKETS, as scikit-learn's HashingVectorizer does), so memory does not depend on how many distinct
-words the collection holds; the word shown for a column is the most frequent word that fell into it. Document frequencies from the same pass choose the kept columns;
-LSA is fitted on a seeded sample of rows and applied block by block.
+words the collection holds; the word shown for a column is the most frequent word that fell into it.
+Document frequencies from the same pass choose the kept columns; LSA is fitted on a seeded sample of
+rows and applied block by block.
 """
 
 from __future__ import annotations
