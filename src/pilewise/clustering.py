@@ -66,7 +66,7 @@ ROW_BLOCK = 65_536  # rows per block when a pass over the whole space is made
 
 
 def minibatch_clusters(
-    space: np.ndarray, weights: np.ndarray, *, k: int, seed: int,
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int,
     track: Callable[[list[tuple[int, int]], int], Iterable[tuple[int, int]]] | None = None,
 ) -> Clustering:
     """Mini-batch k-means (Sculley 2010) fed block by block, for collections too large for full k-means.
@@ -91,10 +91,15 @@ def minibatch_clusters(
         model.partial_fit(space[rows], sample_weight=weights[rows])
     raw_labels = np.empty(n, dtype=np.int64)
     inertia = 0.0
+    centers = model.cluster_centers_
     for begin in range(0, n, ROW_BLOCK):
-        block = np.asarray(space[begin : begin + ROW_BLOCK], dtype=np.float64)
-        distances = ((block**2).sum(axis=1)[:, None] - 2 * block @ model.cluster_centers_.T
-                     + (model.cluster_centers_**2).sum(axis=1)[None, :])
+        block = space[begin : begin + ROW_BLOCK]
+        if sp.issparse(block):  # --lsa-components 0: the TF-IDF rows themselves
+            squared = np.asarray(sp.csr_matrix(block).multiply(block).sum(axis=1)).ravel()
+        else:
+            block = np.asarray(block, dtype=np.float64)
+            squared = (block**2).sum(axis=1)
+        distances = squared[:, None] - 2 * np.asarray(block @ centers.T) + (centers**2).sum(axis=1)[None, :]
         raw_labels[begin : begin + ROW_BLOCK] = np.argmin(distances, axis=1)
         inertia += float(np.sum(np.min(distances, axis=1).clip(0) * weights[begin : begin + ROW_BLOCK]))
     found = int(np.unique(raw_labels).size)
