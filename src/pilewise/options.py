@@ -22,8 +22,8 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 
 METHODS = ("kmeans", "ward")
 MODES = ("auto", "memory", "stream")
-# --mode auto streams when the files to read hold at least this many bytes (about 200,000 short
-# texts; the in-memory path needs roughly 12 KB of memory per text, docs/performance.md)
+# --mode auto streams when the files to read hold at least this many bytes (about 250,000 short
+# texts; the in-memory path measured 956 MB for 100,000 texts of 20-120 words, docs/performance.md)
 STREAM_ABOVE_BYTES = 100 * 1024 * 1024
 
 

@@ -127,8 +127,14 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     from pilewise.site import render_sweep
 
     reporter = reporter or Reporter(quiet=options.quiet)
-    options = replace(options, mode="memory")  # a sweep clusters at every k: on a large collection, use a sample
+    options = replace(options, mode="memory")  # a sweep clusters at every k in memory
     validate(options)
+    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
+    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
+    size = stream_source(options.source, columns, limits).total_bytes
+    if size >= STREAM_ABOVE_BYTES:
+        reporter.warn(f"sweeping {size / 1e6:,.0f} MB of input in memory (about 1 GB per 100,000 short "
+                      "texts); on a collection this large, sweep a sample of a few hundred thousand texts and stream the full run with --k")
     prepared = prepare_collection(options, reporter, k_needed=options.k_min)
     k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
     with reporter.stage("sweeping k"):
