@@ -134,7 +134,8 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     size = stream_source(options.source, columns, limits).total_bytes
     if size >= STREAM_ABOVE_BYTES:
         reporter.warn(f"sweeping {size / 1e6:,.0f} MB of input in memory (about 1 GB per 100,000 short "
-                      "texts); on a collection this large, sweep a sample of a few hundred thousand texts and stream the full run with --k")
+                      "texts); on a collection this large, sweep a sample of a few hundred thousand texts and "
+                      "stream the full run with --k")
     prepared = prepare_collection(options, reporter, k_needed=options.k_min)
     k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
     with reporter.stage("sweeping k"):
