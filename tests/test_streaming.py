@@ -306,3 +306,22 @@ def test_streaming_runs_with_other_settings(
     ids = sorted(truth)
     # measured NMI at seed 0: 0.840 without LSA, 0.884 with each of the others (as the default); 0.6 is a floor
     assert normalized_mutual_info_score([truth[i] for i in ids], [found[i] for i in ids]) >= 0.6
+
+
+def test_a_killed_runs_scratch_folder_is_removed_but_a_live_ones_is_kept(
+    planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], tmp_path: Path
+) -> None:
+    import os
+
+    folder, _, _ = planted
+    out = tmp_path / "site"
+    dead = out / ".work-999999999-abc"  # no such process
+    live = out / f".work-{os.getppid()}-abc"  # the test runner's parent: alive
+    for scratch in (dead, live):
+        scratch.mkdir(parents=True)
+        (scratch / "documents.jsonl").write_text("{}\n", encoding="utf-8")
+    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                                      "--out", str(out), "--quiet", "--resamples", "2"])
+    assert result.exit_code == 0, result.stderr
+    assert not dead.exists() and live.exists()
+    assert sorted(p.name for p in out.glob(".work-*")) == [live.name]  # this run's own folder is gone too

@@ -191,10 +191,23 @@ class Prepared:
 def _work_folder(out: Path) -> Iterator[Path]:
     """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end."""
     out.mkdir(parents=True, exist_ok=True)
-    for stale in out.glob(".work-*"):  # left by a killed run
-        shutil.rmtree(stale, ignore_errors=True)
-    with tempfile.TemporaryDirectory(prefix=".work-", dir=out) as folder:
+    for stale in out.glob(".work-*-*"):  # left by a killed run; another run may be using its own right now
+        if not _process_alive(stale.name.split("-")[1]):
+            shutil.rmtree(stale, ignore_errors=True)
+    with tempfile.TemporaryDirectory(prefix=f".work-{os.getpid()}-", dir=out) as folder:
         yield Path(folder)
+
+
+def _process_alive(pid: str) -> bool:
+    if not pid.isdigit():
+        return False
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # alive, under another user
+        return True
+    return True
 
 
 def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int, work: Path | None = None) -> Prepared:
