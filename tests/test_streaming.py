@@ -325,3 +325,17 @@ def test_a_killed_runs_scratch_folder_is_removed_but_a_live_ones_is_kept(
     assert result.exit_code == 0, result.stderr
     assert not dead.exists() and live.exists()
     assert sorted(p.name for p in out.glob(".work-*")) == [live.name]  # this run's own folder is gone too
+
+
+def test_streaming_stops_at_max_documents_with_one_line(
+    planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], tmp_path: Path
+) -> None:
+    folder, _, _ = planted
+    out = tmp_path / "site"
+    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                                      "--out", str(out), "--quiet", "--max-documents", "100"])
+    assert result.exit_code == 1
+    assert result.stderr.strip().splitlines()[-1] == (
+        "pilewise: error: found more than --max-documents 100 documents; raise --max-documents or point SOURCE "
+        "at fewer files")
+    assert not list(out.glob(".work-*")) and not (out / "runs").exists()
