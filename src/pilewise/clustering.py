@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import warnings
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
@@ -61,37 +62,83 @@ def kmeans_clusters(
 
 MINIBATCH_ROWS = 4_096  # rows per mini-batch step
 MINIBATCH_EPOCHS = 3  # passes over the data after the seeding
+MINIBATCH_STARTS = 3  # seeded starts; the one with the lowest inertia over all rows is kept
 SEED_SAMPLE = 20_000  # rows of the seeded sample on which k-means picks the starting centroids
 ROW_BLOCK = 65_536  # rows per block when a pass over the whole space is made
+LLOYD_PASSES = 10  # full k-means steps after the mini-batches, at most
+LLOYD_SETTLED = 0.001  # ... stopping once fewer than this share of the rows change cluster
 
 
 def minibatch_clusters(
     space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int,
-    track: Callable[[list[tuple[int, int]], int], Iterable[tuple[int, int]]] | None = None,
+    track: Callable[[list[tuple[int, int, int]], int], Iterable[tuple[int, int, int]]] | None = None,
 ) -> Clustering:
     """Mini-batch k-means (Sculley 2010) fed block by block, for collections too large for full k-means.
 
-    Starting centroids come from full k-means (4 k-means++ starts) on a seeded sample of SEED_SAMPLE rows;
-    then MINIBATCH_EPOCHS passes over the rows in shuffled mini-batches refine them (scikit-learn's
-    MiniBatchKMeans.partial_fit), and every row goes to its nearest centroid. `track(steps, total)` may wrap
-    the mini-batch loop (a progress bar).
+    Each of MINIBATCH_STARTS starts takes its starting centroids from full k-means (4 k-means++ starts)
+    on a seeded sample of SEED_SAMPLE rows; then MINIBATCH_EPOCHS passes over the rows in shuffled
+    mini-batches refine them (scikit-learn's MiniBatchKMeans.partial_fit), and up to LLOYD_PASSES full
+    k-means (Lloyd) steps, each one pass over the rows in blocks, move the centroids to the weighted means
+    of their rows until fewer than LLOYD_SETTLED of the rows change cluster. The start with the lowest
+    inertia over all rows wins (a sample's best start is not always the collection's). `track(steps,
+    total)` may wrap the mini-batch loop (a progress bar).
     """
     n = space.shape[0]
-    rng = np.random.default_rng(seed)
-    sample = np.sort(rng.choice(n, min(n, SEED_SAMPLE), replace=False))
-    start = KMeans(n_clusters=k, n_init=4, random_state=seed).fit(space[sample], sample_weight=weights[sample])
-    model = MiniBatchKMeans(n_clusters=k, init=start.cluster_centers_, n_init=1, random_state=seed,
-                            batch_size=MINIBATCH_ROWS)
-    batches = [(epoch, begin) for epoch in range(MINIBATCH_EPOCHS) for begin in range(0, n, MINIBATCH_ROWS)]
-    order, shuffled_for = np.arange(n), -1
-    for epoch, begin in track(batches, len(batches)) if track else batches:
-        if epoch != shuffled_for:  # a fresh shuffle for every pass
-            order, shuffled_for = rng.permutation(n), epoch
-        rows = np.sort(order[begin : begin + MINIBATCH_ROWS])
-        model.partial_fit(space[rows], sample_weight=weights[rows])
-    raw_labels = np.empty(n, dtype=np.int64)
+    steps = [(start, epoch, begin) for start in range(MINIBATCH_STARTS) for epoch in range(MINIBATCH_EPOCHS)
+             for begin in range(0, n, MINIBATCH_ROWS)]
+    tracked = iter(track(steps, len(steps)) if track else steps)
+    best: tuple[np.ndarray, float] | None = None
+    for start in range(MINIBATCH_STARTS):
+        rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(start,)))
+        sample = np.sort(rng.choice(n, min(n, SEED_SAMPLE), replace=False))
+        seeding = KMeans(n_clusters=k, n_init=4, random_state=int(rng.integers(2**31 - 1)))
+        seeding.fit(space[sample], sample_weight=weights[sample])
+        model = MiniBatchKMeans(n_clusters=k, init=seeding.cluster_centers_, n_init=1, batch_size=MINIBATCH_ROWS,
+                                random_state=int(rng.integers(2**31 - 1)))
+        order, shuffled_for = np.arange(n), -1
+        for _, epoch, begin in itertools.islice(tracked, MINIBATCH_EPOCHS * len(range(0, n, MINIBATCH_ROWS))):
+            if epoch != shuffled_for:  # a fresh shuffle for every pass
+                order, shuffled_for = rng.permutation(n), epoch
+            rows = np.sort(order[begin : begin + MINIBATCH_ROWS])
+            model.partial_fit(space[rows], sample_weight=weights[rows])
+        raw_labels, inertia = _lloyd_steps(space, weights, model.cluster_centers_, k)
+        if best is None or inertia < best[1]:
+            best = (raw_labels, inertia)
+    assert best is not None
+    raw_labels, inertia = best
+    found = int(np.unique(raw_labels).size)
+    if found < k:
+        raise PilewiseError(f"mini-batch k-means filled only {found} of k={k} clusters; pass a smaller --k")
+    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=inertia)
+
+
+def _lloyd_steps(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, centers: np.ndarray, k: int
+) -> tuple[np.ndarray, float]:
+    """Full k-means steps from `centers`, one blocked pass each, until hardly any row changes cluster."""
+    n = space.shape[0]
+    raw_labels, inertia = _nearest_centers(space, weights, centers)
+    for _ in range(LLOYD_PASSES):
+        sums = weighted_sums(space, weights, raw_labels, k)
+        mass = np.bincount(raw_labels, weights=weights, minlength=k)
+        filled = mass > 0
+        centers = centers.copy()
+        centers[filled] = sums[filled] / mass[filled, None]
+        new_labels, inertia = _nearest_centers(space, weights, centers)
+        moved = int(np.count_nonzero(new_labels != raw_labels))
+        raw_labels = new_labels
+        if moved <= LLOYD_SETTLED * n:
+            break
+    return raw_labels, inertia
+
+
+def _nearest_centers(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, centers: np.ndarray
+) -> tuple[np.ndarray, float]:
+    """Each row's nearest center (Euclidean) and the weighted sum of squared distances, block by block."""
+    n = space.shape[0]
+    labels = np.empty(n, dtype=np.int64)
     inertia = 0.0
-    centers = model.cluster_centers_
     for begin in range(0, n, ROW_BLOCK):
         block = space[begin : begin + ROW_BLOCK]
         if sp.issparse(block):  # --lsa-components 0: the TF-IDF rows themselves
@@ -100,12 +147,9 @@ def minibatch_clusters(
             block = np.asarray(block, dtype=np.float64)
             squared = (block**2).sum(axis=1)
         distances = squared[:, None] - 2 * np.asarray(block @ centers.T) + (centers**2).sum(axis=1)[None, :]
-        raw_labels[begin : begin + ROW_BLOCK] = np.argmin(distances, axis=1)
+        labels[begin : begin + ROW_BLOCK] = np.argmin(distances, axis=1)
         inertia += float(np.sum(np.min(distances, axis=1).clip(0) * weights[begin : begin + ROW_BLOCK]))
-    found = int(np.unique(raw_labels).size)
-    if found < k:
-        raise PilewiseError(f"mini-batch k-means filled only {found} of k={k} clusters; pass a smaller --k")
-    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=inertia)
+    return labels, inertia
 
 
 def clustering_from_labels(

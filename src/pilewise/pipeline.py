@@ -412,7 +412,7 @@ def _cluster_at(
     if tree is not None:
         return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
     if prepared.streamed:
-        track = (lambda batches, total: reporter.track(batches, total=total, label="mini-batches", unit="batch")) \
+        track = (lambda steps, total: reporter.track(steps, total=total, label="mini-batches", unit="batch")) \
             if reporter is not None else None
         return minibatch_clusters(space, weights, k=k, seed=options.seed, track=track)
     starts = kmeans_starts(options, int(weights.size))
