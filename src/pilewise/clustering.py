@@ -178,8 +178,7 @@ def weighted_sums(space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels
     """Weighted sum of each group's rows, shape (k, n_dims), in float64; dense spaces go block by block, so a
     float32 space is never copied whole."""
     if sp.issparse(space):
-        indicator = sp.csr_matrix((weights, (labels, np.arange(labels.size))), shape=(k, labels.size))
-        return np.asarray((indicator @ space).toarray())
+        return cluster_sums(sp.csr_matrix(space), weights, labels, k)[0].toarray()
     sums = np.zeros((k, space.shape[1]))
     for begin in range(0, space.shape[0], ROW_BLOCK):
         block_labels = labels[begin : begin + ROW_BLOCK]
@@ -187,6 +186,27 @@ def weighted_sums(space: np.ndarray | sp.csr_matrix, weights: np.ndarray, labels
                                   shape=(k, block_labels.size))
         sums += indicator @ np.asarray(space[begin : begin + ROW_BLOCK], dtype=np.float64)
     return sums
+
+
+def cluster_sums(
+    rows: sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, k: int,
+    *weighings: Callable[[sp.csr_matrix], sp.csr_matrix],
+) -> tuple[sp.csr_matrix, ...]:
+    """Weighted sum per cluster (k x columns, sparse) of the rows, or of each weighing of them, in one pass.
+
+    Each weighing maps a block of rows to the rows to sum (presence, TF-IDF, ...); without any, the rows
+    themselves are summed. Rows go block by block, so no weighing of the whole matrix is ever held.
+    """
+    weighings = weighings or (lambda block: block,)
+    sums = [sp.csr_matrix((k, rows.shape[1])) for _ in weighings]
+    for begin in range(0, rows.shape[0], ROW_BLOCK):
+        block = rows[begin : begin + ROW_BLOCK]
+        block_labels = labels[begin : begin + ROW_BLOCK]
+        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, np.arange(block.shape[0]))),
+                                  shape=(k, block.shape[0]))
+        for i, weigh in enumerate(weighings):
+            sums[i] = sums[i] + indicator @ weigh(block)
+    return tuple(sp.csr_matrix(total) for total in sums)
 
 
 def farthest_row(space: np.ndarray | sp.csr_matrix, clustering: Clustering, weights: np.ndarray) -> int:

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering
+from pilewise.clustering import Clustering, cluster_sums
 from pilewise.kwic import kwic_line
 from pilewise.model import ClusterSummary, Document, KwicLine, Neighbour, QualityScores, TermScore
 from pilewise.stability import StabilityResult
@@ -126,18 +126,12 @@ def cluster_term_totals(
 
     Computed block by block of rows, so no copy of the count matrix is made.
     """
-    df = sp.csr_matrix((k, counts.shape[1]))
-    totals = sp.csr_matrix((k, counts.shape[1]))
-    for begin in range(0, counts.shape[0], ROW_BLOCK):
-        block = counts[begin : begin + ROW_BLOCK]
-        rows = np.arange(block.shape[0])
-        block_labels = labels[begin : begin + ROW_BLOCK]
-        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, rows)),
-                                  shape=(k, block.shape[0]))
-        present = sp.csr_matrix((np.ones(block.nnz), block.indices, block.indptr), shape=block.shape)
-        df = df + indicator @ present
-        totals = totals + indicator @ sp.csr_matrix(block, dtype=np.float64)
-    return sp.csr_matrix(df), sp.csr_matrix(totals)
+    df, totals = cluster_sums(counts, weights, labels, k, _presence, lambda block: sp.csr_matrix(block, dtype=float))
+    return df, totals
+
+
+def _presence(block: sp.csr_matrix) -> sp.csr_matrix:
+    return sp.csr_matrix((np.ones(block.nnz), block.indices, block.indptr), shape=block.shape)
 
 
 class NearestDigest:

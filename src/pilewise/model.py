@@ -22,6 +22,11 @@ class Document:
     metadata: tuple[tuple[str, str], ...] = ()
 
 
+def fingerprint_record(doc: Document) -> bytes:
+    """What a document adds to a collection's SHA-256 fingerprint: its id and text, each ended by NUL."""
+    return f"{doc.doc_id}\0{doc.text}\0".encode("utf-8", "surrogatepass")
+
+
 @dataclass(frozen=True)
 class IngestEntry:
     """One line of the ingest report: a file (or a table row) and what became of it."""

@@ -21,18 +21,18 @@ import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
 from pilewise.dedup import Boilerplate, NearDuplicates, find_boilerplate, near_duplicate_groups, strip_boilerplate
-from pilewise.describe import ROW_BLOCK, Collection, describe_clusters
+from pilewise.describe import Collection, describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.exports import write_exports, write_manifest
 from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
-from pilewise.model import ClusterSummary, Document, Ingested, QualityScores
+from pilewise.model import ClusterSummary, Document, Ingested, QualityScores, fingerprint_record
 from pilewise.names import Naming, carry_names, find_old_names, suggested_name
 from pilewise.options import STREAM_ABOVE_BYTES, RunOptions, check_k, check_k_range, kmeans_starts, validate
-from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, profiles_from_sums
+from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
 from pilewise.progress import Reporter
 from pilewise.quality import assess
-from pilewise.reading import ReadLimits, SourceStream, read_source, stream_source
+from pilewise.reading import ReadLimits, SourceStream, stream_source
 from pilewise.redact import redact_document
 from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
 from pilewise.shelf import DocumentShelf
@@ -48,7 +48,9 @@ from pilewise.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streame
 from pilewise.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
 from pilewise.tables import ColumnChoice
 from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import Vectorized, VectorSettings, tfidf_rows, vectorize
+from pilewise.vectors import Vectorized, VectorSettings, vectorize
+
+REDACTION_OFF = "redaction is off (--no-redact); pages and exports show personal data as written"
 
 
 @dataclass(frozen=True)
@@ -129,13 +131,6 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     reporter = reporter or Reporter(quiet=options.quiet)
     options = replace(options, mode="memory")  # a sweep clusters at every k in memory
     validate(options)
-    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
-    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
-    size = stream_source(options.source, columns, limits).total_bytes
-    if size >= STREAM_ABOVE_BYTES:
-        reporter.warn(f"sweeping {size / 1e6:,.0f} MB of input in memory (about 1 GB per 100,000 short "
-                      "texts); on a collection this large, sweep a sample of a few hundred thousand texts and "
-                      "stream the full run with --k")
     prepared = prepare_collection(options, reporter, k_needed=options.k_min)
     k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
     with reporter.stage("sweeping k"):
@@ -219,15 +214,19 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
     limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
     columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
     source = stream_source(options.source, columns, limits)
-    if options.mode == "stream" or (options.mode == "auto" and source.total_bytes >= STREAM_ABOVE_BYTES):
+    large = source.total_bytes >= STREAM_ABOVE_BYTES
+    if options.mode == "stream" or (options.mode == "auto" and large):
         if work is None:
             raise PilewiseError("streaming is for `pilewise run`; pass --mode memory or run on a sample")
         return _prepare_streamed(options, reporter, source, k_needed, work)
+    if large:
+        reporter.warn(f"reading {source.total_bytes / 1e6:,.0f} MB of input in memory (about 1 GB per 100,000 "
+                      "short texts); on a collection this large, choose k on a sample of a few hundred thousand "
+                      "texts and stream the full run with --mode stream --k N")
     with reporter.stage("reading"):
-        ingested = read_source(
-            options.source, columns, limits,
-            track=lambda paths: reporter.track(paths, total=len(paths), label="reading files"),
-        )
+        documents = list(source.read(track=lambda paths: reporter.track(paths, total=len(paths),
+                                                                          label="reading files")))
+        ingested = source.ingested(documents)
         if len(ingested.documents) > options.max_documents:
             raise PilewiseError(
                 f"found {len(ingested.documents):,} documents, more than --max-documents "
@@ -238,15 +237,12 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         if options.redact:
             ingested, redacted = redact_documents(ingested)
             if redacted:
-                reporter.say("redacted " + ", ".join(f"{n:,} {kind}" for kind, n in redacted.items()))
+                reporter.say(_redaction_line(redacted))
         else:
             redacted = {}
-            reporter.warn("redaction is off (--no-redact); pages and exports show personal data as written")
+            reporter.warn(REDACTION_OFF)
         collection = collect_distinct(ingested.documents)
-        reporter.say(
-            f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
-            f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
-        )
+        reporter.say(_reading_line(ingested, collection))
     check_k(k_needed, int(collection.copies.size))
     with reporter.stage("grouping near-duplicates"):
         texts = [collection.documents[i].text for i in collection.first_doc_of_text]
@@ -289,7 +285,7 @@ def _prepare_streamed(
     reporter.say(f"streaming {source.total_bytes / 1e6:,.0f} MB of input in chunks of "
                  f"{CHUNK_DOCUMENTS:,} documents")
     if not options.redact:
-        reporter.warn("redaction is off (--no-redact); pages and exports show personal data as written")
+        reporter.warn(REDACTION_OFF)
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
                               seed=options.seed)
@@ -304,15 +300,21 @@ def _prepare_streamed(
     for note in ingested.notes:
         reporter.say(note)
     if streamed.redacted:
-        reporter.say("redacted " + ", ".join(f"{n:,} {kind}" for kind, n in streamed.redacted.items()))
+        reporter.say(_redaction_line(streamed.redacted))
     collection = streamed.collection
-    reporter.say(
-        f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
-        f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)"
-    )
+    reporter.say(_reading_line(ingested, collection))
     check_k(k_needed, int(collection.copies.size))
     return Prepared(ingested, collection, analyzer, streamed.vectors, collection.copies.astype(float),
                     streamed.boilerplate, streamed.redacted, streamed.fingerprint, streamed=True)
+
+
+def _redaction_line(redacted: dict[str, int]) -> str:
+    return "redacted " + ", ".join(f"{n:,} {kind}" for kind, n in redacted.items())
+
+
+def _reading_line(ingested: Ingested, collection: Collection) -> str:
+    return (f"{len(ingested.documents):,} documents ({collection.copies.size:,} distinct texts), "
+            f"{len(ingested.skipped()):,} files or rows skipped (see ingest-report.csv)")
 
 
 def _capped(documents: Iterable[Document], limit: int) -> Iterator[Document]:
@@ -361,7 +363,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
         shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
-        profiles = _term_profiles(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+        profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
         columns = metadata_columns(prepared.collection)
         metadata = analyse_metadata(columns, clustering.labels, weights, k=k) if columns else None
     with reporter.stage("explaining"):
@@ -383,20 +385,6 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=prepared.fingerprint, timings=reporter.timings,
     )
-
-
-def _term_profiles(
-    counts: sp.csr_matrix, labels: np.ndarray, weights: np.ndarray, shown: list[str], *, k: int
-) -> tuple[ClusterProfile, ...]:
-    """Stronger and weaker terms per cluster, from TF-IDF sums accumulated over blocks of rows."""
-    idf = np.log((1 + counts.shape[0]) / (1 + np.bincount(counts.indices, minlength=counts.shape[1]))) + 1.0
-    sums = sp.csr_matrix((k, counts.shape[1]))
-    for begin in range(0, counts.shape[0], ROW_BLOCK):
-        block_labels = labels[begin : begin + ROW_BLOCK]
-        indicator = sp.csr_matrix((weights[begin : begin + ROW_BLOCK], (block_labels, np.arange(block_labels.size))),
-                                  shape=(k, block_labels.size))
-        sums = sums + indicator @ tfidf_rows(counts[begin : begin + ROW_BLOCK], idf)
-    return profiles_from_sums(sp.csr_matrix(sums), np.bincount(labels, weights=weights, minlength=k), shown)
 
 
 def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
@@ -511,10 +499,7 @@ def fingerprint(documents: Iterable[Document]) -> str:
     """SHA-256 over every document's id and text, in reading order."""
     digest = hashlib.sha256()
     for doc in documents:
-        digest.update(doc.doc_id.encode("utf-8", "surrogatepass"))
-        digest.update(b"\0")
-        digest.update(doc.text.encode("utf-8", "surrogatepass"))
-        digest.update(b"\0")
+        digest.update(fingerprint_record(doc))
     return "sha256:" + digest.hexdigest()
 
 

@@ -25,6 +25,9 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 
+from pilewise.clustering import cluster_sums
+from pilewise.vectors import tfidf_rows
+
 # Column typing (our choices; see analyse_metadata).
 NUMERIC_SHARE_MIN = 0.95  # share of non-empty cells that must parse as numbers (or be ISO dates)
 CATEGORY_MAX = 50  # at most this many distinct values for a text column to count as categorical
@@ -202,9 +205,18 @@ def term_profiles(
     matrix = sp.csr_matrix(tfidf, dtype=float)
     w = np.asarray(weights, dtype=float)
     lab = _check_clusters(labels, w, k, matrix.shape[0])
-    indicator = sp.csr_matrix((w, (lab, np.arange(lab.size))), shape=(k, lab.size))
-    return profiles_from_sums(sp.csr_matrix(indicator @ matrix), np.bincount(lab, weights=w, minlength=k),
-                              term_labels, top=top, bottom=bottom)
+    (sums,) = cluster_sums(matrix, w, lab, k)
+    return profiles_from_sums(sums, np.bincount(lab, weights=w, minlength=k), term_labels, top=top, bottom=bottom)
+
+
+def term_profiles_from_counts(
+    counts: sp.csr_matrix, labels: np.ndarray, weights: np.ndarray, term_labels: Sequence[str], *, k: int
+) -> tuple[ClusterProfile, ...]:
+    """`term_profiles` of the sublinear TF-IDF of `counts` (the weighting of `vectors.tfidf_weights`), summed
+    block by block of rows, so that large collections need no copy of their TF-IDF matrix."""
+    idf = np.log((1 + counts.shape[0]) / (1 + np.bincount(counts.indices, minlength=counts.shape[1]))) + 1.0
+    (sums,) = cluster_sums(counts, weights, labels, k, lambda block: tfidf_rows(block, idf))
+    return profiles_from_sums(sums, np.bincount(labels, weights=weights, minlength=k), term_labels)
 
 
 def profiles_from_sums(
@@ -212,8 +224,7 @@ def profiles_from_sums(
 ) -> tuple[ClusterProfile, ...]:
     """`term_profiles` from each cluster's weighted sum of TF-IDF rows (k x terms) and weighted size.
 
-    This is what a pass over the rows in blocks can accumulate, so large collections need no copy of
-    their TF-IDF matrix.
+    This is what a pass over the rows in blocks can accumulate (`term_profiles_from_counts`).
     """
     if sums.shape[1] != len(term_labels):
         raise ValueError(f"{len(term_labels)} term labels for a matrix of {sums.shape[1]} terms")

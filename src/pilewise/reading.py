@@ -88,10 +88,19 @@ class SourceStream:
         PilewiseError
             At the end, when no file or row held a document.
         """
+        return self.read(self._track)
+
+    def read(
+        self, track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None = None
+    ) -> Iterator[Document]:
+        """The documents, as iterating does, with `track` wrapping the list of files (e.g. a progress bar).
+
+        For a caller that lists SOURCE first (to learn its size) and only then knows how to show progress.
+        """
         if self._state != "new":
             raise RuntimeError("a SourceStream can be iterated once; call stream_source again")
         self._state = "reading"
-        return self._documents()
+        return self._documents(track)
 
     def ingested(self, documents: Iterable[Document]) -> Ingested:
         """The report of a finished iteration, with `documents` (those it gave, or what became of them)."""
@@ -99,10 +108,12 @@ class SourceStream:
             raise RuntimeError("the ingest report is complete only once the SourceStream has been iterated")
         return Ingested(tuple(documents), tuple(self.entries), tuple(self.notes), self.files_found)
 
-    def _documents(self) -> Iterator[Document]:
+    def _documents(
+        self, track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None
+    ) -> Iterator[Document]:
         found = 0
         paths = [(planned.path, planned.rel) for planned in self._planned]
-        for planned, _ in zip(self._planned, self._track(paths) if self._track else paths, strict=True):
+        for planned, _ in zip(self._planned, track(paths) if track else paths, strict=True):
             start = self.bytes_done
             if planned.skipped is not None:
                 self.entries.append(planned.skipped)

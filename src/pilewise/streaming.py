@@ -33,7 +33,7 @@ from sklearn.utils import murmurhash3_32
 from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate
 from pilewise.describe import Collection
 from pilewise.errors import PilewiseError
-from pilewise.model import Document
+from pilewise.model import Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.redact import redact_document
 from pilewise.shelf import DocumentShelf, shelf_record
@@ -187,7 +187,7 @@ def process_chunk(
     if redact:
         documents = [redact_document(doc, redacted) for doc in documents]
     lines = [shelf_record(doc) for doc in documents]
-    fingerprint = b"".join(f"{doc.doc_id}\0{doc.text}\0".encode("utf-8", "surrogatepass") for doc in documents)
+    fingerprint = b"".join(map(fingerprint_record, documents))
     keys = [hashlib.blake2b(" ".join(doc.text.split()).encode("utf-8", "surrogatepass"), digest_size=16).digest()
             for doc in documents]
     texts = [doc.text for doc in documents]
