@@ -61,6 +61,14 @@ TextColumn = Annotated[str | None, typer.Option("--text-column", help="Table col
 TitleColumn = Annotated[str | None, typer.Option("--title-column", help="Table column holding titles.")]
 IdColumn = Annotated[str | None, typer.Option("--id-column", help="Table column holding document ids.")]
 DateColumn = Annotated[str | None, typer.Option("--date-column", help="Table column holding dates.")]
+Delimiter = Annotated[str | None, typer.Option(
+    "--delimiter", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
+Encoding = Annotated[str | None, typer.Option(
+    "--encoding", help="Text encoding of every file, e.g. cp1252; default: detected.")]
+FollowLinks = Annotated[bool, typer.Option(
+    "--follow-links", help="Also read links whose target lies outside SOURCE.")]
+Boilerplate = Annotated[bool, typer.Option(
+    "--boilerplate/--keep-boilerplate", help="Remove lines repeated across many texts before vectorizing.")]
 StopWords = Annotated[Path | None, typer.Option("--stop-words", help="Extra stop words, one per line.")]
 Stem = Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")]
 PhrasesInSpace = Annotated[bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases.")]
@@ -121,6 +129,10 @@ def run(
     title_column: TitleColumn = None,
     id_column: IdColumn = None,
     date_column: DateColumn = None,
+    delimiter: Delimiter = None,
+    encoding: Encoding = None,
+    follow_links: FollowLinks = False,
+    boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
     phrases_in_space: PhrasesInSpace = False,
@@ -157,6 +169,10 @@ def sweep(
     title_column: TitleColumn = None,
     id_column: IdColumn = None,
     date_column: DateColumn = None,
+    delimiter: Delimiter = None,
+    encoding: Encoding = None,
+    follow_links: FollowLinks = False,
+    boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
     phrases_in_space: PhrasesInSpace = False,

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import codecs
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -58,6 +59,10 @@ class RunOptions:
     title_column: str | None = None
     id_column: str | None = None
     date_column: str | None = None
+    delimiter: str | None = None  # table separator; None: sniffed
+    encoding: str | None = None  # forced text encoding; None: detected
+    follow_links: bool = False  # read links that leave SOURCE
+    boilerplate: bool = True  # remove repeated lines (signatures, footers) before vectorizing
     stop_words_file: Path | None = None
     stem: bool = False
     bigrams_in_space: bool = False
@@ -101,6 +106,15 @@ def validate(options: RunOptions) -> None:
                         "from 0.5 to 1 (1 turns grouping off)")
     if options.min_df is not None and options.min_df < 1:
         problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
+    if options.delimiter is not None and table_delimiter(options.delimiter) is None:
+        problems.append(f"--delimiter {options.delimiter!r} is not one character; pass e.g. --delimiter ';' "
+                        "or --delimiter tab")
+    if options.encoding is not None:
+        try:
+            codecs.lookup(options.encoding)
+        except LookupError:
+            problems.append(f"--encoding {options.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, "
+                            "latin-1, shift_jis")
     if options.method not in METHODS:
         problems.append(f"--method {options.method!r} is not known; use one of: {', '.join(METHODS)}")
     if options.mode not in MODES:
@@ -124,6 +138,13 @@ def validate(options: RunOptions) -> None:
             )
     if problems:
         raise PilewiseError("; ".join(problems))
+
+
+def table_delimiter(given: str) -> str | None:
+    """The one-character separator that --delimiter names ('tab' and '\\t' mean a tab), else None."""
+    named = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|", "space": " "}
+    value = named.get(given.lower(), given)
+    return value if len(value) == 1 and value not in "\r\n\"" else None
 
 
 def kmeans_starts(options: RunOptions, texts: int) -> int:

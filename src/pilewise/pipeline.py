@@ -28,7 +28,15 @@ from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores, fingerprint_record
 from pilewise.names import Naming, carry_names, find_old_names, suggested_name
-from pilewise.options import STREAM_ABOVE_BYTES, RunOptions, check_k, check_k_range, kmeans_starts, validate
+from pilewise.options import (
+    STREAM_ABOVE_BYTES,
+    RunOptions,
+    check_k,
+    check_k_range,
+    kmeans_starts,
+    table_delimiter,
+    validate,
+)
 from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
 from pilewise.progress import Reporter
 from pilewise.quality import assess
@@ -211,8 +219,11 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
     Large collections (--mode stream, or auto above STREAM_ABOVE_BYTES) go chunk by chunk through
     the streaming path, which needs `work`, a scratch folder.
     """
-    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
-    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column)
+    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars,
+                        follow_links=options.follow_links)
+    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column,
+                           delimiter=table_delimiter(options.delimiter) if options.delimiter else None,
+                           encoding=options.encoding)
     source = stream_source(options.source, columns, limits)
     large = source.total_bytes >= STREAM_ABOVE_BYTES
     if options.mode == "stream" or (options.mode == "auto" and large):

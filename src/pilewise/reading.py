@@ -35,6 +35,7 @@ class ReadLimits:
 
     max_file_bytes: int = 100 * 1024 * 1024
     max_doc_chars: int = 1_000_000
+    follow_links: bool = False  # --follow-links: read links whose target lies outside SOURCE
 
 
 class SourceStream:

@@ -46,6 +46,8 @@ class ColumnChoice:
     title: str | None = None
     id: str | None = None
     date: str | None = None
+    delimiter: str | None = None  # --delimiter; None: sniffed from the file
+    encoding: str | None = None  # --encoding; None: detected
 
 
 @dataclass
