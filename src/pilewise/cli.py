@@ -65,6 +65,8 @@ Delimiter = Annotated[str | None, typer.Option(
     "--delimiter", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
 Encoding = Annotated[str | None, typer.Option(
     "--encoding", help="Text encoding of every file, e.g. cp1252; default: detected.")]
+RecordsKey = Annotated[str | None, typer.Option(
+    "--records-key", help="Key of a JSON object that holds the list of records; default: found.")]
 FollowLinks = Annotated[bool, typer.Option(
     "--follow-links", help="Also read links whose target lies outside SOURCE.")]
 Boilerplate = Annotated[bool, typer.Option(
@@ -131,6 +133,7 @@ def run(
     date_column: DateColumn = None,
     delimiter: Delimiter = None,
     encoding: Encoding = None,
+    records_key: RecordsKey = None,
     follow_links: FollowLinks = False,
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
@@ -171,6 +174,7 @@ def sweep(
     date_column: DateColumn = None,
     delimiter: Delimiter = None,
     encoding: Encoding = None,
+    records_key: RecordsKey = None,
     follow_links: FollowLinks = False,
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,

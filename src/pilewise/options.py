@@ -61,6 +61,7 @@ class RunOptions:
     date_column: str | None = None
     delimiter: str | None = None  # table separator; None: sniffed
     encoding: str | None = None  # forced text encoding; None: detected
+    records_key: str | None = None  # key of a JSON object holding the list of records; None: found
     follow_links: bool = False  # read links that leave SOURCE
     boilerplate: bool = True  # remove repeated lines (signatures, footers) before vectorizing
     stop_words_file: Path | None = None

@@ -223,7 +223,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                         follow_links=options.follow_links)
     columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column,
                            delimiter=table_delimiter(options.delimiter) if options.delimiter else None,
-                           encoding=options.encoding)
+                           encoding=options.encoding, records_key=options.records_key)
     source = stream_source(options.source, columns, limits)
     large = source.total_bytes >= STREAM_ABOVE_BYTES
     if options.mode == "stream" or (options.mode == "auto" and large):

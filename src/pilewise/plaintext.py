@@ -7,8 +7,14 @@ import charset_normalizer
 TITLE_CHARS = 120
 
 
-def decode_bytes(raw: bytes) -> tuple[str, str]:
-    """Decode bytes as UTF-8, else as the detected encoding, else Latin-1; say which when not UTF-8."""
+def decode_bytes(raw: bytes, encoding: str | None = None) -> tuple[str, str]:
+    """Decode bytes as UTF-8, else as the detected encoding, else Latin-1; say which when not UTF-8.
+
+    A given `encoding` (--encoding) is used as it is; bytes it cannot decode read as U+FFFD.
+    """
+    if encoding is not None:
+        text = raw.decode(encoding, errors="replace")
+        return (text[1:] if text.startswith("\ufeff") else text), ""
     try:
         return raw.decode("utf-8-sig"), ""
     except UnicodeDecodeError:

@@ -48,6 +48,7 @@ class ColumnChoice:
     date: str | None = None
     delimiter: str | None = None  # --delimiter; None: sniffed from the file
     encoding: str | None = None  # --encoding; None: detected
+    records_key: str | None = None  # --records-key: the key of a JSON object that holds the records
 
 
 @dataclass
