@@ -58,6 +58,34 @@ def _hostile_folder(folder: Path) -> None:
     (folder / "dangling.txt").symlink_to(folder / "nowhere.txt")
     (folder / "self-dir").symlink_to(folder, target_is_directory=True)
     os.mkfifo(folder / "pipe.txt")
+    _mailbox(folder / "mail.mbox")
+    (folder.parent / "outside-target.txt").write_text("text outside SOURCE about spokes", encoding="utf-8")
+    (folder / "outside.txt").symlink_to(folder.parent / "outside-target.txt")
+    handle = os.open(os.path.join(os.fsencode(folder), b"caf\xe9-name.txt"), os.O_WRONLY | os.O_CREAT, 0o644)
+    os.write(handle, b"oven whisk butter under a name that is not UTF-8")
+    os.close(handle)
+
+
+def _mailbox(path: Path) -> None:
+    """Two messages, the second without a text part."""
+    import mailbox
+    from email.message import EmailMessage
+
+    box = mailbox.mbox(path)
+    first = EmailMessage()
+    first["Subject"] = "Saddle"
+    first.set_content("From the shop: the saddle is loose.")
+    second = EmailMessage()
+    second["Subject"] = "Attachment only"
+    second.add_attachment(b"\x00binary", maintype="application", subtype="octet-stream", filename="x.bin")
+    box.add(first)
+    box.add(second)
+    box.close()
+
+
+def _shown(path: Path, folder: Path) -> str:
+    """How a path found is named in the report: bytes that are not UTF-8 as \\xNN (Python codecs docs)."""
+    return os.fsencode(path.relative_to(folder).as_posix()).decode("utf-8", "backslashreplace")
 
 
 @pytest.fixture(scope="module")
@@ -69,7 +97,7 @@ def hostile(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
     ingested = read_source(hostile, ColumnChoice(), ReadLimits())
-    found = {p.relative_to(hostile).as_posix() for p in hostile.iterdir()}
+    found = {_shown(p, hostile) for p in hostile.iterdir()}
     documents = {d.source.split("#")[0] for d in ingested.documents}
     reported = {e.source.split("#")[0] for e in ingested.entries}
     assert found <= documents | reported
@@ -82,6 +110,8 @@ def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
     assert {reasons["loop-a"], reasons["loop-b"], reasons["dangling.txt"]} == {"unreadable"}
     assert reasons["export.csv#row2"] == "empty" and reasons["export.csv#line5"] == "malformed row"
     assert reasons["lines.jsonl#line2"] == "invalid JSON" and reasons["lines.jsonl#line3"] == "invalid JSON"
+    assert reasons["outside.txt"] == "link outside the source"
+    assert reasons["mail.mbox#msg2"] == "empty"
     texts = {d.source: d.text for d in ingested.documents}
     assert "café" in texts["latin1.txt"] and "\u201csmart quotes\u201d" in texts["cp1252.md"]
     assert texts["utf16.txt"] == "whisk butter oven flour dough"
@@ -89,6 +119,8 @@ def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
     assert len(texts["big-line.txt"]) == 1_000_000  # truncated, and said so
     assert any(e.source == "big-line.txt" and e.reason == "truncated" for e in ingested.entries)
     assert texts["export.csv#row1"] == 'soil "quoted" compost,\nover two lines'
+    assert texts["mail.mbox#msg1"] == "From the shop: the saddle is loose."
+    assert texts["caf\\xe9-name.txt"] == "oven whisk butter under a name that is not UTF-8"
 
 
 @pytest.mark.parametrize("mode", ["memory", "stream"])
@@ -101,7 +133,7 @@ def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Pa
     summary = [line for line in result.stderr.splitlines() if "documents in 3 clusters" in line][0]
     assert summary.startswith(f"{len(assignments):,} documents")
     assert f"{len(skipped):,} files or rows skipped" in summary
-    found = {p.relative_to(hostile).as_posix() for p in hostile.iterdir()}
+    found = {_shown(p, hostile) for p in hostile.iterdir()}
     listed = {row["source"].split("#")[0] for row in assignments} | {row["source"].split("#")[0] for row in report}
     assert found <= listed  # nothing lost, in either mode
 
@@ -120,7 +152,7 @@ def test_a_folder_where_every_document_is_identical(tmp_path: Path) -> None:
 
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(payload=st.binary(max_size=3000), suffix=st.sampled_from([".txt", ".md", ".html", ".eml", ".csv", ".jsonl",
-                                                                  ".json", ".tsv"]))
+                                                                  ".json", ".tsv", ".mbox"]))
 def test_random_bytes_never_crash_a_reader(tmp_path: Path, payload: bytes, suffix: str) -> None:
     folder = tmp_path / f"fuzz{abs(hash((payload, suffix)))}"
     folder.mkdir()

@@ -79,7 +79,8 @@ MinDf = Annotated[int | None, typer.Option("--min-df", help="Drop terms in fewer
 MaxDf = Annotated[float, typer.Option("--max-df", help="Drop terms in a larger share of documents.")]
 Method = Annotated[str, typer.Option("--method", help="kmeans, or ward (a tree cut at k).")]
 Resamples = Annotated[int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability.")]
-MaxFileMb = Annotated[float, typer.Option("--max-file-mb", help="Skip files larger than this.")]
+MaxFileMb = Annotated[float, typer.Option(
+    "--max-file-mb", help="Skip text, HTML, mail and .json files larger than this; tables and mailboxes stream.")]
 MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")]
 Redact = Annotated[bool, typer.Option("--redact/--no-redact", help="Hide e-mails, phones, cards, IBANs, IPs.")]
 NearDuplicate = Annotated[float, typer.Option("--near-duplicate", help="Jaccard at which texts group; 1 = off.")]

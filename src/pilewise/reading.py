@@ -8,11 +8,12 @@ from __future__ import annotations
 
 import email
 import email.policy
+import mailbox
 import os
 import re
 import stat
 from collections.abc import Callable, Iterable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from email.message import EmailMessage
 from pathlib import Path
 
@@ -26,6 +27,14 @@ from pilewise.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_tabl
 TEXT_SUFFIXES = {".txt", ".md", ".markdown", ".text"}
 HTML_SUFFIXES = {".html", ".htm", ".xhtml"}
 MAIL_SUFFIXES = {".eml"}
+MBOX_SUFFIXES = {".mbox", ".mbx"}
+# Read row by row or message by message, so --max-file-mb does not apply to them; .json is parsed whole.
+STREAMED_SUFFIXES = {".csv", ".tsv", ".jsonl", ".ndjson", ".parquet"} | MBOX_SUFFIXES
+# The "From " line that starts a message in an mbox file: a sender (or "-", as Thunderbird writes), then a
+# date that starts with the day of the week and holds a time of day ("From MAILER-DAEMON Wed Dec  2 20:08:09
+# 2026"), so that a note starting "From here ..." is not taken for a mailbox.
+_MBOX_FROM_LINE = re.compile(rb"From \S+ +(?:Mon|Tue|Wed|Thu|Fri|Sat|Sun)\b.*\d{1,2}:\d{2}")
+_MBOXO_ESCAPED = re.compile(rb"^>(>*From )", re.MULTILINE)
 _INVISIBLE_TAGS = ("script", "style", "noscript", "template", "nav", "head", "svg", "iframe", "object")
 
 
@@ -113,26 +122,35 @@ class SourceStream:
         self, track: Callable[[list[tuple[Path, str]]], Iterable[tuple[Path, str]]] | None
     ) -> Iterator[Document]:
         found = 0
+        ids = _UniqueIds()
         paths = [(planned.path, planned.rel) for planned in self._planned]
         for planned, _ in zip(self._planned, track(paths) if track else paths, strict=True):
             start = self.bytes_done
+            ids.start_file(planned.rel)
             if planned.skipped is not None:
                 self.entries.append(planned.skipped)
-            elif planned.path.suffix.lower() in TABLE_SUFFIXES:
+            elif planned.kind == "table":
                 report = TableReport()
                 for doc in iter_table(planned.path, planned.rel, self._columns, self._limits.max_doc_chars, report):
                     found += 1
                     self.bytes_done = start + min(report.bytes_read, planned.size)
-                    yield doc
+                    yield ids.unique(doc)
                 self.entries.extend(report.entries)
                 self.notes.extend(report.notes)
+            elif planned.kind == "mbox":
+                progress = _Progress()
+                for doc in _read_mbox(planned, self._limits, self._columns.encoding, self.entries, progress):
+                    found += 1
+                    self.bytes_done = start + min(progress.bytes_read, planned.size)
+                    yield ids.unique(doc)
             else:
-                read, file_entries = _read_file(planned.path, planned.rel, self._limits)
+                read, file_entries = _read_file(planned.path, planned.rel, self._limits, self._columns.encoding)
                 self.entries.extend(file_entries)
                 self.bytes_done = start + planned.size
                 if read is not None:
                     found += 1
-                    yield read
+                    yield ids.unique(read)
+            self.entries.extend(ids.end_file())
             self.bytes_done = start + planned.size
         self._state = "done"
         if not found:
@@ -144,6 +162,50 @@ class SourceStream:
                 f"no documents found in {where} ({reasons or 'nothing readable'}); point SOURCE at "
                 "a folder of .txt/.md/.html/.eml files or a .csv/.tsv/.json/.jsonl/.parquet table"
             )
+
+
+class _UniqueIds:
+    """Makes every doc_id of a run unique, in reading order: a later document whose id was already given is renamed.
+
+    The new id is the file's path and the old id (``exports/2024-02.csv:17``), else the document's
+    source (``exports/2024-02.csv#row17``), else the source with a number (``notes/a.txt~2``). Only
+    the ids are kept (a set of strings, about 150 bytes per document), so this works for a streamed
+    collection too. One note per file counts its renamed ids.
+    """
+
+    def __init__(self) -> None:
+        self._seen: set[str] = set()
+        self._rel = ""
+        self._renamed = 0
+        self._example = ""
+
+    def start_file(self, rel: str) -> None:
+        self._rel, self._renamed, self._example = rel, 0, ""
+
+    def unique(self, doc: Document) -> Document:
+        if doc.doc_id not in self._seen:
+            self._seen.add(doc.doc_id)
+            return doc
+        # a file's own path as its id (a text file) gains nothing from the prefix
+        candidates = [f"{self._rel}:{doc.doc_id}", doc.source] if doc.doc_id != doc.source else []
+        new_id = next((c for c in candidates if c not in self._seen), "")
+        number = 1
+        while not new_id or new_id in self._seen:
+            number += 1
+            new_id = f"{doc.source}~{number}"
+        self._seen.add(new_id)
+        self._renamed += 1
+        if not self._example:
+            self._example = f"{doc.doc_id!r} became {new_id!r}"
+        return replace(doc, doc_id=new_id)
+
+    def end_file(self) -> list[IngestEntry]:
+        """The note of the file just read, if any of its ids were renamed."""
+        if not self._renamed:
+            return []
+        detail = (f"{self._renamed:,} id(s) repeat ids of earlier documents; renamed with the file name, "
+                  f"e.g. {self._example}")
+        return [IngestEntry(self._rel, "note", "repeated id", detail)]
 
 
 def stream_source(
@@ -171,8 +233,14 @@ def stream_source(
     if source.is_file():
         paths = [(source, source.name)]
     else:
-        paths, entries = _discover(source)
-    planned = [_plan(path, rel, limits, single=source.is_file()) for path, rel in paths]
+        paths, entries = _discover(source, follow_links=limits.follow_links)
+    shown_paths = []
+    for path, rel in paths:
+        shown, changed = _shown_name(rel)
+        if changed:
+            entries.append(IngestEntry(shown, "note", "file name", _NAME_NOTE))
+        shown_paths.append((path, shown))
+    planned = [_plan(path, rel, limits, single=source.is_file()) for path, rel in shown_paths]
     files_found = len(paths) + sum(1 for e in entries if e.status == "skipped" and e.reason.startswith("link"))
     total_bytes = sum(p.size for p in planned)
     return SourceStream(planned, entries, files_found, total_bytes, source, columns, limits, track)
@@ -204,13 +272,18 @@ def _reason_counts(entries: list[IngestEntry]) -> str:
     return ", ".join(f"{n} {reason}" for reason, n in sorted(counts.items()))
 
 
-def _discover(folder: Path) -> tuple[list[tuple[Path, str]], list[IngestEntry]]:
-    """List files under `folder`, sorted; symbolic links to folders are reported, not followed."""
+def _discover(folder: Path, *, follow_links: bool) -> tuple[list[tuple[Path, str]], list[IngestEntry]]:
+    """List files under `folder`, sorted; links to folders, and links to files outside it, are reported, not read.
+
+    With `follow_links`, links to files outside `folder` are listed as files. A dangling link or a
+    loop of links is listed too: reading it fails, and that failure is its report line.
+    """
     found: list[tuple[Path, str]] = []
     entries: list[IngestEntry] = []
+    inside = os.path.realpath(folder)
 
     def onerror(err: OSError) -> None:
-        where = _relative(Path(err.filename or folder), folder)
+        where = _shown_name(_relative(Path(err.filename or folder), folder))[0]
         entries.append(IngestEntry(where, "skipped", "unreadable", f"folder cannot be listed: {err.strerror}"))
 
     for root, dirs, files in os.walk(folder, onerror=onerror, followlinks=False):
@@ -218,12 +291,25 @@ def _discover(folder: Path) -> tuple[list[tuple[Path, str]], list[IngestEntry]]:
         dirs.sort()
         for d in list(dirs):
             if (root_path / d).is_symlink():
-                rel = _relative(root_path / d, folder)
+                rel = _shown_name(_relative(root_path / d, folder))[0]
                 entries.append(IngestEntry(rel, "skipped", "link to a folder", "not followed"))
         for name in sorted(files):
             path = root_path / name
+            if not follow_links and path.is_symlink() and _leaves(path, inside):
+                rel = _shown_name(_relative(path, folder))[0]
+                entries.append(IngestEntry(rel, "skipped", "link outside the source",
+                                           "its target lies outside SOURCE; pass --follow-links to read it"))
+                continue
             found.append((path, _relative(path, folder)))
     return found, entries
+
+
+def _leaves(link: Path, inside: str) -> bool:
+    """Whether a link's final target exists and lies outside the folder whose real path is `inside`."""
+    target = os.path.realpath(link)  # never raises on loops (strict=False); then the target does not exist
+    if not os.path.exists(target):
+        return False
+    return os.path.commonpath([inside, target]) != inside
 
 
 def _relative(path: Path, folder: Path) -> str:
@@ -233,14 +319,37 @@ def _relative(path: Path, folder: Path) -> str:
         return path.as_posix()
 
 
+_NAME_NOTE = "the file name is not valid UTF-8; its invalid bytes are shown as \\xNN"
+
+
+def _shown_name(rel: str) -> tuple[str, bool]:
+    """A relative path as valid text, and whether it had to change.
+
+    A name that is not valid UTF-8 comes from os.walk with its bad bytes as lone surrogates, which
+    cannot be written to a UTF-8 file; those bytes are shown as ``\\xNN`` instead. The real Path is
+    kept for reading.
+    """
+    try:
+        rel.encode("utf-8")
+        return rel, False
+    except UnicodeEncodeError:
+        pass
+    try:
+        raw = os.fsencode(rel)
+    except UnicodeEncodeError:  # a surrogate that no file name produced; not expected on POSIX
+        raw = rel.encode("utf-8", "replace")
+    return raw.decode("utf-8", "backslashreplace"), True
+
+
 @dataclass(frozen=True)
 class _Planned:
-    """A file found: the bytes it will be read for, or why it is skipped without reading it."""
+    """A file found: the bytes it will be read for and how ("file", "table", "mbox"), or why it is skipped."""
 
     path: Path
     rel: str
     size: int
     skipped: IngestEntry | None = None
+    kind: str = "file"
 
 
 def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned:
@@ -252,7 +361,8 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned
     if not stat.S_ISREG(info.st_mode):  # pipes, sockets, devices: reading could block or never end
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "not a regular file", "a pipe, socket or device"))
     size = info.st_size
-    if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES | TABLE_SUFFIXES:
+    kind = _kind(path, suffix)
+    if kind is None:
         if single:
             raise PilewiseError(
                 f"{rel!r} is not a supported file type; pass a folder, or a .csv/.tsv/.json/.jsonl/.parquet table"
@@ -260,26 +370,51 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "unsupported", f"file type {suffix or '(none)'}"))
     if size == 0:
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "empty", "0 bytes"))
-    if size > limits.max_file_bytes:
+    # tables and mailboxes are read a row or a message at a time, so their size is no risk to memory
+    if size > limits.max_file_bytes and suffix not in STREAMED_SUFFIXES and kind != "mbox":
         limit_mb = limits.max_file_bytes / 1024 / 1024
         detail = f"{size / 1024 / 1024:.1f} MB; raise --max-file-mb (now {limit_mb:g}) to read it"
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "too large", detail))
-    return _Planned(path, rel, size)
+    return _Planned(path, rel, size, kind=kind)
 
 
-def _read_file(path: Path, rel: str, limits: ReadLimits) -> tuple[Document | None, list[IngestEntry]]:
-    """One text, HTML or mail file: its document, if any, and its report entries."""
+def _kind(path: Path, suffix: str) -> str | None:
+    """How a file is read: "table", "mbox" or "file"; None when it is of no type pilewise reads."""
+    if suffix in TABLE_SUFFIXES:
+        return "table"
+    if suffix in MBOX_SUFFIXES:
+        return "mbox"
+    if suffix in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES:
+        return "file"
+    if suffix == "" and _starts_like_mbox(path):  # mail programs' folders, e.g. Thunderbird's "Inbox"
+        return "mbox"
+    return None
+
+
+def _starts_like_mbox(path: Path) -> bool:
+    try:
+        with path.open("rb") as handle:
+            first = handle.readline(1024)
+    except OSError:
+        return False
+    return _MBOX_FROM_LINE.match(first) is not None
+
+
+def _read_file(
+    path: Path, rel: str, limits: ReadLimits, encoding: str | None = None
+) -> tuple[Document | None, list[IngestEntry]]:
+    """One text, HTML or mail file: its document, if any, and its report entries; `encoding` is --encoding."""
     suffix = path.suffix.lower()
     try:
         raw = path.read_bytes()
     except OSError as err:
         return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
     if suffix in MAIL_SUFFIXES:
-        title, text, note = _read_mail(raw)
+        title, text, note = _read_mail(raw, encoding)
     else:
         if _looks_binary(raw):
             return None, [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")]
-        decoded, note = decode_bytes(raw)
+        decoded, note = decode_bytes(raw, encoding=encoding)
         if suffix in HTML_SUFFIXES:
             title, text = html_to_text(decoded)
         else:
@@ -294,6 +429,68 @@ def _read_file(path: Path, rel: str, limits: ReadLimits) -> tuple[Document | Non
     doc = Document(doc_id=rel, source=rel, title=title.strip() or first_line_title(text), text=text)
     entries.insert(0, IngestEntry(rel, "document", "read", note))
     return doc, entries
+
+
+@dataclass
+class _Progress:
+    """About how many bytes of a file reading has got through."""
+
+    bytes_read: int = 0
+
+
+def _read_mbox(
+    planned: _Planned, limits: ReadLimits, encoding: str | None, entries: list[IngestEntry], progress: _Progress
+) -> Iterator[Document]:
+    """Documents of an mbox file, message by message (``file#msgN``); `entries` gets its report lines.
+
+    The standard library's mailbox.mbox finds the "From " lines in one pass and keeps only their
+    offsets, so one message at a time is held in memory. Body lines that the writer escaped as
+    ">From " (the mboxo/mboxrd convention) lose one ">" again; otherwise they would read as quotes.
+    """
+    rel = planned.rel
+    summary_at = len(entries)
+    made = total = 0
+    try:
+        box = mailbox.mbox(planned.path, create=False)
+    except OSError as err:
+        entries.append(IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err)))
+        return
+    try:
+        for key in box.iterkeys():
+            raw = _MBOXO_ESCAPED.sub(rb"\1", box.get_bytes(key))
+            total += 1
+            progress.bytes_read += len(raw)
+            doc = _mbox_message(raw, f"{rel}#msg{total}", total, limits, encoding, entries)
+            if doc is not None:
+                made += 1
+                yield doc
+    except OSError as err:
+        entries.append(IngestEntry(rel, "skipped", "unreadable",
+                                   f"reading stopped after message {total:,}: {err.strerror or err}"))
+    finally:
+        box.close()
+    if total == 0:
+        entries.insert(summary_at, IngestEntry(rel, "skipped", "empty", "no messages: no line starts with 'From '"))
+    else:
+        entries.insert(summary_at, IngestEntry(rel, "document", "mailbox",
+                                               f"{made:,} of {total:,} messages became documents"))
+
+
+def _mbox_message(
+    raw: bytes, where: str, number: int, limits: ReadLimits, encoding: str | None, entries: list[IngestEntry]
+) -> Document | None:
+    """One message of an mbox file as a document, or None with a report line saying why not."""
+    title, text, note = _read_mail(raw, encoding)
+    text = text.strip()
+    if not text:
+        entries.append(IngestEntry(where, "skipped", "empty", f"message {number:,} has no text ({note or 'blank'})"))
+        return None
+    if note:
+        entries.append(IngestEntry(where, "note", "encoding", note))
+    text, cut = _truncate(text, limits.max_doc_chars)
+    if cut:
+        entries.append(IngestEntry(where, "note", "truncated", cut))
+    return Document(doc_id=where, source=where, title=title.strip() or first_line_title(text), text=text)
 
 
 def _truncate(text: str, max_chars: int) -> tuple[str, str]:
@@ -331,7 +528,7 @@ def html_to_text(markup: str) -> tuple[str, str]:
 _REPLY_INTRO = re.compile(r"^\s*(on .{3,200} wrote:|-+\s*original message\s*-+)\s*$", re.IGNORECASE)
 
 
-def _read_mail(raw: bytes) -> tuple[str, str, str]:
+def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str]:
     msg = email.message_from_bytes(raw, policy=email.policy.default)
     assert isinstance(msg, EmailMessage)
     subject = str(msg.get("subject", "") or "")
@@ -343,9 +540,9 @@ def _read_mail(raw: bytes) -> tuple[str, str, str]:
         content = body_part.get_content()
     except (LookupError, UnicodeDecodeError, AssertionError):
         payload = body_part.get_payload(decode=True)
-        content, note = decode_bytes(payload if isinstance(payload, bytes) else b"")
+        content, note = decode_bytes(payload if isinstance(payload, bytes) else b"", encoding=encoding)
     if not isinstance(content, str):
-        content, note = decode_bytes(bytes(content))
+        content, note = decode_bytes(bytes(content), encoding=encoding)
     if body_part.get_content_type() == "text/html":
         _, content = html_to_text(content)
     return subject, strip_mail_quotes(content), note
