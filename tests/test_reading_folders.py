@@ -316,3 +316,36 @@ def test_max_file_mb_skips_whole_files_but_not_tables_read_row_by_row(tmp_path: 
     for row in rows:
         counts[row["source"].split("#")[0]] = counts.get(row["source"].split("#")[0], 0) + 1
     assert counts == {"big.csv": 60, "big.jsonl": 40, "big.mbox": 8, "small.txt": 1}
+
+
+def test_mail_dates_are_read_from_the_date_header(tmp_path: Path) -> None:
+    """A .eml file's and an mbox message's Date header become the document's date, in ISO 8601.
+
+    The header format is RFC 5322 §3.3 (date-time); the expected values are written out by hand from the
+    headers, independently of the parser. A message without a Date header gets no date (never a guess).
+    """
+    folder = tmp_path / "mail"
+    folder.mkdir()
+    dated = EmailMessage()
+    dated["Subject"] = "Seedling tray cracked"
+    dated["Date"] = "Tue, 14 Nov 2023 22:13:20 +0100"
+    dated.set_content("The tray arrived with a crack along one side.")
+    (folder / "one.eml").write_bytes(bytes(dated))
+    undated = EmailMessage()
+    undated["Subject"] = "Question about watering"
+    undated.set_content("How often should the fern be watered in winter?")
+    (folder / "two.eml").write_bytes(bytes(undated))
+    box = mailbox.mbox(str(folder / "archive.mbox"))
+    boxed = EmailMessage()
+    boxed["Subject"] = "Late delivery"
+    boxed["Date"] = "Fri, 01 Mar 2024 08:00:00 -0500"
+    boxed.set_content("The parcel is a week late.")
+    box.add(boxed)
+    box.flush()
+    box.close()
+    dates = {doc.source: doc.date for doc in read(folder).documents}
+    assert dates == {
+        "one.eml": "2023-11-14T22:13:20+01:00",
+        "two.eml": "",
+        "archive.mbox#msg1": "2024-03-01T08:00:00-05:00",
+    }

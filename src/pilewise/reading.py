@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import email
 import email.policy
+import email.utils
 import mailbox
 import os
 import re
@@ -410,8 +411,9 @@ def _read_file(
     except OSError as err:
         return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
     if suffix in MAIL_SUFFIXES:
-        title, text, note = _read_mail(raw, encoding)
+        title, text, note, date = _read_mail(raw, encoding)
     else:
+        date = ""
         if _looks_binary(raw):
             return None, [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")]
         decoded, note = decode_bytes(raw, encoding=encoding)
@@ -426,7 +428,7 @@ def _read_file(
     text, cut = _truncate(text, limits.max_doc_chars)
     if cut:
         entries.append(IngestEntry(rel, "note", "truncated", cut))
-    doc = Document(doc_id=rel, source=rel, title=title.strip() or first_line_title(text), text=text)
+    doc = Document(doc_id=rel, source=rel, title=title.strip() or first_line_title(text), text=text, date=date)
     entries.insert(0, IngestEntry(rel, "document", "read", note))
     return doc, entries
 
@@ -480,7 +482,7 @@ def _mbox_message(
     raw: bytes, where: str, number: int, limits: ReadLimits, encoding: str | None, entries: list[IngestEntry]
 ) -> Document | None:
     """One message of an mbox file as a document, or None with a report line saying why not."""
-    title, text, note = _read_mail(raw, encoding)
+    title, text, note, date = _read_mail(raw, encoding)
     text = text.strip()
     if not text:
         entries.append(IngestEntry(where, "skipped", "empty", f"message {number:,} has no text ({note or 'blank'})"))
@@ -490,7 +492,7 @@ def _mbox_message(
     text, cut = _truncate(text, limits.max_doc_chars)
     if cut:
         entries.append(IngestEntry(where, "note", "truncated", cut))
-    return Document(doc_id=where, source=where, title=title.strip() or first_line_title(text), text=text)
+    return Document(doc_id=where, source=where, title=title.strip() or first_line_title(text), text=text, date=date)
 
 
 def _truncate(text: str, max_chars: int) -> tuple[str, str]:
@@ -528,14 +530,16 @@ def html_to_text(markup: str) -> tuple[str, str]:
 _REPLY_INTRO = re.compile(r"^\s*(on .{3,200} wrote:|-+\s*original message\s*-+)\s*$", re.IGNORECASE)
 
 
-def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str]:
+def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str, str]:
+    """Subject, body text (quotes and signature dropped), a decoding note and the Date header (ISO 8601)."""
     msg = email.message_from_bytes(raw, policy=email.policy.default)
     assert isinstance(msg, EmailMessage)
     subject = str(msg.get("subject", "") or "")
+    date = mail_date(msg)
     body_part = msg.get_body(preferencelist=("plain", "html"))
     note = ""
     if body_part is None:
-        return subject, "", "no text part"
+        return subject, "", "no text part", date
     try:
         content = body_part.get_content()
     except (LookupError, UnicodeDecodeError, AssertionError):
@@ -545,7 +549,18 @@ def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str]:
         content, note = decode_bytes(bytes(content), encoding=encoding)
     if body_part.get_content_type() == "text/html":
         _, content = html_to_text(content)
-    return subject, strip_mail_quotes(content), note
+    return subject, strip_mail_quotes(content), note, date
+
+
+def mail_date(msg: EmailMessage) -> str:
+    """The Date header as ISO 8601 (RFC 5322 §3.3 date-time), or "" when missing or unparseable."""
+    try:
+        value = msg.get("date")
+        if value is None:
+            return ""
+        return email.utils.parsedate_to_datetime(str(value)).isoformat()
+    except (TypeError, ValueError, IndexError):
+        return ""
 
 
 def strip_mail_quotes(body: str) -> str:
