@@ -220,11 +220,11 @@ def _check_unique(header: list[str], rel: str) -> None:
         return
     names = ", ".join(repr(name) for name in repeated)
     times = "twice" if all(counts[name] == 2 for name in repeated) else "more than once"
-    what = "column" if len(repeated) == 1 else "columns"
-    raise _Unusable(
-        "repeated columns",
-        f"{what} {names} appear {times} in {rel}; rename them in the file so that every column name is unique",
-    )
+    if len(repeated) == 1:
+        message = f"column {names} appears {times} in {rel}; rename one of them"
+    else:
+        message = f"columns {names} appear {times} in {rel}; rename them"
+    raise _Unusable("repeated columns", f"{message} in the file so that every column name is unique")
 
 
 def _text_cells(row: Sequence[Cell], header: list[str], text_at: int, byte_columns: dict[str, None]) -> list[str]:
@@ -303,20 +303,26 @@ def _table_rows(path: Path, rel: str, choice: ColumnChoice, report: TableReport)
 
 
 def _parquet_rows(path: Path, report: TableReport) -> Iterator[Sequence[Cell]]:
-    """Rows of a parquet file, a batch at a time, converted as pandas.read_parquet would."""
+    """Rows of a parquet file, a batch at a time, as Python values (lists, dicts and bytes kept as such).
+
+    Arrow's own conversion (`to_pylist`) rather than pandas': pandas turns integers beside a
+    missing value into floats, also inside nested cells. The index pandas stored is left out,
+    as pandas.read_parquet leaves it out of the columns.
+    """
     import pyarrow.parquet as pq  # an ImportError makes the table unreadable, not the run
 
     size = path.stat().st_size
     with pq.ParquetFile(path) as parquet:
-        # the header without the stored index, as pandas.read_parquet gives it
-        yield [str(c) for c in parquet.schema_arrow.empty_table().to_pandas().columns]
+        schema = parquet.schema_arrow
+        index = {name for name in (schema.pandas_metadata or {}).get("index_columns", []) if isinstance(name, str)}
+        keep = [i for i, name in enumerate(schema.names) if name not in index]
+        yield [schema.names[i] for i in keep]
         total = max(parquet.metadata.num_rows, 1)
         done = 0
         for batch in parquet.iter_batches(batch_size=_PARQUET_BATCH):
             done += batch.num_rows
             report.bytes_read = size * done // total
-            for record in batch.to_pandas().itertuples(index=False, name=None):
-                yield list(record)
+            yield from (list(record) for record in zip(*(batch.column(i).to_pylist() for i in keep), strict=True))
 
 
 def _json_rows(path: Path, rel: str, choice: ColumnChoice, report: TableReport) -> Iterator[Sequence[Cell]]:
