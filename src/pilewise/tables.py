@@ -554,6 +554,7 @@ def _dialect_rows(
             last = first + len(tape.taken) - 1
             detail = f"quote opened on line {first} never closes; lines {first}-{last} read without quoting"
             report.entries.append(IngestEntry(f"{rel}#line{first}", "note", "unclosed quote", detail))
+            report.notes.append(f"{rel}: {detail}")
             rows = [(first + i, _line_cells(line, dialect)) for i, line in enumerate(tape.taken)]
         else:
             rows = [(tape.count + skipped, row)]
