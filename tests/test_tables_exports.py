@@ -156,6 +156,8 @@ class TestQuoting:
         assert notes_of(ingested, "unclosed quote") == [
             "quote opened on line 2 never closes; lines 2-4 read without quoting"
         ]
+        assert "t.csv: 1 quote(s) never close; their lines were read one row per line without quoting (see the " \
+               "unclosed quote lines of the ingest report)" in ingested.notes
 
     def test_a_runaway_quote_closed_by_a_later_field(self, tmp_path: Path) -> None:
         # the quote opening "fine, quoted" would close the runaway one and leave text after it (RFC 4180 §2.7)

@@ -19,7 +19,7 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from itertools import chain, islice
 from pathlib import Path
-from typing import Any, BinaryIO
+from typing import Any, BinaryIO, cast
 
 import numpy as np
 import pandas as pd
@@ -39,6 +39,9 @@ SAMPLE_ROWS = 2000  # rows kept to guess columns from; also the JSON Lines recor
 _SNIFF_BYTES = 1_000_000  # bytes decoded up front to choose a table's encoding
 _DIALECT_CHARS = 64_000  # decoded characters (whole lines) a CSV/TSV separator is sniffed from
 _DIALECT_LINES = 500
+# csv.Sniffer's quote search can take time quadratic in its sample when quotes do not pair up
+# (seconds for 64,000 characters, measured); a few thousand characters are what its docs suggest
+_SNIFFER_CHARS = 8_000
 _SEPARATORS = ",;\t|"  # the candidates sniffed; anything else needs --delimiter
 _RECORDS_DEPTH = 3  # how deep inside a JSON object lists of records are looked for
 _PARQUET_BATCH = 4096
@@ -229,6 +232,8 @@ def _check_unique(header: list[str], rel: str) -> None:
 
 def _text_cells(row: Sequence[Cell], header: list[str], text_at: int, byte_columns: dict[str, None]) -> list[str]:
     """The row's cells as text; the names of columns whose bytes were read as UTF-8 go into `byte_columns`."""
+    if all(type(value) is str for value in row):  # every CSV row, most JSON rows: nothing to convert
+        return cast("list[str]", row)
     cells = []
     for i, value in enumerate(row):
         if isinstance(value, bytes | bytearray | memoryview):
@@ -494,12 +499,24 @@ def _sniff_separator(head: list[str], default: str, *, cut: bool) -> str:
     if scores[default] == best and default == "\t":
         return default  # a .tsv that tabs split evenly is a TSV, whatever else the lines hold
     try:
-        sniffed = csv.Sniffer().sniff("".join(sample), delimiters=_SEPARATORS).delimiter
+        sniffed = csv.Sniffer().sniff(_leading(sample, _SNIFFER_CHARS), delimiters=_SEPARATORS).delimiter
     except csv.Error:
         sniffed = ""
     if sniffed in scores and scores[sniffed] == best:
         return sniffed
     return default if scores[default] == best else max(_SEPARATORS, key=lambda sep: scores[sep])
+
+
+def _leading(lines: list[str], chars: int) -> str:
+    """The first whole lines of `lines` up to about `chars` characters (at least one line)."""
+    taken: list[str] = []
+    size = 0
+    for line in lines:
+        if taken and size + len(line) > chars:
+            break
+        taken.append(line)
+        size += len(line)
+    return "".join(taken)
 
 
 def _evenness(lines: list[str], sep: str) -> float:
@@ -544,6 +561,7 @@ def _dialect_rows(
         raise ValueError("no header row")
     yield header
     width = len(header)
+    runaways = 0
     while True:
         first = tape.count + 1 + skipped
         tape.taken.clear()
@@ -554,7 +572,7 @@ def _dialect_rows(
             last = first + len(tape.taken) - 1
             detail = f"quote opened on line {first} never closes; lines {first}-{last} read without quoting"
             report.entries.append(IngestEntry(f"{rel}#line{first}", "note", "unclosed quote", detail))
-            report.notes.append(f"{rel}: {detail}")
+            runaways += 1
             rows = [(first + i, _line_cells(line, dialect)) for i, line in enumerate(tape.taken)]
         else:
             rows = [(tape.count + skipped, row)]
@@ -566,6 +584,9 @@ def _dialect_rows(
                 report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "malformed row", detail))
                 continue
             yield list(cells)
+    if runaways:  # one line for the user; the report lists every span
+        report.notes.append(f"{rel}: {runaways:,} quote(s) never close; their lines were read one row per line "
+                            "without quoting (see the unclosed quote lines of the ingest report)")
 
 
 def _runaway(lines: list[str], dialect: dict[str, Any], width: int) -> bool:
