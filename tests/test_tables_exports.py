@@ -301,6 +301,18 @@ class TestJson:
         assert dict(doc.metadata) == {"meta": json.dumps({"k": [1, 2]}), "flag": "true"}
 
 
+def test_json_nested_too_deeply_is_a_report_line_not_a_traceback(tmp_path: Path) -> None:
+    """Regression: Python's json parser raises RecursionError (not a ValueError) past its nesting limit."""
+    deep = "[" * 100_000 + "]" * 100_000
+    (tmp_path / "deep.json").write_text(deep, encoding="utf-8")
+    (tmp_path / "deep.jsonl").write_text('{"text": "fine line"}\n' + deep + "\n", encoding="utf-8")
+    ingested = read(tmp_path)
+    assert [d.text for d in ingested.documents] == ["fine line"]
+    assert [(source, reason) for source, reason, _ in skipped_of(ingested)] == [
+        ("deep.json", "unreadable table"), ("deep.jsonl#line2", "invalid JSON")
+    ]
+
+
 class TestParquet:
     def test_binary_list_and_struct_cells(self, tmp_path: Path) -> None:
         pa = pytest.importorskip("pyarrow")

@@ -45,7 +45,8 @@ _SNIFFER_CHARS = 8_000
 _SEPARATORS = ",;\t|"  # the candidates sniffed; anything else needs --delimiter
 _RECORDS_DEPTH = 3  # how deep inside a JSON object lists of records are looked for
 _PARQUET_BATCH = 4096
-_TABLE_ERRORS = (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError, ImportError)
+_TABLE_ERRORS = (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError, ImportError,
+                 RecursionError)  # json's parser raises RecursionError for arrays nested thousands deep
 _LINE_ENDS = re.compile(r"[^\r\n]*(?:\r\n|\r|\n)|[^\r\n]+")
 _SEP_LINE = re.compile(r"sep=(.)", re.IGNORECASE)
 # a TSV field quoted as a whole ("..." with quotes inside doubled), between tabs or line ends; the two
@@ -657,6 +658,10 @@ def _json_records(lines: Iterator[str], rel: str, report: TableReport) -> Iterat
             value = json.loads(line)
         except json.JSONDecodeError as err:
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", err.msg))
+            continue
+        except RecursionError:
+            detail = "nested too deeply"
+            report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", detail))
             continue
         if not isinstance(value, dict):
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", "not an object"))
