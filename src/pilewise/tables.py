@@ -436,29 +436,32 @@ def _delimited_rows(
     csv.field_size_limit(2**31 - 1)  # documents may be long; --max-doc-chars truncates them later
     with path.open("rb") as handle:
         lines = _text_lines(handle, rel, choice.encoding, report, undetected="not UTF-8; decoded as latin-1")
-        head = _first_lines(lines)
+        head, cut = _first_lines(lines)
         skipped = 0
         from_line = None
         if head and (match := _SEP_LINE.fullmatch(head[0].rstrip("\r\n"))):
             from_line = match.group(1)
             del head[0]
             skipped = 1
-        sep, quoting, note = _choose_dialect(head, suffix, choice.delimiter, from_line, cut=len(head) >= _DIALECT_LINES)
+        sep, quoting, note = _choose_dialect(head, suffix, choice.delimiter, from_line, cut=cut)
         if note:
             report.note(rel, "separator", note)
         yield from _dialect_rows(chain(head, lines), sep, quoting, rel, report, skipped)
 
 
-def _first_lines(lines: Iterator[str]) -> list[str]:
-    """Whole lines from the start, up to about _DIALECT_CHARS characters, to sniff the dialect from."""
+def _first_lines(lines: Iterator[str]) -> tuple[list[str], bool]:
+    """Whole lines from the start, up to about _DIALECT_CHARS characters, to sniff the dialect from.
+
+    Also whether the file may go on past them (then the last line may end in the middle of a row).
+    """
     head: list[str] = []
     size = 0
     for line in lines:
         head.append(line)
         size += len(line)
         if size >= _DIALECT_CHARS or len(head) >= _DIALECT_LINES:
-            break
-    return head
+            return head, True
+    return head, False
 
 
 def _choose_dialect(
@@ -509,11 +512,13 @@ def _sniff_separator(head: list[str], default: str, *, cut: bool) -> str:
 
 
 def _leading(lines: list[str], chars: int) -> str:
-    """The first whole lines of `lines` up to about `chars` characters (at least one line)."""
+    """The first whole lines of `lines` up to about `chars` characters (a long first line is cut)."""
     taken: list[str] = []
     size = 0
     for line in lines:
-        if taken and size + len(line) > chars:
+        if size + len(line) > chars:
+            if not taken:
+                return line[:chars]
             break
         taken.append(line)
         size += len(line)
