@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import codecs
+
 import charset_normalizer
 
 TITLE_CHARS = 120
@@ -19,13 +21,34 @@ def decode_bytes(raw: bytes, encoding: str | None = None) -> tuple[str, str]:
         return raw.decode("utf-8-sig"), ""
     except UnicodeDecodeError:
         pass
-    best = charset_normalizer.from_bytes(raw[:1_000_000]).best()
-    if best is not None and best.encoding:
-        try:
-            return raw.decode(best.encoding, errors="replace"), f"not UTF-8; decoded as {best.encoding}"
-        except LookupError:
-            pass
+    detected = detect_encoding(raw[:1_000_000])
+    if detected is not None:
+        return raw.decode(detected, errors="replace"), f"not UTF-8; decoded as {detected}"
     return raw.decode("latin-1"), "not UTF-8 and no encoding detected; decoded as latin-1"
+
+
+def detect_encoding(raw: bytes) -> str | None:
+    """The encoding charset-normalizer finds for `raw` (a codec Python knows), else None.
+
+    Where it scores windows-1252 exactly as well as its first answer (same mess and coherence),
+    windows-1252 is taken: the detector then has no evidence either way and lists the tied code
+    pages by name (cp1250 before cp1252), so "naïve" would read as "naďve". The WHATWG Encoding
+    Standard makes windows-1252 the legacy default that browsers fall back on, and it is what
+    Western spreadsheet exports write, which makes it the better prior for a tie.
+    """
+    matches = charset_normalizer.from_bytes(raw)
+    best = matches.best()
+    if best is None or not best.encoding:
+        return None
+    chosen = str(best.encoding)
+    for match in matches:
+        if match.encoding == "cp1252" and (match.chaos, match.coherence) == (best.chaos, best.coherence):
+            chosen = "cp1252"
+    try:
+        codecs.lookup(chosen)
+    except LookupError:
+        return None
+    return chosen
 
 
 def first_line_title(text: str) -> str:

@@ -132,7 +132,8 @@ class SourceStream:
                 self.entries.append(planned.skipped)
             elif planned.kind == "table":
                 report = TableReport()
-                for doc in iter_table(planned.path, planned.rel, self._columns, self._limits.max_doc_chars, report):
+                for doc in iter_table(planned.path, planned.rel, self._columns, self._limits.max_doc_chars, report,
+                                      single=self._source.is_file()):
                     found += 1
                     self.bytes_done = start + min(report.bytes_read, planned.size)
                     yield ids.unique(doc)
