@@ -167,6 +167,8 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     validate(options)
     with writing_to(options.out):
         claim_site(options.out)
+    with _work_folder(options.out):  # an OUT that cannot be written fails here, before the computation
+        pass
     with ExitStack() as held:
         if options.name:
             held.enter_context(_claim_name(options.out / "sweeps" / options.name, "sweeps", "--name"))
