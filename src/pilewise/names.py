@@ -141,9 +141,7 @@ def earlier_run_problems(runs_folder: Path) -> list[str]:
         manifest_path, names_path = folder / "manifest.json", folder / "names.csv"
         where = f"{runs_folder.name}/{folder.name}"
         if manifest_path.is_file() and _manifest(manifest_path) is None:
-            problems.append(f"{where}/manifest.json is not valid JSON; that run is skipped for names and "
-                            "comparisons (re-run it or delete the folder)")
-            continue
+            continue  # the root index names it (its list and comparisons skip it too)
         problem = names_csv_problem(names_path) if names_path.is_file() else None
         if problem is not None:
             problems.append(f"{where}/names.csv is skipped for carrying names over: {problem}")

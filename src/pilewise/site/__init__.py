@@ -488,7 +488,8 @@ def _run_entry(folder: Path, notes: list[str]) -> dict[str, Any] | None:
             if not isinstance(document, dict):
                 raise ValueError("not a JSON object")
         except (OSError, ValueError) as err:
-            notes.append(f"{where} is not listed: its {name} cannot be read ({err}); re-run it or delete it")
+            notes.append(f"{where}/{name} cannot be read ({err}); that run is not listed or compared; re-run it "
+                         "or delete it")
             return None
         documents.append(document)
     manifest, clusters = documents
