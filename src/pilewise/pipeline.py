@@ -37,7 +37,7 @@ from pilewise.options import (
     table_delimiter,
     validate,
 )
-from pilewise.outfolder import check_replaceable, claim_site, mark, name_lock, site_lock, writing_to
+from pilewise.outfolder import check_replaceable, claim_site, inside, mark, name_lock, site_lock, writing_to
 from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
 from pilewise.progress import Reporter
 from pilewise.quality import assess
@@ -144,6 +144,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
 @contextmanager
 def _claim_name(folder: Path, kind: str, option: str, *, wait: bool = False) -> Iterator[None]:
     """The lock on OUT/kind/NAME, and the check that pilewise may replace what is there."""
+    inside(folder.parent.parent, folder)
     with writing_to(folder.parent.parent), name_lock(folder, what=option, wait=wait):
         check_replaceable(folder, kind, f"pass another {option}")
         yield
