@@ -18,6 +18,7 @@ from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score, homogeneity_completeness_v_measure, normalized_mutual_info_score
 
 from pilewise.errors import PilewiseError
+from pilewise.outfolder import read_spreadsheet_cell, read_spreadsheet_row
 
 # Thresholds of the readings (our choice; see cluster_fates).
 SHARE_MIN = 0.2  # a cluster of the other run is a partner when it holds this share of the members
@@ -414,8 +415,15 @@ def _load_run(folder: Path) -> _Run:
     ids, labels = _read_assignments(folder / "assignments.csv")
     clusters = _read_json(folder / "clusters.json")
     manifest = _read_json(folder / "manifest.json")
+    documents = manifest.get("input", {}).get("documents") if isinstance(manifest.get("input"), dict) else None
+    if isinstance(documents, int) and documents != len(ids):
+        raise PilewiseError(
+            f"{folder / 'assignments.csv'} lists {len(ids):,} documents where manifest.json says {documents:,} "
+            "(cut short or edited); re-run pilewise run to rewrite the folder"
+        )
     headlines: dict[int, str] = {}
-    for record in clusters.get("clusters", []):
+    records = clusters.get("clusters")
+    for record in records if isinstance(records, list) else []:
         if isinstance(record, dict) and isinstance(record.get("id"), int):
             # a name a person gave wins over the exemplar's title
             headlines[record["id"]] = str(record.get("name") or record.get("headline", ""))
@@ -432,7 +440,7 @@ def _read_assignments(path: Path) -> tuple[list[str], list[int]]:
     try:
         with path.open(encoding="utf-8", newline="") as handle:
             reader = csv.reader(handle)
-            header = next(reader, [])
+            header = read_spreadsheet_row(next(reader, []))
             if "doc_id" not in header or "cluster" not in header:
                 raise PilewiseError(f"{path} has no doc_id and cluster columns; pass a run folder written by "
                                     "pilewise run")
@@ -442,9 +450,12 @@ def _read_assignments(path: Path) -> tuple[list[str], list[int]]:
                 if len(row) < width or not row[cluster_col].lstrip("-").isdigit():
                     raise PilewiseError(f"{path} line {line_number} has no cluster number; re-run pilewise run "
                                         "to rewrite the folder")
-                ids.append(row[id_col])
+                ids.append(read_spreadsheet_cell(row[id_col]))
                 labels.append(int(row[cluster_col]))
-    except (OSError, UnicodeDecodeError, csv.Error) as err:
+    except UnicodeDecodeError:
+        raise PilewiseError(f"{path} is not UTF-8 (saved from a spreadsheet?); re-run pilewise run to rewrite "
+                            "the folder") from None
+    except (OSError, csv.Error) as err:
         raise PilewiseError(f"cannot read {path} ({err}); re-run pilewise run to rewrite the folder") from None
     if not ids:
         raise PilewiseError(f"{path} lists no documents; re-run pilewise run to rewrite the folder")

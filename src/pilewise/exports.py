@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 from pilewise.model import ClusterSummary, TermScore
 from pilewise.names import write_names_csv
+from pilewise.outfolder import spreadsheet_cell, spreadsheet_row
 from pilewise.rules import RULES_ROWS
 from pilewise.stability import STABILITY_ROWS
 from pilewise.sweep import RECOMMENDATION_RULE, Sweep
@@ -44,7 +45,7 @@ def write_exports(
     with (folder / "boilerplate.csv").open("w", encoding="utf-8", newline="") as handle:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(["line", "texts"])
-        writer.writerows(result.boilerplate.lines)
+        writer.writerows(spreadsheet_row(line) for line in result.boilerplate.lines)
     if result.sweep is not None:
         _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
 
@@ -111,18 +112,19 @@ def write_document_tables(
     with assignments.open("w", encoding="utf-8", newline="") as handle, \
             cuts_path.open("w", encoding="utf-8", newline="") as cuts_handle:
         writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies", *extra])
+        writer.writerow(spreadsheet_row(
+            ["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies", *extra]))
         cuts_writer = csv.writer(cuts_handle, lineterminator="\n")
         cuts_writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
         numbered = enumerate(docs)
         for i, doc in track(numbered) if track else numbered:
             t = text_of_doc[i]
             meta = dict(doc.metadata)
-            writer.writerow([
+            writer.writerow(spreadsheet_row([
                 doc.doc_id, doc.source, doc.title, int(labels[t]), shown[labels[t]], f"{distances[t]:.6f}", doc.date,
                 int(copies[t]), *(meta.get(name, "") for name in extra),
-            ])
-            cuts_writer.writerow([doc.doc_id, *(int(cuts[k][t]) for k in ks)])
+            ]))
+            cuts_writer.writerow([spreadsheet_cell(doc.doc_id), *(int(cuts[k][t]) for k in ks)])
 
 
 def write_ingest_report(path: Path, result: RunResult) -> None:
@@ -131,7 +133,7 @@ def write_ingest_report(path: Path, result: RunResult) -> None:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(["source", "status", "reason", "detail"])
         for entry in result.ingested.entries:
-            writer.writerow([entry.source, entry.status, entry.reason, entry.detail])
+            writer.writerow(spreadsheet_row([entry.source, entry.status, entry.reason, entry.detail]))
 
 
 def _round(value: float | None, places: int = 6) -> float | None:

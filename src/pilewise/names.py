@@ -14,10 +14,13 @@ import json
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.preprocessing import normalize
+
+from pilewise.outfolder import read_spreadsheet_cell, read_spreadsheet_row, spreadsheet_row
 
 JACCARD_CARRY = 0.5  # a name carries over to the new cluster whose members overlap the old one's this much
 CENTROID_CARRY = 0.8  # cosine of centroids, for new clusters that hold mostly new documents
@@ -73,47 +76,125 @@ def suggested_name(terms: Sequence[str], count: int = 3) -> str:
 
 
 def read_names_csv(path: Path) -> dict[int, tuple[str, str]]:
-    """The clusters of a names.csv that a person named (non-empty name), with their notes."""
+    """The clusters of a names.csv that a person named (non-empty name), with their notes; {} if unreadable."""
+    return _read_names(path)[0]
+
+
+def names_csv_problem(path: Path) -> str | None:
+    """Why a names.csv cannot be read (not UTF-8, no cluster/name columns, ...), or None when it can."""
+    return _read_names(path)[1]
+
+
+def _read_names(path: Path) -> tuple[dict[int, tuple[str, str]], str | None]:
     found: dict[int, tuple[str, str]] = {}
     try:
         with path.open(encoding="utf-8-sig", newline="") as handle:
-            for row in csv.DictReader(handle):
-                name = (row.get("name") or "").strip()
-                cluster = (row.get("cluster") or "").strip()
-                if name and cluster.isdigit():
-                    found[int(cluster)] = (name, (row.get("note") or "").strip())
-    except (OSError, csv.Error, UnicodeDecodeError):
-        return {}
-    return found
+            reader = csv.reader(handle)
+            header = read_spreadsheet_row(next(reader, []))
+            if "cluster" not in header or "name" not in header:
+                return {}, "it has no cluster and name columns"
+            column = {name: header.index(name) for name in NAME_COLUMNS if name in header}
+            for row in reader:
+                cells = read_spreadsheet_row(row)
+
+                def cell(name: str, cells: list[str] = cells) -> str:
+                    i = column.get(name)
+                    return cells[i].strip() if i is not None and i < len(cells) else ""
+
+                if cell("name") and cell("cluster").isdigit():
+                    found[int(cell("cluster"))] = (cell("name"), cell("note"))
+    except UnicodeDecodeError:
+        return {}, "it is not UTF-8 (saved from a spreadsheet?); save it again as CSV UTF-8"
+    except (OSError, csv.Error) as err:
+        return {}, f"cannot read it ({err})"
+    return found, None
 
 
 def find_old_names(runs_folder: Path, *, source: str, fingerprint: str) -> OldNames | None:
-    """The most recently edited names.csv with names, among runs of the same collection."""
-    candidates: list[tuple[float, Path]] = []
-    for folder in sorted(runs_folder.iterdir()) if runs_folder.is_dir() else []:
-        names_path, manifest_path = folder / "names.csv", folder / "manifest.json"
-        if folder.name.startswith(".") or not names_path.is_file() or not manifest_path.is_file():
+    """The most recently edited names.csv with names, among runs of the same collection.
+
+    Runs whose manifest.json, names.csv or assignments.csv cannot be read are skipped (never fatal);
+    `earlier_run_problems` says which and why.
+    """
+    candidates: list[tuple[float, str, Path, dict[int, tuple[str, str]]]] = []
+    for folder in _run_folders(runs_folder):
+        names_path = folder / "names.csv"
+        manifest = _manifest(folder / "manifest.json")
+        if manifest is None or not names_path.is_file():
             continue
-        try:
-            manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
-            continue
-        same = manifest.get("input", {}).get("fingerprint") == fingerprint or \
-            manifest.get("parameters", {}).get("source") == source
-        if same and read_names_csv(names_path):
-            candidates.append((names_path.stat().st_mtime, folder))
-    if not candidates:
+        same = _field(manifest, "input", "fingerprint") == fingerprint or \
+            _field(manifest, "parameters", "source") == source
+        names = read_names_csv(names_path) if same else {}
+        if names:
+            candidates.append((names_path.stat().st_mtime, folder.name, folder, names))
+    for _, _, folder, names in sorted(candidates, key=lambda item: (item[0], item[1]), reverse=True):
+        members, _ = _read_members(folder)
+        if members is not None:
+            return OldNames(folder.name, names, members)
+    return None
+
+
+def earlier_run_problems(runs_folder: Path) -> list[str]:
+    """One line per earlier run whose files name carry-over cannot read; those runs are skipped."""
+    problems: list[str] = []
+    for folder in _run_folders(runs_folder):
+        manifest_path, names_path = folder / "manifest.json", folder / "names.csv"
+        where = f"{runs_folder.name}/{folder.name}"
+        if manifest_path.is_file() and _manifest(manifest_path) is None:
+            continue  # the root index names it (its list and comparisons skip it too)
+        problem = names_csv_problem(names_path) if names_path.is_file() else None
+        if problem is not None:
+            problems.append(f"{where}/names.csv is skipped for carrying names over: {problem}")
+        elif names_path.is_file() and read_names_csv(names_path):
+            _, problem = _read_members(folder)
+            if problem is not None:
+                problems.append(f"{where}/assignments.csv is skipped for carrying names over: {problem}")
+    return problems
+
+
+def _run_folders(runs_folder: Path) -> list[Path]:
+    try:
+        return [f for f in sorted(runs_folder.iterdir()) if f.is_dir() and not f.name.startswith(".")]
+    except OSError:  # no runs yet
+        return []
+
+
+def _manifest(path: Path) -> dict[str, Any] | None:
+    try:
+        document = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
         return None
-    folder = max(candidates, key=lambda item: (item[0], item[1].name))[1]
+    return document if isinstance(document, dict) else None
+
+
+def _field(document: dict[str, Any], section: str, key: str) -> object:
+    part = document.get(section)
+    return part.get(key) if isinstance(part, dict) else None
+
+
+def _read_members(folder: Path) -> tuple[dict[int, frozenset[str]] | None, str | None]:
+    """Members of every cluster from a run's assignments.csv, or None and the reason it cannot be read."""
     members: dict[int, set[str]] = {}
-    with (folder / "assignments.csv").open(encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle)
-        next(reader, None)
-        for row in reader:
-            if len(row) > 3 and row[3].isdigit():
-                members.setdefault(int(row[3]), set()).add(row[0])
-    return OldNames(folder.name, read_names_csv(folder / "names.csv"),
-                    {c: frozenset(ids) for c, ids in members.items()})
+    rows = 0
+    try:
+        with (folder / "assignments.csv").open(encoding="utf-8", newline="") as handle:
+            reader = csv.reader(handle)
+            header = read_spreadsheet_row(next(reader, []))
+            if "doc_id" not in header or "cluster" not in header:
+                return None, "it has no doc_id and cluster columns"
+            id_col, cluster_col = header.index("doc_id"), header.index("cluster")
+            for row in reader:
+                rows += 1
+                if len(row) > max(id_col, cluster_col) and row[cluster_col].isdigit():
+                    members.setdefault(int(row[cluster_col]), set()).add(read_spreadsheet_cell(row[id_col]))
+    except UnicodeDecodeError:
+        return None, "it is not UTF-8 (saved from a spreadsheet?); re-run that run to rewrite it"
+    except (OSError, csv.Error) as err:
+        return None, f"cannot read it ({err})"
+    expected = _field(_manifest(folder / "manifest.json") or {}, "input", "documents")
+    if isinstance(expected, int) and expected != rows:
+        return None, f"it lists {rows:,} documents where manifest.json says {expected:,} (cut short or edited)"
+    return {c: frozenset(ids) for c, ids in members.items()}, None
 
 
 def carry_names(
@@ -217,4 +298,4 @@ def write_names_csv(path: Path, naming: Naming) -> None:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(NAME_COLUMNS)
         for c in naming.clusters:
-            writer.writerow([c.cluster_id, c.suggested, c.name, c.note])
+            writer.writerow(spreadsheet_row([c.cluster_id, c.suggested, c.name, c.note]))

@@ -12,7 +12,7 @@ import shutil
 import tempfile
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -27,7 +27,7 @@ from pilewise.exports import write_exports, write_manifest
 from pilewise.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.levels import Levels, build_levels, centroid_tree
 from pilewise.model import ClusterSummary, Document, Ingested, QualityScores, fingerprint_record
-from pilewise.names import Naming, carry_names, find_old_names, suggested_name
+from pilewise.names import Naming, carry_names, earlier_run_problems, find_old_names, suggested_name
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
     RunOptions,
@@ -37,6 +37,7 @@ from pilewise.options import (
     table_delimiter,
     validate,
 )
+from pilewise.outfolder import check_replaceable, claim_site, inside, mark, name_lock, site_lock, writing_to
 from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
 from pilewise.progress import Reporter
 from pilewise.quality import assess
@@ -101,18 +102,35 @@ class RunOutcome:
 
 
 def run_collection(options: RunOptions, reporter: Reporter | None = None) -> RunOutcome:
-    """Read, cluster and describe SOURCE, then write the run's site and exports under OUT."""
+    """Read, cluster and describe SOURCE, then write the run's site and exports under OUT.
+
+    Before any computation: OUT must be writable and pilewise's own (or new), the run's folder must be
+    pilewise's to replace, and no other run may be writing the same name (an exclusive lock, held until
+    the folder is in place). A name known only after the computation (--k auto) waits for that lock.
+    """
     reporter = reporter or Reporter(quiet=options.quiet)
-    with _work_folder(options.out) as work:
-        result = compute_run(options, reporter, work)
-        try:
-            with reporter.stage("writing site"):
-                run_folder = options.out / "runs" / result.name
-                _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
-                root_index = render_root_index(options.out)
-        finally:
-            if isinstance(result.ingested.documents, DocumentShelf):
-                result.ingested.documents.close()
+    out = options.out
+    validate(options)  # the name is checked before it is used in a path
+    with writing_to(out):
+        claim_site(out)
+    for problem in earlier_run_problems(out / "runs"):
+        reporter.warn(problem)
+    named_early = bool(options.name) or not options.k_auto
+    with ExitStack() as held:
+        if named_early:
+            held.enter_context(_claim_name(out / "runs" / options.run_name(), "runs", "--name"))
+        with _work_folder(out) as work:
+            result = compute_run(options, reporter, work)
+            try:
+                run_folder = out / "runs" / result.name
+                if not named_early:
+                    held.enter_context(_claim_name(run_folder, "runs", "--name", wait=True))
+                with reporter.stage("writing site"), writing_to(out):
+                    _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+                    root_index = render_root_index(out, warn=reporter.warn)
+            finally:
+                if isinstance(result.ingested.documents, DocumentShelf):
+                    result.ingested.documents.close()
     return RunOutcome(
         run_folder=run_folder,
         index_page=run_folder / "index.html",
@@ -121,6 +139,15 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
         skipped=len(result.ingested.skipped()),
         clusters=len(result.clusters),
     )
+
+
+@contextmanager
+def _claim_name(folder: Path, kind: str, option: str, *, wait: bool = False) -> Iterator[None]:
+    """The lock on OUT/kind/NAME, and the check that pilewise may replace what is there."""
+    inside(folder.parent.parent, folder)
+    with writing_to(folder.parent.parent), name_lock(folder, what=option, wait=wait):
+        check_replaceable(folder, kind, f"pass another {option}")
+        yield
 
 
 @dataclass(frozen=True)
@@ -139,27 +166,38 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
     reporter = reporter or Reporter(quiet=options.quiet)
     options = replace(options, mode="memory")  # a sweep clusters at every k in memory
     validate(options)
-    prepared = prepare_collection(options, reporter, k_needed=options.k_min)
-    k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
-    with reporter.stage("sweeping k"):
-        tree = ward_tree(_dense(prepared.vectors.space), prepared.weights, seed=options.seed) \
-            if options.method == "ward" else None
-        result, _ = sweep_k(options, prepared, k_min, k_max, tree, reporter)
-    name = options.name or f"{'ward-' if options.method == 'ward' else ''}k{k_min}-{k_max}"
-    folder = options.out / "sweeps" / name
+    with writing_to(options.out):
+        claim_site(options.out)
+    with _work_folder(options.out):  # an OUT that cannot be written fails here, before the computation
+        pass
+    with ExitStack() as held:
+        if options.name:
+            held.enter_context(_claim_name(options.out / "sweeps" / options.name, "sweeps", "--name"))
+        prepared = prepare_collection(options, reporter, k_needed=options.k_min)
+        k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
+        with reporter.stage("sweeping k"):
+            tree = ward_tree(_dense(prepared.vectors.space), prepared.weights, seed=options.seed) \
+                if options.method == "ward" else None
+            result, _ = sweep_k(options, prepared, k_min, k_max, tree, reporter)
+        name = options.name or f"{'ward-' if options.method == 'ward' else ''}k{k_min}-{k_max}"
+        folder = options.out / "sweeps" / name
+        if not options.name:
+            held.enter_context(_claim_name(folder, "sweeps", "--name", wait=True))
 
-    def write(staging: Path) -> None:
-        render_sweep(staging, result, name=name, in_run=False, source=str(options.source), method=options.method)
+        def write(staging: Path) -> None:
+            render_sweep(staging, result, name=name, in_run=False, source=str(options.source), method=options.method)
 
-    _write_atomically(folder, write)
-    render_root_index(options.out)
+        with writing_to(options.out):
+            _write_atomically(folder, write)
+            render_root_index(options.out, warn=reporter.warn)
     return SweepOutcome(folder / "index.html", result.recommended_k, result.reason)
 
 
 def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
     """Compare two run folders and write the comparison page; returns the page's path.
 
-    The page goes to OUT/compare/A--B/, OUT being the site folder holding both runs unless given.
+    The page goes to OUT/compare/A--B/, OUT being the site folder holding both runs unless given; A and
+    B are the runs' recorded names made safe for a path, and the folder is checked to stay under OUT.
     """
     from pilewise.compare import compare_run_folders, comparison_document
     from pilewise.site import render_comparison
@@ -172,7 +210,10 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
                 f"{str(run_a)!r} and {str(run_b)!r} are not runs of one site folder; pass --out for the comparison"
             )
         out = roots.pop()
-    return render_comparison(out, document)
+    with writing_to(out):
+        claim_site(out)
+        with site_lock(out):
+            return render_comparison(out, document, run_a, run_b)
 
 
 @dataclass(frozen=True)
@@ -192,13 +233,20 @@ class Prepared:
 
 @contextmanager
 def _work_folder(out: Path) -> Iterator[Path]:
-    """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end."""
-    out.mkdir(parents=True, exist_ok=True)
-    for stale in out.glob(".work-*-*"):  # left by a killed run; another run may be using its own right now
-        if not _process_alive(stale.name.split("-")[1]):
-            shutil.rmtree(stale, ignore_errors=True)
-    with tempfile.TemporaryDirectory(prefix=f".work-{os.getpid()}-", dir=out) as folder:
-        yield Path(folder)
+    """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end.
+
+    Made before the computation starts, so that an OUT that cannot be written fails at once.
+    """
+    with writing_to(out):
+        out.mkdir(parents=True, exist_ok=True)
+        for stale in out.glob(".work-*-*"):  # left by a killed run; another run may be using its own right now
+            if not _process_alive(stale.name.split("-")[1]):
+                shutil.rmtree(stale, ignore_errors=True)
+        folder = Path(tempfile.mkdtemp(prefix=f".work-{os.getpid()}-", dir=out))
+    try:
+        yield folder
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
 
 
 def _process_alive(pid: str) -> bool:
@@ -525,21 +573,28 @@ def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
 
 
 def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
-    """Build into a temporary sibling folder and move it into place only when complete."""
+    """Build into a temporary sibling folder, mark it as pilewise's, and move it into place only when complete.
+
+    The caller holds the lock on the target's name, so the staging folders found here were left by a
+    killed run. The move itself happens under the site's lock, so that the root index never sees the
+    name missing.
+    """
     target.parent.mkdir(parents=True, exist_ok=True)
     for stale in target.parent.glob(f".{target.name}-building-*"):  # left by a killed run
         shutil.rmtree(stale, ignore_errors=True)
     staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
     try:
         write(staging)
+        mark(staging)
         os.chmod(staging, 0o755)
-        if target.exists():
-            retired = Path(tempfile.mkdtemp(prefix=f".{target.name}-old-", dir=target.parent))
-            os.replace(target, retired / target.name)
-            os.replace(staging, target)
-            shutil.rmtree(retired, ignore_errors=True)
-        else:
-            os.replace(staging, target)
+        with site_lock(target.parent.parent):
+            if target.exists():
+                retired = Path(tempfile.mkdtemp(prefix=f".{target.name}-old-", dir=target.parent))
+                os.replace(target, retired / target.name)
+                os.replace(staging, target)
+                shutil.rmtree(retired, ignore_errors=True)
+            else:
+                os.replace(staging, target)
     finally:
         if staging.exists():
             shutil.rmtree(staging, ignore_errors=True)

@@ -7,16 +7,27 @@ pages show raw document text, which is never trusted HTML.
 from __future__ import annotations
 
 import json
+import os
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
+from urllib.parse import quote
 
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
 from pilewise.model import ClusterSummary, Document
-from pilewise.redact import display_text
+from pilewise.outfolder import (
+    check_replaceable,
+    inside,
+    mark,
+    owned,
+    safe_name,
+    site_lock,
+    write_text_atomically,
+)
+from pilewise.redact import display_text, redact
 from pilewise.rules import RULES_ROWS
 from pilewise.sweep import Sweep
 
@@ -100,6 +111,9 @@ def render_run_site(
         "resamples": result.stability.resamples,
     }
     cards = [_card(c, result) for c in result.clusters]
+    # ids and file names are the user's own and may hold e-mail addresses or phone numbers: pages show
+    # them redacted, as titles are (exports keep them as they are, so rows can be joined back)
+    shown: Callable[[str], str] = private_text if result.options.redact else str
     _render_levels(folder, result, env, common)
     _write(folder / "tree.html", env.get_template("tree.html").render(
         common, rules=result.rules, root=result.rules.whole_tree, has_metadata=result.metadata is not None,
@@ -109,7 +123,8 @@ def render_run_site(
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
     _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
-        common, entries=result.ingested.entries, notes=result.ingested.notes,
+        common, entries=[{"source": shown(e.source), "status": e.status, "reason": e.reason, "detail": shown(e.detail)}
+                         for e in result.ingested.entries], notes=result.ingested.notes,
         files_found=result.ingested.files_found, boilerplate=result.boilerplate.lines,
         boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up=""))
     members_by_cluster = _members_nearest_first(result)
@@ -118,13 +133,13 @@ def render_run_site(
         pages = max(1, -(-len(members) // MEMBERS_PER_PAGE))
         for page in range(1, pages + 1):
             chunk = members[(page - 1) * MEMBERS_PER_PAGE : page * MEMBERS_PER_PAGE]
-            rows = [_member_row(i, dist, docs[i], with_doc_pages) for i, dist in chunk]
+            rows = [_member_row(i, dist, docs[i], with_doc_pages, shown) for i, dist in chunk]
             context = {
                 "card": card,
                 "cluster": cluster,
-                "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages)
+                "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages, shown)
                             for n in cluster.nearest],
-                "kwic_groups": _kwic_groups(cluster, with_doc_pages),
+                "kwic_groups": _kwic_groups(cluster, with_doc_pages, shown),
                 "members": rows,
                 "profile": result.profiles[cluster.cluster_id],
                 "attributes": _attributes(result, cluster.cluster_id),
@@ -151,7 +166,8 @@ def render_run_site(
             segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
             group = [j for j in members_of_text.get(int(t), []) if j != i][:GROUP_LISTED]
             _write(folder / doc_page_name(i), template.render(
-                common, doc=doc, segments=segments, cluster=result.clusters[cluster_id],
+                common, doc=doc, doc_id=shown(doc.doc_id), source=shown(doc.source), segments=segments,
+                cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id),
                 cluster_title=result.naming.clusters[cluster_id].name or result.clusters[cluster_id].headline,
                 distance=float(result.clustering.distances[t]),
@@ -227,12 +243,12 @@ def _attributes(result: RunResult, c: int) -> dict[str, Any] | None:
     }
 
 
-def _kwic_groups(cluster: ClusterSummary, with_pages: bool) -> list[dict[str, Any]]:
+def _kwic_groups(cluster: ClusterSummary, with_pages: bool, shown: Callable[[str], str]) -> list[dict[str, Any]]:
     """Keyword-in-context lines grouped by term, in the order of the terms."""
     groups: dict[str, list[dict[str, Any]]] = {}
     for line in cluster.kwic:
         href = doc_page_name(line.doc_index) if with_pages else None
-        groups.setdefault(line.term, []).append({"line": line, "href": href})
+        groups.setdefault(line.term, []).append({"line": line, "href": href, "doc_id": shown(line.doc_id)})
     return [{"term": term, "lines": lines} for term, lines in groups.items()]
 
 
@@ -261,9 +277,11 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     }
 
 
-def _member_row(doc_index: int, distance: float, doc: Document, with_pages: bool) -> dict[str, Any]:
+def _member_row(
+    doc_index: int, distance: float, doc: Document, with_pages: bool, shown: Callable[[str], str]
+) -> dict[str, Any]:
     return {
-        "doc_id": doc.doc_id,
+        "doc_id": shown(doc.doc_id),
         "title": doc.title,
         "distance": distance,
         "href": doc_page_name(doc_index) if with_pages else None,
@@ -325,13 +343,25 @@ def _shade(share: float) -> str:
     return f"s{min(5, 1 + int(share * 5))}"
 
 
-def render_comparison(out: Path, document: dict[str, Any]) -> Path:
-    """Write OUT/compare/A--B/ (index.html and compare.json) for a comparison document."""
+def comparison_folder(out: Path, document: dict[str, Any]) -> Path:
+    """OUT/compare/A--B, its parts made safe from the runs' recorded names and checked to stay under OUT."""
     a, b = document["runs"]["a"], document["runs"]["b"]
-    folder = out / "compare" / f"{a}--{b}"
+    return inside(out, out / "compare" / f"{safe_name(str(a))}--{safe_name(str(b))}")
+
+
+def render_comparison(out: Path, document: dict[str, Any], run_a: Path, run_b: Path) -> Path:
+    """Write OUT/compare/A--B/ (index.html and compare.json) for a comparison of the run folders given.
+
+    Links to the runs are relative paths from the comparison's folder to the run folders themselves,
+    so that they hold wherever the runs lie. A comparison folder that pilewise did not write is refused.
+    """
+    folder = comparison_folder(out, document)
+    check_replaceable(folder, "compare", "pass another --out")
     folder.mkdir(parents=True, exist_ok=True)
+    mark(folder)
     (folder / "compare.json").write_text(json.dumps(document, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
     _copy_stylesheet(folder)
+    a, b = document["runs"]["a"], document["runs"]["b"]
     table = document["contingency"]
     rows = [
         {"cluster": row["cluster"], "headline": row["headline"], "size": row["size"],
@@ -339,39 +369,60 @@ def render_comparison(out: Path, document: dict[str, Any]) -> Path:
                                                                                    strict=True)]}
         for row in table["rows"]
     ]
+    # ids are the user's own; the page shows them as the run pages do, with personal data redacted
+    moved = [{**m, "doc_id": private_text(str(m["doc_id"]))} for m in document["moved"]["documents"][:MOVED_ON_PAGE]]
+    homes = [out / "index.html", *(f.resolve().parent.parent / "index.html" for f in (run_a, run_b)
+                                   if f.resolve().parent.name == "runs")]
+    home = next((_href(folder, h) for h in homes if h.is_file()), None)
     page = folder / "index.html"
     _write(page, _environment().get_template("compare.html").render(
         doc=document, a=a, b=b, ka=len(table["clusters_a"]), kb=len(table["clusters_b"]), rows=rows,
-        moved=document["moved"]["documents"][:MOVED_ON_PAGE], caution=CAUTION, css=STYLESHEET, up="../../"))
+        moved=moved, home=home, href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
+        caution=CAUTION, css=STYLESHEET, up=""))
     return page
 
 
-def _auto_comparisons(out: Path, runs: list[dict[str, Any]]) -> list[dict[str, Any]]:
-    """Compare runs of the same collection (equal fingerprints); write their pages and list them."""
+def _href(folder: Path, target: Path) -> str:
+    """A relative link from a page in `folder` to `target`, URL-quoted."""
+    return quote(os.path.relpath(target.resolve(), folder.resolve()).replace(os.sep, "/"))
+
+
+def private_text(text: str) -> str:
+    """`text` as pages show it: e-mail addresses, phone numbers and the like replaced by labels."""
+    return display_text(redact(text).text)
+
+
+def _auto_comparisons(out: Path, runs: list[dict[str, Any]], notes: list[str]) -> list[dict[str, Any]]:
+    """Compare runs of the same collection (equal fingerprints); write their pages and list them.
+
+    A pair that cannot be compared (a damaged or edited export) is left out, with a line in `notes`.
+    """
     from pilewise.compare import compare_run_folders, comparison_document
     from pilewise.errors import PilewiseError
 
     by_input: dict[str, list[dict[str, Any]]] = {}
     for run in runs:
-        by_input.setdefault(run["fingerprint"], []).append(run)
+        if run["fingerprint"]:  # no fingerprint recorded: nothing says two runs read the same input
+            by_input.setdefault(run["fingerprint"], []).append(run)
     pairs: list[dict[str, Any]] = []
     for group in by_input.values():
-        group.sort(key=lambda r: (r["k"] or 0, r["name"]))
+        group.sort(key=lambda r: (r["k"] if isinstance(r["k"], int) else 0, r["name"]))
         if len(group) <= AUTO_COMPARE_RUNS:
             candidates = [(x, y) for i, x in enumerate(group) for y in group[i + 1 :]]
         else:
             candidates = list(zip(group, group[1:], strict=False))
         for run_a, run_b in candidates:
+            folder_a, folder_b = out / "runs" / run_a["name"], out / "runs" / run_b["name"]
             try:
-                document = comparison_document(
-                    compare_run_folders(out / "runs" / run_a["name"], out / "runs" / run_b["name"]))
-            except PilewiseError:
+                document = comparison_document(compare_run_folders(folder_a, folder_b))
+                page = render_comparison(out, document, folder_a, folder_b)
+            except PilewiseError as err:
+                notes.append(f"a comparison was left out: {err}")
                 continue
-            render_comparison(out, document)
             pairs.append({"a": run_a["name"], "b": run_b["name"], "ka": run_a["k"], "kb": run_b["k"],
                           "ari": document["agreement"]["adjusted_rand_index"],
                           "nmi": document["agreement"]["nmi_arithmetic"],
-                          "href": f"compare/{run_a['name']}--{run_b['name']}/index.html"})
+                          "href": _href(out, page)})
     env = _environment()
     for run in runs:
         mine = [{"other": p["b"] if p["a"] == run["name"] else p["a"],
@@ -382,46 +433,88 @@ def _auto_comparisons(out: Path, runs: list[dict[str, Any]]) -> list[dict[str, A
     return pairs
 
 
-def render_root_index(out: Path) -> Path:
-    """(Re)write OUT/index.html listing every run found under OUT/runs, with comparisons of same-input runs."""
-    env = _environment()
+def render_root_index(out: Path, warn: Callable[[str], None] | None = None) -> Path:
+    """(Re)write OUT/index.html listing every run found under OUT/runs, with comparisons of same-input runs.
+
+    Runs, sweeps and comparisons whose files cannot be read are left out and named in a note on the
+    page (and given to `warn`); they never stop the index. One writer at a time (the site's lock).
+    """
     out.mkdir(parents=True, exist_ok=True)
-    runs = []
-    runs_folder = out / "runs"
-    for folder in sorted(runs_folder.iterdir()) if runs_folder.is_dir() else []:
-        manifest_path = folder / "manifest.json"
-        clusters_path = folder / "clusters.json"
-        if folder.name.startswith(".") or not manifest_path.is_file() or not clusters_path.is_file():
-            continue
-        try:
-            manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-            clusters = json.loads(clusters_path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
-            continue
-        runs.append({
-            "name": folder.name,
-            "href": f"runs/{folder.name}/index.html",
-            "k": clusters.get("k"),
-            "documents": clusters.get("documents"),
-            "silhouette": clusters.get("quality", {}).get("silhouette_cosine"),
-            "reading": clusters.get("quality", {}).get("silhouette_reading", ""),
-            "created": manifest.get("created", ""),
-            "source": manifest.get("parameters", {}).get("source", ""),
-            "headlines": [c.get("headline", "") for c in clusters.get("clusters", [])[:3]],
-            "fingerprint": manifest.get("input", {}).get("fingerprint", ""),
-        })
-    comparisons = _auto_comparisons(out, runs)
-    sweeps = []
-    sweeps_folder = out / "sweeps"
-    for folder in sorted(sweeps_folder.iterdir()) if sweeps_folder.is_dir() else []:
-        try:
-            found = json.loads((folder / "sweep.json").read_text(encoding="utf-8"))
-        except (OSError, ValueError):
-            continue
-        sweeps.append({"name": folder.name, "href": f"sweeps/{folder.name}/index.html",
-                       "k": found.get("recommended_k"), "reason": found.get("reason", "")})
-    _copy_stylesheet(out)
-    page = out / "index.html"
-    _write(page, env.get_template("root_index.html").render(
-        runs=runs, comparisons=comparisons, sweeps=sweeps, caution=CAUTION, css=STYLESHEET, up=""))
+    with site_lock(out):
+        notes: list[str] = []
+        runs = [run for folder in _entries(out / "runs") if (run := _run_entry(folder, notes)) is not None]
+        comparisons = _auto_comparisons(out, runs, notes)
+        sweeps = []
+        for folder in _entries(out / "sweeps"):
+            try:
+                found = json.loads((folder / "sweep.json").read_text(encoding="utf-8"))
+                if not isinstance(found, dict):
+                    raise ValueError("not a JSON object")
+            except (OSError, ValueError) as err:
+                notes.append(f"sweeps/{folder.name} is not listed: its sweep.json cannot be read ({err})")
+                continue
+            sweeps.append({"name": folder.name, "href": f"sweeps/{quote(folder.name)}/index.html",
+                           "k": found.get("recommended_k"), "reason": str(found.get("reason", ""))})
+        notes = list(dict.fromkeys(notes))
+        if warn is not None:
+            for note in notes:
+                warn(note)
+        _copy_stylesheet(out)
+        page = out / "index.html"
+        write_text_atomically(page, _environment().get_template("root_index.html").render(
+            runs=runs, comparisons=comparisons, sweeps=sweeps, notes=notes, caution=CAUTION, css=STYLESHEET,
+            up=""))
     return page
+
+
+def _entries(folder: Path) -> list[Path]:
+    """Sub-folders of OUT/runs (or sweeps), without pilewise's hidden staging folders and locks."""
+    try:
+        return [f for f in sorted(folder.iterdir()) if f.is_dir() and not f.name.startswith(".")]
+    except OSError:  # not there yet
+        return []
+
+
+def _run_entry(folder: Path, notes: list[str]) -> dict[str, Any] | None:
+    """The root index's line for one run folder, or None (and a note) when it cannot be read."""
+    where = f"runs/{folder.name}"
+    if not owned(folder, "runs"):
+        notes.append(f"{where} is not listed: pilewise did not write it (no .pilewise marker or manifest.json)")
+        return None
+    documents: list[dict[str, Any]] = []
+    for name in ("manifest.json", "clusters.json"):
+        try:
+            document = json.loads((folder / name).read_text(encoding="utf-8"))
+            if not isinstance(document, dict):
+                raise ValueError("not a JSON object")
+        except (OSError, ValueError) as err:
+            notes.append(f"{where}/{name} cannot be read ({err}); that run is not listed or compared; re-run it "
+                         "or delete it")
+            return None
+        documents.append(document)
+    manifest, clusters = documents
+
+    def part(document: dict[str, Any], key: str) -> dict[str, Any]:
+        value = document.get(key)
+        return value if isinstance(value, dict) else {}
+
+    records = clusters.get("clusters")
+    quality = part(clusters, "quality")
+    return {
+        "name": folder.name,
+        "href": f"runs/{quote(folder.name)}/index.html",
+        "k": clusters.get("k"),
+        "documents": _number(clusters.get("documents")),
+        "silhouette": _number(quality.get("silhouette_cosine")),
+        "reading": str(quality.get("silhouette_reading", "")),
+        "created": str(manifest.get("created", "")),
+        "source": private_text(str(part(manifest, "parameters").get("source", ""))),
+        "headlines": [str(c.get("headline", "")) for c in (records if isinstance(records, list) else [])[:3]
+                      if isinstance(c, dict)],
+        "fingerprint": str(part(manifest, "input").get("fingerprint", "")),
+    }
+
+
+def _number(value: object) -> float | int | None:
+    """A figure read from an export, or None when the file holds something else there."""
+    return value if isinstance(value, int | float) and not isinstance(value, bool) else None
