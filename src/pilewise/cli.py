@@ -3,18 +3,75 @@
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable
+import importlib
+import sys
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Annotated, Any, TypeVar
 
 import typer
+from typer.core import TyperGroup
 
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions
 from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
 from pilewise.sweep import parse_k_range
 
+# click's exception classes, from wherever this typer takes them (recent typer carries its own copy of click)
+_click_errors: Any = importlib.import_module(typer.BadParameter.__module__)
+# click < 8.2 has no such class; bare `pilewise` then already prints the help
+_NoArgsIsHelp: type[Exception] = getattr(_click_errors, "NoArgsIsHelpError", type("_Never", (Exception,), {}))
+
+
+class OneLineErrors(TyperGroup):
+    """The command group, with usage errors as one line and exit status 1, like every other user mistake.
+
+    Click (and typer's boxed rendering of it) reports a wrong command line with a usage block and
+    exit status 2; pilewise keeps one form for every user mistake (docs/usage.md):
+    ``pilewise: error: <what is wrong>; see 'pilewise COMMAND --help'`` and exit status 1. Overriding
+    ``main`` covers both the console script and typer's test runner, which calls ``main`` too.
+    """
+
+    def main(  # type: ignore[override]
+        self, args: Sequence[str] | None = None, prog_name: str | None = None, complete_var: str | None = None,
+        standalone_mode: bool = True, **extra: Any,
+    ) -> Any:
+        try:
+            status = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except _NoArgsIsHelp as err:  # bare `pilewise`: the help, and success
+            typer.echo(err.ctx.get_help())  # type: ignore[attr-defined]
+            status = 0
+        except _click_errors.ClickException as err:
+            given = list(args) if args is not None else sys.argv[1:]
+            typer.echo(usage_error_line(err, list(self.commands), given), err=True)
+            status = 1
+        except typer.Abort:
+            typer.echo("pilewise: interrupted; the previous site is unchanged", err=True)
+            status = 130
+        if not standalone_mode:
+            return status
+        sys.exit(status if isinstance(status, int) else 0)
+
+
+def usage_error_line(err: Any, commands: Sequence[str], args: Sequence[str]) -> str:
+    """Click's message as pilewise's one error line, pointing at the help of the command concerned.
+
+    The command comes from the error's context, else (the parser's errors carry none) from the first
+    argument that names one of `commands`.
+    """
+    message = " ".join(err.format_message().split()).rstrip(".")
+    names: list[str] = []
+    ctx = getattr(err, "ctx", None)
+    while ctx is not None and ctx.parent is not None:  # the root context is the program itself
+        names.insert(0, ctx.info_name)
+        ctx = ctx.parent
+    if not names:
+        names = [arg for arg in args if arg in commands][:1]
+    return f"pilewise: error: {message}; see '{' '.join(['pilewise', *names])} --help'"
+
+
 app = typer.Typer(
+    cls=OneLineErrors,
     add_completion=False,
     no_args_is_help=True,
     help="Cluster a pile of unlabeled text and describe every cluster with evidence, as a static site.",
@@ -94,7 +151,8 @@ def parse_k(text: str) -> tuple[int, bool]:
     """'8' -> (8, False); 'auto' -> (0, True)."""
     if text.strip().lower() == "auto":
         return 0, True
-    if not text.strip().isdigit():
+    # ASCII digits only: str.isdigit() also accepts '²' and other digits that int() refuses
+    if not (text.strip().isascii() and text.strip().isdigit()):
         raise PilewiseError(f"--k {text!r} is neither a number of clusters nor 'auto'; pass --k 8 or --k auto")
     return int(text), False
 
@@ -229,4 +287,8 @@ def demo(
 
 def main() -> None:
     """Entry point of the console script."""
-    app()
+    app(prog_name="pilewise")
+
+
+if __name__ == "__main__":
+    main()
