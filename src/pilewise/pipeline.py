@@ -338,8 +338,8 @@ def _prepare_streamed(
 
 
 def _boilerplate_line(boilerplate: Boilerplate, removed: int, changed: int, kept: int) -> str:
-    line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} texts "
-            "before vectorizing")
+    line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} distinct "
+            "texts before vectorizing")
     return line + (f"; {kept:,} kept where they are most of their text" if kept else "")
 
 
