@@ -160,3 +160,21 @@ def test_main_exits_with_status_one(monkeypatch: pytest.MonkeyPatch, capsys: pyt
     assert stop.value.code == 1
     assert one_error_line(capsys.readouterr().err) == (
         "pilewise: error: No such option: --zzzz; see 'pilewise run --help'")
+
+
+def test_unreadable_k_is_reported_with_the_other_problems(small_folder: Path, tmp_path: Path) -> None:
+    status, _, stderr = run_cli("run", str(small_folder), "--k", "²", "--k-range", "5:2", "--seed", "-3",
+                                "--out", str(tmp_path / "s"))
+    assert status == 1
+    assert one_error_line(stderr) == (
+        "pilewise: error: --k '²' is neither a number of clusters nor 'auto'; pass --k 8 or --k auto; "
+        "--k-range '5:2' must have 2 <= LOW < HIGH, for example 2:20; "
+        "--seed=-3 is out of range; use a value from 0 to 4294967295")
+
+
+def test_sweep_reports_an_unreadable_range_with_the_other_problems(small_folder: Path, tmp_path: Path) -> None:
+    status, _, stderr = run_cli("sweep", str(small_folder), "--k", "x", "--max-df", "3", "--out", str(tmp_path / "s"))
+    assert status == 1
+    assert one_error_line(stderr) == (
+        "pilewise: error: --k 'x' is not of the form LOW:HIGH, for example 2:20; "
+        "--max-df=3.0 is out of range; use a share above 0 and at most 1")

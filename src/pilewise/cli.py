@@ -13,7 +13,7 @@ import typer
 from typer.core import TyperGroup
 
 from pilewise.errors import PilewiseError
-from pilewise.options import RunOptions
+from pilewise.options import RunOptions, validate
 from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
 from pilewise.sweep import parse_k_range
 
@@ -169,10 +169,34 @@ _OPTION_FIELDS = {"stop_words": "stop_words_file", "phrases_in_space": "bigrams_
 _COMMAND_ONLY = {"k", "k_range", "k_value", "k_auto", "k_min", "k_max"}
 
 
-def _run_options(params: dict[str, Any], **fixed: Any) -> RunOptions:
-    """RunOptions from a command's parameters (its locals()), with the k settings it worked out."""
+def _run_options(params: dict[str, Any], *, k: str | None, k_range: tuple[str, str]) -> RunOptions:
+    """RunOptions from a command's parameters (its locals()), with --k (run) and the k range parsed.
+
+    Every problem is reported at once: a --k or range that cannot be read is named together with what
+    `options.validate` finds in the other options.
+    """
     fields = {_OPTION_FIELDS.get(name, name): value for name, value in params.items() if name not in _COMMAND_ONLY}
-    return RunOptions(**fields, **fixed)
+    problems: list[str] = []
+    k_value, k_auto = 0, True
+    if k is not None:
+        try:
+            k_value, k_auto = parse_k(k)
+        except PilewiseError as err:
+            problems.append(str(err))
+            k_value, k_auto = 2, False
+    try:
+        k_min, k_max = parse_range(*k_range)
+    except PilewiseError as err:
+        problems.append(str(err))
+        k_min, k_max = 2, 20
+    options = RunOptions(**fields, k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max)
+    if problems:
+        try:
+            validate(options)
+        except PilewiseError as err:
+            problems.append(str(err))
+        raise PilewiseError("; ".join(problems))
+    return options
 
 
 @app.command()
@@ -211,9 +235,7 @@ def run(
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
-    k_value, k_auto = parse_k(k)
-    k_min, k_max = parse_range(k_range, "--k-range")
-    options = _run_options(locals(), k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max)
+    options = _run_options(locals(), k=k, k_range=(k_range, "--k-range"))
     _print_outcome(run_collection(options))
 
 
@@ -249,8 +271,7 @@ def sweep(
     quiet: QuietOption = False,
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
-    k_min, k_max = parse_range(k, "--k")
-    outcome = sweep_collection(_run_options(locals(), k=0, k_auto=True, k_min=k_min, k_max=k_max))
+    outcome = sweep_collection(_run_options(locals(), k=None, k_range=(k, "--k")))
     typer.echo(f"recommended {outcome.reason}", err=True)
     typer.echo(str(outcome.page))
 
