@@ -3,18 +3,75 @@
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable
+import importlib
+import sys
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Annotated, Any, TypeVar
 
 import typer
+from typer.core import TyperGroup
 
 from pilewise.errors import PilewiseError
-from pilewise.options import RunOptions
+from pilewise.options import RunOptions, validate
 from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
 from pilewise.sweep import parse_k_range
 
+# click's exception classes, from wherever this typer takes them (recent typer carries its own copy of click)
+_click_errors: Any = importlib.import_module(typer.BadParameter.__module__)
+# click < 8.2 has no such class; bare `pilewise` then already prints the help
+_NoArgsIsHelp: type[Exception] = getattr(_click_errors, "NoArgsIsHelpError", type("_Never", (Exception,), {}))
+
+
+class OneLineErrors(TyperGroup):
+    """The command group, with usage errors as one line and exit status 1, like every other user mistake.
+
+    Click (and typer's boxed rendering of it) reports a wrong command line with a usage block and
+    exit status 2; pilewise keeps one form for every user mistake (docs/usage.md):
+    ``pilewise: error: <what is wrong>; see 'pilewise COMMAND --help'`` and exit status 1. Overriding
+    ``main`` covers both the console script and typer's test runner, which calls ``main`` too.
+    """
+
+    def main(  # type: ignore[override]
+        self, args: Sequence[str] | None = None, prog_name: str | None = None, complete_var: str | None = None,
+        standalone_mode: bool = True, **extra: Any,
+    ) -> Any:
+        try:
+            status = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except _NoArgsIsHelp as err:  # bare `pilewise`: the help, and success
+            typer.echo(err.ctx.get_help())  # type: ignore[attr-defined]
+            status = 0
+        except _click_errors.ClickException as err:
+            given = list(args) if args is not None else sys.argv[1:]
+            typer.echo(usage_error_line(err, list(self.commands), given), err=True)
+            status = 1
+        except typer.Abort:
+            typer.echo("pilewise: interrupted; the previous site is unchanged", err=True)
+            status = 130
+        if not standalone_mode:
+            return status
+        sys.exit(status if isinstance(status, int) else 0)
+
+
+def usage_error_line(err: Any, commands: Sequence[str], args: Sequence[str]) -> str:
+    """Click's message as pilewise's one error line, pointing at the help of the command concerned.
+
+    The command comes from the error's context, else (the parser's errors carry none) from the first
+    argument that names one of `commands`.
+    """
+    message = " ".join(err.format_message().split()).rstrip(".")
+    names: list[str] = []
+    ctx = getattr(err, "ctx", None)
+    while ctx is not None and ctx.parent is not None:  # the root context is the program itself
+        names.insert(0, ctx.info_name)
+        ctx = ctx.parent
+    if not names:
+        names = [arg for arg in args if arg in commands][:1]
+    return f"pilewise: error: {message}; see '{' '.join(['pilewise', *names])} --help'"
+
+
 app = typer.Typer(
+    cls=OneLineErrors,
     add_completion=False,
     no_args_is_help=True,
     help="Cluster a pile of unlabeled text and describe every cluster with evidence, as a static site.",
@@ -95,7 +152,8 @@ def parse_k(text: str) -> tuple[int, bool]:
     """'8' -> (8, False); 'auto' -> (0, True)."""
     if text.strip().lower() == "auto":
         return 0, True
-    if not text.strip().isdigit():
+    # ASCII digits only: str.isdigit() also accepts '²' and other digits that int() refuses
+    if not (text.strip().isascii() and text.strip().isdigit()):
         raise PilewiseError(f"--k {text!r} is neither a number of clusters nor 'auto'; pass --k 8 or --k auto")
     return int(text), False
 
@@ -112,10 +170,34 @@ _OPTION_FIELDS = {"stop_words": "stop_words_file", "phrases_in_space": "bigrams_
 _COMMAND_ONLY = {"k", "k_range", "k_value", "k_auto", "k_min", "k_max"}
 
 
-def _run_options(params: dict[str, Any], **fixed: Any) -> RunOptions:
-    """RunOptions from a command's parameters (its locals()), with the k settings it worked out."""
+def _run_options(params: dict[str, Any], *, k: str | None, k_range: tuple[str, str]) -> RunOptions:
+    """RunOptions from a command's parameters (its locals()), with --k (run) and the k range parsed.
+
+    Every problem is reported at once: a --k or range that cannot be read is named together with what
+    `options.validate` finds in the other options.
+    """
     fields = {_OPTION_FIELDS.get(name, name): value for name, value in params.items() if name not in _COMMAND_ONLY}
-    return RunOptions(**fields, **fixed)
+    problems: list[str] = []
+    k_value, k_auto = 0, True
+    if k is not None:
+        try:
+            k_value, k_auto = parse_k(k)
+        except PilewiseError as err:
+            problems.append(str(err))
+            k_value, k_auto = 2, False
+    try:
+        k_min, k_max = parse_range(*k_range)
+    except PilewiseError as err:
+        problems.append(str(err))
+        k_min, k_max = 2, 20
+    options = RunOptions(**fields, k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max)
+    if problems:
+        try:
+            validate(options)
+        except PilewiseError as err:
+            problems.append(str(err))
+        raise PilewiseError("; ".join(problems))
+    return options
 
 
 @app.command()
@@ -154,9 +236,7 @@ def run(
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
-    k_value, k_auto = parse_k(k)
-    k_min, k_max = parse_range(k_range, "--k-range")
-    options = _run_options(locals(), k=k_value, k_auto=k_auto, k_min=k_min, k_max=k_max)
+    options = _run_options(locals(), k=k, k_range=(k_range, "--k-range"))
     _print_outcome(run_collection(options))
 
 
@@ -192,8 +272,7 @@ def sweep(
     quiet: QuietOption = False,
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
-    k_min, k_max = parse_range(k, "--k")
-    outcome = sweep_collection(_run_options(locals(), k=0, k_auto=True, k_min=k_min, k_max=k_max))
+    outcome = sweep_collection(_run_options(locals(), k=None, k_range=(k, "--k")))
     typer.echo(f"recommended {outcome.reason}", err=True)
     typer.echo(str(outcome.page))
 
@@ -230,4 +309,8 @@ def demo(
 
 def main() -> None:
     """Entry point of the console script."""
-    app()
+    app(prog_name="pilewise")
+
+
+if __name__ == "__main__":
+    main()

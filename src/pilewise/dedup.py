@@ -35,6 +35,10 @@ PREFILTER_MISS = 1e-9  # most probability that the signature prefilter drops a p
 BOILERPLATE_MIN_SHARE = 0.05
 BOILERPLATE_MIN_DOCS = 5
 BOILERPLATE_MIN_CHARS = 20
+# a boilerplate line in at least this share of the texts never counts as a text's content (see strip_boilerplate)
+BOILERPLATE_WIDESPREAD_SHARE = 0.5
+# stripping leaves a text at least this share of its content characters (see strip_boilerplate)
+BOILERPLATE_KEEP_SHARE = 0.5
 
 _WORD = re.compile(r"\w+")
 _DIGITS = re.compile(r"\d+")
@@ -363,16 +367,30 @@ class Boilerplate:
     """Lines that recur in many documents, to be removed before vectorizing.
 
     ``lines`` holds each normalized line (whitespace collapsed, lower-cased) with the number of
-    documents it appears in, most frequent first (ties in alphabetical order).
+    documents it appears in, most frequent first (ties in alphabetical order). ``texts`` is the number
+    of texts they were counted in (0: unknown, every line is then taken as widespread).
     """
 
     lines: tuple[tuple[str, int], ...]
     min_share: float
+    texts: int = 0
 
     @cached_property
     def normalized(self) -> frozenset[str]:
         """The normalized lines, for matching."""
         return frozenset(line for line, _ in self.lines)
+
+    @cached_property
+    def count_of(self) -> dict[str, int]:
+        """Texts holding each normalized line."""
+        return dict(self.lines)
+
+    def widespread(self, line: str) -> bool:
+        """Whether a boilerplate line is in at least BOILERPLATE_WIDESPREAD_SHARE of the texts."""
+        return self.count_of[line] >= BOILERPLATE_WIDESPREAD_SHARE * self.texts
+
+
+NO_BOILERPLATE = Boilerplate((), BOILERPLATE_MIN_SHARE)
 
 
 def normalize_line(line: str) -> str:
@@ -438,23 +456,72 @@ def find_boilerplate(
     needed = max(min_docs, math.ceil(round(min_share * len(texts), 9)))
     lines = sorted(((line, count) for line, count in counts.items() if count >= needed),
                    key=lambda item: (-item[1], item[0]))
-    return Boilerplate(tuple(lines), float(min_share))
+    return Boilerplate(tuple(lines), float(min_share), len(texts))
 
 
 def strip_boilerplate(text: str, boilerplate: Boilerplate) -> str:
-    """`text` without the lines whose normalized form is boilerplate; every other line is kept as it was.
+    """`text` without its boilerplate lines, except those that are most of what the text says.
+
+    The rule (docs/method.md, "Boilerplate lines"): a text's content characters are its non-space
+    characters outside widespread boilerplate lines (lines in at least half of the texts, which no
+    text can be about: a word in more than half of the documents is dropped by the default --max-df).
+    Every boilerplate line is removed, unless that would leave the text less than half of its content
+    characters; then its least widespread boilerplate lines (a templated body found in one theme's
+    share of the texts, not the signature found in all) are kept, one at a time, until at least half
+    is left. A text made only of boilerplate lines is kept whole: stripping never empties a text.
 
     Lines keep their own line breaks. A kept line ending in a lone carriage return that comes to stand
     before a line starting with a line feed gets the line feed added, so that the two stay two lines.
     """
-    remove = boilerplate.normalized
-    if not remove:
+    if not boilerplate.lines:
+        return text
+    lines = text.splitlines(keepends=True)
+    keys = [normalize_line(line) for line in lines]
+    found = [i for i, key in enumerate(keys) if key in boilerplate.normalized]
+    if not found:
+        return text
+    size = [len("".join(line.split())) for line in lines]
+    removed = set(found)
+    content = sum(n for i, n in enumerate(size) if i not in removed or not boilerplate.widespread(keys[i]))
+    left = sum(n for i, n in enumerate(size) if i not in removed)
+    # least widespread first; among equals the longer line, then the earlier one
+    for i in sorted(removed, key=lambda i: (boilerplate.count_of[keys[i]], -size[i], i)):
+        if left >= BOILERPLATE_KEEP_SHARE * content or boilerplate.widespread(keys[i]):
+            break
+        removed.discard(i)
+        left += size[i]
+    if left == 0:
         return text
     kept: list[str] = []
-    for line in text.splitlines(keepends=True):
-        if normalize_line(line) in remove:
+    for i, line in enumerate(lines):
+        if i in removed:
             continue
         if kept and kept[-1].endswith("\r") and line.startswith("\n"):
             kept[-1] += "\n"
         kept.append(line)
     return "".join(kept)
+
+
+@dataclass(frozen=True)
+class Stripped:
+    """Texts after `strip_texts`, with what was removed."""
+
+    texts: list[str]
+    lines_removed: int  # boilerplate lines removed, over all texts
+    texts_changed: int  # texts that lost at least one line
+    lines_kept: int  # boilerplate lines kept because they are most of their text's content
+
+
+def strip_texts(texts: Sequence[str], boilerplate: Boilerplate) -> Stripped:
+    """`strip_boilerplate` on every text, counting the lines removed and kept."""
+    out: list[str] = []
+    removed = changed = kept = 0
+    for text in texts:
+        stripped = strip_boilerplate(text, boilerplate)
+        out.append(stripped)
+        before = sum(normalize_line(line) in boilerplate.normalized for line in text.splitlines())
+        after = sum(normalize_line(line) in boilerplate.normalized for line in stripped.splitlines())
+        removed += before - after
+        kept += after
+        changed += before > after
+    return Stripped(out, removed, changed, kept)

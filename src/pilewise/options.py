@@ -18,6 +18,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
     "top_terms": (1, 100, "--top-terms"),
     "resamples": (1, 1000, "--resamples"),
     "workers": (0, 256, "--workers"),
+    "seed": (0, 2**32 - 1, "--seed"),  # numpy's RandomState takes seeds from 0 to 2**32 - 1
 }
 
 
@@ -99,7 +100,7 @@ def validate(options: RunOptions) -> None:
         if attr == "k" and options.k_auto:
             continue
         if not low <= value <= high:
-            problems.append(f"{flag}={value} is out of range; use a value from {low:g} to {high:g}")
+            problems.append(f"{flag}={value} is out of range; use a value from {_limit(low)} to {_limit(high)}")
     if not 0.0 < options.max_df <= 1.0:
         problems.append(f"--max-df={options.max_df} is out of range; use a share above 0 and at most 1")
     if not 0.5 <= options.near_duplicate <= 1.0:
@@ -139,6 +140,11 @@ def validate(options: RunOptions) -> None:
             )
     if problems:
         raise PilewiseError("; ".join(problems))
+
+
+def _limit(value: float) -> str:
+    """A limit as written in a message: whole numbers in full (4294967295, not 4.29497e+09)."""
+    return str(int(value)) if float(value).is_integer() else f"{value:g}"
 
 
 def table_delimiter(given: str) -> str | None:

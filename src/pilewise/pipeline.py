@@ -20,7 +20,14 @@ import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
-from pilewise.dedup import Boilerplate, NearDuplicates, find_boilerplate, near_duplicate_groups, strip_boilerplate
+from pilewise.dedup import (
+    NO_BOILERPLATE,
+    Boilerplate,
+    NearDuplicates,
+    find_boilerplate,
+    near_duplicate_groups,
+    strip_texts,
+)
 from pilewise.describe import Collection, describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.exports import write_exports, write_manifest
@@ -60,6 +67,7 @@ from pilewise.text import Analyzer, load_stop_words
 from pilewise.vectors import Vectorized, VectorSettings, vectorize
 
 REDACTION_OFF = "redaction is off (--no-redact); pages and exports show personal data as written"
+BOILERPLATE_OFF = "boilerplate removal is off (--keep-boilerplate); every line of every text is vectorized"
 
 
 @dataclass(frozen=True)
@@ -300,15 +308,20 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         else:
             redacted = {}
             reporter.warn(REDACTION_OFF)
+        if not options.boilerplate:
+            ingested = replace(ingested, notes=(*ingested.notes, BOILERPLATE_OFF))
+            reporter.say(BOILERPLATE_OFF)
         collection = collect_distinct(ingested.documents)
         reporter.say(_reading_line(ingested, collection))
     check_k(k_needed, int(collection.copies.size))
     with reporter.stage("grouping near-duplicates"):
         texts = [collection.documents[i].text for i in collection.first_doc_of_text]
-        boilerplate = find_boilerplate(texts)
+        boilerplate = find_boilerplate(texts) if options.boilerplate else NO_BOILERPLATE
         if boilerplate.lines:
-            texts = [strip_boilerplate(text, boilerplate) for text in texts]
-            reporter.say(f"removed {len(boilerplate.lines)} boilerplate line(s) before vectorizing")
+            stripped = strip_texts(texts, boilerplate)
+            texts = stripped.texts
+            reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
+                                           stripped.lines_kept))
         near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed) \
             if options.near_duplicate < 1.0 else None
         if near is not None and near.representative.size < len(texts):
@@ -327,6 +340,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         vectors = vectorize(
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
+            copies=collection.copies,
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
                     redacted, fingerprint(ingested.documents))
@@ -351,13 +365,17 @@ def _prepare_streamed(
     streamed = prepare_streamed(
         _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
         workers=options.workers or default_workers(), reporter=reporter, progress=lambda: source.bytes_done,
-        total_bytes=source.total_bytes,
+        total_bytes=source.total_bytes, boilerplate=options.boilerplate,
     )
     streaming_note = ("streaming mode: read and vectorized in chunks; terms counted in a hashed vocabulary; "
                       "near-duplicate grouping not done (exact duplicates are)")
-    ingested = Ingested(streamed.shelf, tuple(source.entries), (*source.notes, streaming_note), source.files_found)
+    notes = (*source.notes, streaming_note, *(() if options.boilerplate else (BOILERPLATE_OFF,)))
+    ingested = Ingested(streamed.shelf, tuple(source.entries), notes, source.files_found)
     for note in ingested.notes:
         reporter.say(note)
+    if streamed.boilerplate.lines:
+        reporter.say(f"{len(streamed.boilerplate.lines)} boilerplate line(s) found in the first chunk; removed "
+                     "before vectorizing, except where they are most of their text")
     if streamed.redacted:
         reporter.say(_redaction_line(streamed.redacted))
     collection = streamed.collection
@@ -365,6 +383,12 @@ def _prepare_streamed(
     check_k(k_needed, int(collection.copies.size))
     return Prepared(ingested, collection, analyzer, streamed.vectors, collection.copies.astype(float),
                     streamed.boilerplate, streamed.redacted, streamed.fingerprint, streamed=True)
+
+
+def _boilerplate_line(boilerplate: Boilerplate, removed: int, changed: int, kept: int) -> str:
+    line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} distinct "
+            "texts before vectorizing")
+    return line + (f"; {kept:,} kept where they are most of their text" if kept else "")
 
 
 def _redaction_line(redacted: dict[str, int]) -> str:

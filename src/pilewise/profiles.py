@@ -26,7 +26,7 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 
 from pilewise.clustering import cluster_sums
-from pilewise.vectors import tfidf_rows
+from pilewise.vectors import document_frequency, smooth_idf, tfidf_rows
 
 # Column typing (our choices; see analyse_metadata).
 NUMERIC_SHARE_MIN = 0.95  # share of non-empty cells that must parse as numbers (or be ISO dates)
@@ -213,8 +213,9 @@ def term_profiles_from_counts(
     counts: sp.csr_matrix, labels: np.ndarray, weights: np.ndarray, term_labels: Sequence[str], *, k: int
 ) -> tuple[ClusterProfile, ...]:
     """`term_profiles` of the sublinear TF-IDF of `counts` (the weighting of `vectors.tfidf_weights`), summed
-    block by block of rows, so that large collections need no copy of their TF-IDF matrix."""
-    idf = np.log((1 + counts.shape[0]) / (1 + np.bincount(counts.indices, minlength=counts.shape[1]))) + 1.0
+    block by block of rows, so that large collections need no copy of their TF-IDF matrix. The idf counts
+    every document: each row as often as its weight (its copies)."""
+    idf = smooth_idf(document_frequency(counts, weights), float(np.sum(weights)))
     (sums,) = cluster_sums(counts, weights, labels, k, lambda block: tfidf_rows(block, idf))
     return profiles_from_sums(sums, np.bincount(labels, weights=weights, minlength=k), term_labels)
 

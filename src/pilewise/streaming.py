@@ -30,7 +30,7 @@ from sklearn.decomposition import TruncatedSVD
 from sklearn.preprocessing import normalize
 from sklearn.utils import murmurhash3_32
 
-from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate
+from pilewise.dedup import NO_BOILERPLATE, Boilerplate, find_boilerplate, strip_boilerplate
 from pilewise.describe import Collection
 from pilewise.errors import PilewiseError
 from pilewise.model import Document, fingerprint_record
@@ -38,7 +38,7 @@ from pilewise.progress import Reporter
 from pilewise.redact import redact_document
 from pilewise.shelf import DocumentShelf, shelf_record
 from pilewise.text import Analyzer
-from pilewise.vectors import Vectorized, VectorSettings, default_min_df, tfidf_rows
+from pilewise.vectors import Vectorized, VectorSettings, default_min_df, smooth_idf, tfidf_rows
 
 HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
 CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step
@@ -67,8 +67,7 @@ class _Tally:
     first_doc_of_text: array[int]
     copies: array[int]
     index_of: dict[bytes, int]
-    blocks: list[Path]  # hashed count blocks, saved in the work folder
-    df: np.ndarray
+    blocks: list[Path]  # hashed count blocks of the distinct texts in order, saved in the work folder
     words: Counter[str]
 
 
@@ -83,17 +82,18 @@ def prepare_streamed(
     reporter: Reporter,
     progress: Callable[[], int] = lambda: 0,
     total_bytes: int = 0,
+    boilerplate: bool = True,
 ) -> StreamedCollection:
     """First pass over `documents` (read lazily), then the kept columns, TF-IDF and LSA, as two timed stages.
 
     `progress` tells how many bytes of the `total_bytes` to read have been read so far (for the progress
-    display).
+    display). `boilerplate` False leaves every line in (no boilerplate lines are looked for).
     """
     with reporter.stage("reading and counting terms"), \
             reporter.meter(total=total_bytes, label="reading") as meter:
-        tally, shelf, digest, boilerplate, redacted = _first_pass(
+        tally, shelf, digest, found, redacted = _first_pass(
             documents, work, analyzer, redact=redact, workers=workers,
-            advance=lambda n: meter(progress(), n))
+            advance=lambda n: meter(progress(), n), boilerplate=boilerplate)
     with reporter.stage("weighting and reducing"):
         collection = Collection(
             shelf,
@@ -103,28 +103,30 @@ def prepare_streamed(
         )
         tally.index_of.clear()
         vectors = _vectorize_blocks(tally, settings, reporter)
-    return StreamedCollection(collection, vectors, boilerplate, redacted, "sha256:" + digest.hexdigest(),
+    return StreamedCollection(collection, vectors, found, redacted, "sha256:" + digest.hexdigest(),
                               shelf)
 
 
 def _first_pass(
     documents: Iterable[Document], work: Path, analyzer: Analyzer, *, redact: bool, workers: int,
-    advance: Callable[[int], None],
+    advance: Callable[[int], None], boilerplate: bool = True,
 ) -> tuple[_Tally, DocumentShelf, Any, Boilerplate, dict[str, int]]:
     shelf = DocumentShelf(work / "documents.jsonl")
     digest = hashlib.sha256()
     redacted: dict[str, int] = {}
-    tally = _Tally(array("q"), array("q"), array("q"), {}, [], np.zeros(HASH_BUCKETS, dtype=np.int64), Counter())
+    tally = _Tally(array("q"), array("q"), array("q"), {}, [], Counter())
     chunks = _chunks(documents, CHUNK_DOCUMENTS)
     first = next(chunks, [])
     # boilerplate lines are found on the first chunk's distinct (redacted) texts: a sample of 20,000
-    sample = [redact_document(doc, {}) for doc in first] if redact else first
-    boilerplate = find_boilerplate(list({" ".join(doc.text.split()): doc.text for doc in sample}.values()))
+    found = NO_BOILERPLATE
+    if boilerplate:
+        sample = [redact_document(doc, {}) for doc in first] if redact else first
+        found = find_boilerplate(list({" ".join(doc.text.split()): doc.text for doc in sample}.values()))
     pool = _pool(workers, analyzer)
     pending: deque[Any] = deque()
     try:
         for chunk in itertools.chain([first] if first else [], chunks):
-            pending.append(_submit(pool, analyzer, chunk, redact, boilerplate))
+            pending.append(_submit(pool, analyzer, chunk, redact, found))
             advance(len(chunk))
             while len(pending) > max(1, workers):  # keep every worker busy while this process reads on
                 _absorb(pending.popleft(), tally, shelf, digest, redacted, work)
@@ -136,7 +138,7 @@ def _first_pass(
     shelf.close_writing()
     if len(shelf) == 0:
         raise PilewiseError("no documents found; point SOURCE at a folder of text files or a table")
-    return tally, shelf, digest, boilerplate, redacted
+    return tally, shelf, digest, found, redacted
 
 
 def _chunks(documents: Iterable[Document], size: int) -> Iterator[list[Document]]:
@@ -262,7 +264,6 @@ def _absorb(job: Any, tally: _Tally, shelf: DocumentShelf, digest: Any, redacted
     path = work / f"hashed-{len(tally.blocks):05d}.npz"
     np.savez(path, indices=counts.indices, indptr=counts.indptr, data=counts.data)
     tally.blocks.append(path)
-    tally.df += np.bincount(counts.indices, minlength=HASH_BUCKETS)
     tally.words.update(done.words)
     if len(tally.words) > WORD_COUNT_CAP:  # keep the most frequent words; rare ones cannot name a column
         tally.words = Counter(dict(tally.words.most_common(WORD_COUNT_CAP // 2)))
@@ -284,11 +285,31 @@ def column_names(words: Counter[str], columns: np.ndarray) -> list[str]:
     return [best[c][1] if c in best else f"(column {c})" for c in columns.tolist()]
 
 
+def document_frequency_of_blocks(blocks: list[Path], copies: np.ndarray) -> np.ndarray:
+    """Documents holding each hashed column: every distinct text counts as often as it has copies.
+
+    The copies of a text are only known once the whole collection has been read (a copy may come last),
+    so this is a pass over the saved blocks after reading, not a running tally.
+    """
+    df = np.zeros(HASH_BUCKETS, dtype=np.float64)
+    row = 0
+    for path in blocks:
+        with np.load(path) as block:
+            lengths = np.diff(block["indptr"])
+            weights = np.repeat(copies[row : row + lengths.size].astype(np.float64), lengths)
+            df += np.bincount(block["indices"], weights=weights, minlength=HASH_BUCKETS)
+            row += lengths.size
+    return df
+
+
 def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporter) -> Vectorized:
     n = len(tally.copies)
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
-    max_df = settings.max_df if n * settings.max_df >= min_df else 1.0
-    kept = np.flatnonzero((tally.df >= min_df) & (tally.df <= max_df * n))
+    copies = np.asarray(tally.copies, dtype=np.int64)
+    n_documents = float(copies.sum())  # figures that count documents count copies (docs/method.md)
+    all_df = document_frequency_of_blocks(tally.blocks, copies)
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
+    max_df = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    kept = np.flatnonzero((all_df >= min_df) & (all_df <= max_df * n_documents))
     if kept.size < 2:
         raise PilewiseError(
             f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
@@ -299,11 +320,11 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporte
     terms = tuple(names[i] for i in order)
     column_of = np.full(HASH_BUCKETS, -1, dtype=np.int64)
     column_of[kept[order]] = np.arange(kept.size)
-    df = tally.df[kept[order]]
-    tally.df = np.zeros(0, dtype=np.int64)
+    df = all_df[kept[order]]
+    del all_df
     counts = _kept_counts(tally.blocks, column_of, kept.size, n)
     reporter.say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
-    idf = np.log((1 + n) / (1 + df)) + 1.0
+    idf = smooth_idf(df, n_documents)
     components = min(settings.lsa_components, max(10, min(n, len(terms)) // 10), len(terms) - 1, n - 1)
     facts: dict[str, float | int | str | bool] = {
         "min_df": min_df, "max_df": float(max_df), "terms": len(terms), "phrases": 0, "phrases_within_df": 0,

@@ -68,6 +68,23 @@ def tfidf_weights(counts: sp.spmatrix, *, sublinear: bool = True) -> sp.csr_matr
     return sp.csr_matrix(TfidfTransformer(sublinear_tf=sublinear).fit_transform(counts))
 
 
+def smooth_idf(df: np.ndarray, n_documents: float) -> np.ndarray:
+    """idf = ln((1 + n) / (1 + df)) + 1, scikit-learn's smoothed idf; `df` and `n` count every document."""
+    return np.log((1.0 + n_documents) / (1.0 + np.asarray(df, dtype=float))) + 1.0
+
+
+def document_frequency(counts: sp.csr_matrix, copies: np.ndarray | None = None) -> np.ndarray:
+    """Documents holding each term: each row (a distinct text) counts as often as it has copies.
+
+    Rows are distinct texts (or near-duplicate groups); `copies` (n_rows,) says how many documents
+    each stands for. Without it every row counts once.
+    """
+    if copies is None:
+        return np.bincount(counts.indices, minlength=counts.shape[1])
+    row_weights = np.repeat(np.asarray(copies, dtype=np.float64), np.diff(counts.indptr))
+    return np.bincount(counts.indices, weights=row_weights, minlength=counts.shape[1])
+
+
 def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
     """L2-normalized sublinear TF-IDF rows, as `tfidf_weights`, with a given
     idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection)."""
@@ -85,14 +102,15 @@ MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
 def count_terms(
-    texts: Iterable[str], analyzer: Analyzer, min_df: int = 1
+    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
     Returns the word count matrix (texts x words), the words, the pair count matrix (texts x pairs) and
     the pairs as (first word id, second word id) rows. Pairs are counted as 64-bit codes in numpy, which
     keeps a large collection's millions of distinct pairs out of Python dictionaries. Pairs with a word in
-    fewer than `min_df` texts are left out: a pair is never in more texts than either of its words.
+    fewer than `min_df` documents are left out: a pair is never in more documents than either of its
+    words. Documents are counted with `copies` (documents per text; default one), as `document_frequency`.
     """
     vocabulary: defaultdict[str, int] = defaultdict(itertools.count().__next__)
     ids = array("i")
@@ -112,7 +130,8 @@ def count_terms(
     lengths = np.diff(bounds)
     starts_of_text = np.zeros(word_ids.size, dtype=bool)
     starts_of_text[bounds[1:-1][lengths[1:] > 0]] = True  # first word of every text but the first
-    frequent = np.bincount(words.indices, minlength=n_words) >= min_df
+    weight = np.ones(n_texts) if copies is None else np.asarray(copies, dtype=np.float64)
+    frequent = document_frequency(words, weight) >= min_df
     inside = ~starts_of_text[1:] & frequent[word_ids[:-1]] & frequent[word_ids[1:]]
     codes = word_ids[:-1][inside].astype(np.int64) * n_words + word_ids[1:][inside]
     text_of_pair = np.repeat(np.arange(n_texts, dtype=np.int32), lengths)[:-1][inside]
@@ -127,7 +146,8 @@ def count_terms(
         same = (text_of_pair[order][1:] == text_of_pair[order][:-1]) & (pair_ids[order][1:] == pair_ids[order][:-1])
         first_in_text[order[1:][same]] = False
         del order, same
-    pair_df = np.bincount(pair_ids[first_in_text], minlength=pair_codes.size)
+    pair_df = np.bincount(pair_ids[first_in_text], weights=weight[text_of_pair[first_in_text]],
+                          minlength=pair_codes.size)
     del first_in_text
     wanted = pair_df >= min_df
     keep = wanted[pair_ids]
@@ -148,24 +168,32 @@ def count_terms(
     return words, terms, pairs, np.column_stack([pair_codes // n_words, pair_codes % n_words])
 
 
-def _document_frequency(counts: sp.csr_matrix) -> np.ndarray:
-    return np.bincount(counts.indices, minlength=counts.shape[1])
-
-
 def vectorize(
     texts: Sequence[str],
     analyzer: Analyzer,
     settings: VectorSettings,
     progress: Callable[[str], None] | None = None,
     track: Callable[[Iterable[str]], Iterable[str]] | None = None,
+    copies: np.ndarray | None = None,
 ) -> Vectorized:
-    """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA."""
+    """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA.
+
+    `texts` are the distinct texts to cluster; `copies` (n_texts,) says how many documents each one
+    stands for (exact copies, near-duplicate group members; default one). Every figure that counts
+    documents counts them all: min_df, max_df and the idf are those of the full list of documents,
+    as scikit-learn's TfidfVectorizer(sublinear_tf=True) would compute them on it (docs/method.md,
+    "Counting copies").
+    """
     n = len(texts)
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(n)
-    max_df: float | int = settings.max_df if n * settings.max_df >= min_df else 1.0
-    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer, min_df)
-    df_words, df_pairs = _document_frequency(words), _document_frequency(pairs)
-    ceiling = max_df * n
+    weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
+    if weight.shape != (n,) or np.any(weight < 1):
+        raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
+    n_documents = float(weight.sum())
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
+    max_df: float | int = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer, min_df, weight)
+    df_words, df_pairs = document_frequency(words, weight), document_frequency(pairs, weight)
+    ceiling = max_df * n_documents
     keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
     keep_pairs = np.flatnonzero((df_pairs >= min_df) & (df_pairs <= ceiling))
     phrases_within_df = int(keep_pairs.size)
@@ -188,7 +216,8 @@ def vectorize(
     space_columns = np.arange(len(terms)) if settings.bigrams_in_space else np.flatnonzero(~is_phrase)
     if space_columns.size == 0:
         raise PilewiseError("no single words are left to cluster on; lower --min-df or raise --max-df")
-    tfidf = tfidf_weights(counts[:, space_columns])
+    df_space = np.concatenate([df_words[keep_words], df_pairs[keep_pairs]])[order][space_columns]
+    tfidf = tfidf_rows(counts[:, space_columns], smooth_idf(df_space, n_documents))
     empty_rows = int(np.sum(tfidf.getnnz(axis=1) == 0))
     facts: dict[str, float | int | str | bool] = {
         "min_df": min_df,
