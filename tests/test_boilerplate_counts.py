@@ -262,3 +262,32 @@ def test_keep_boilerplate_turns_detection_off(tmp_path: Path, mode: str) -> None
 def test_options_default_is_on() -> None:
     options = RunOptions(source=Path("."), k=2)
     assert options.boilerplate is True and replace(options, boilerplate=False).boilerplate is False
+
+
+def test_table_columns_count_every_copy_with_its_own_cells(tmp_path: Path) -> None:
+    """Regression: a copy of a text used to be counted under its first document's table cells.
+
+    Ten documents say "yes thanks" (four from channel "phone", six from "mail"); the cluster-by-value
+    table of clusters.json must count each document with its own cell, so its column sums are the
+    channel counts of the rows written (an independent count of the input, not of pilewise's output).
+    """
+    rows = [("yes thanks", "phone" if i < 4 else "mail") for i in range(10)]
+    topics = ["soil compost seedling mulch watering spade trowel", "chain saddle pedal spoke brake gear tyre",
+              "oven flour dough whisk butter saucepan ladle"]
+    rng = random.Random(3)
+    for i in range(30):
+        words = topics[i % 3].split()
+        rows.append((" ".join(rng.choice(words) for _ in range(12)) + f" note {i}", "phone" if i % 2 else "mail"))
+    table = tmp_path / "answers.csv"
+    with table.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["text", "channel"])
+        writer.writerows(rows)
+    out = tmp_path / "site"
+    result = runner.invoke(app, ["run", str(table), "--k", "3", "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    document = json.loads((out / "runs" / "k3" / "clusters.json").read_text(encoding="utf-8"))
+    (channel,) = [c for c in document["metadata"]["categorical"] if c["column"] == "channel"]
+    sums = dict(zip(channel["values"], np.asarray(channel["table"]).sum(axis=0).tolist(), strict=True))
+    expected = {value: sum(1 for _, v in rows if v == value) for value in ("mail", "phone")}
+    assert sums == expected

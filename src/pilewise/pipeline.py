@@ -447,8 +447,12 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
                               k_max=k_max if tree is not None else k, run_k=k)
         shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
         profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
-        columns = metadata_columns(prepared.collection)
-        metadata = analyse_metadata(columns, clustering.labels, weights, k=k) if columns else None
+        doc_columns = metadata_columns(prepared.collection)
+        # every document counts, copies too: a copy of a text may carry other cells than its first document
+        doc_labels = clustering.labels[prepared.collection.text_of_doc]
+        metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
+        first = prepared.collection.first_doc_of_text
+        columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
         rules = explain_run(prepared, clustering.labels, shown, metadata, columns, k=k, seed=options.seed)
     suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
@@ -536,16 +540,15 @@ def explain_run(
 
 
 def metadata_columns(collection: Collection) -> dict[str, list[str]]:
-    """Extra table columns, one cell per distinct text (its first document's); one pass in reading order."""
-    is_first = np.zeros(len(collection.documents), dtype=bool)
-    is_first[collection.first_doc_of_text] = True
-    found: dict[int, dict[str, str]] = {}
+    """Extra table columns, one cell per document ("" where a document lacks the column); one pass in reading order."""
+    cells: dict[str, list[str]] = {}
     for i, doc in enumerate(collection.documents):
-        if doc.metadata and is_first[i]:
-            found[int(collection.text_of_doc[i])] = dict(doc.metadata)
-    names = sorted({name for cells in found.values() for name in cells})
-    empty: dict[str, str] = {}
-    return {name: [found.get(t, empty).get(name, "") for t in range(collection.copies.size)] for name in names}
+        row = dict(doc.metadata)
+        for name, column in cells.items():
+            column.append(row.pop(name, ""))
+        for name, value in row.items():  # a column first seen here: earlier documents lack it
+            cells[name] = [""] * i + [value]
+    return {name: cells[name] for name in sorted(cells)}
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

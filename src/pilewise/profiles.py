@@ -260,8 +260,8 @@ def analyse_metadata(
 ) -> MetadataAnalysis:
     """Type every extra column of a table and set it against the clusters.
 
-    Typing rule, tried in this order on the cells of the distinct texts (stripped of surrounding
-    white space; weights play no part):
+    Typing rule, tried in this order on the cells (stripped of surrounding white space; weights play
+    no part):
 
     1. no non-empty cell: skipped, "empty";
     2. at least 95% of the non-empty cells are ISO-like dates (YYYY-MM-DD or YYYY/MM/DD, optionally
@@ -293,7 +293,8 @@ def analyse_metadata(
     Parameters
     ----------
     columns : mapping of column name to sequence of str, each of length n_texts
-        The cells of each extra column, one per distinct text (the first document's cells).
+        The cells of each extra column, one per row of `labels`; the pipeline passes one per document,
+        copies included, with weights of 1, so that every document counts with its own cells.
     labels : ndarray of int, shape (n_texts,)
         Cluster of each distinct text, 0 to k - 1; every cluster must have a member.
     weights : ndarray, shape (n_texts,)
