@@ -366,3 +366,34 @@ def test_repeated_columns_through_the_cli_are_one_line(tmp_path: Path) -> None:
     lines = [line for line in result.stderr.splitlines() if line.startswith("pilewise: error")]
     assert lines == ["pilewise: error: column 'text' appears twice in x.csv; rename one of them in the file so "
                      "that every column name is unique"]
+
+
+class _Match:
+    """A stand-in for one charset-normalizer match: only what detect_encoding reads."""
+
+    def __init__(self, encoding: str) -> None:
+        self.encoding, self.chaos, self.coherence = encoding, 0.05, 0.85
+
+
+class _Matches(list):  # type: ignore[type-arg]
+    def best(self) -> _Match:
+        return self[0]
+
+
+@pytest.mark.parametrize("dos_page", ["cp775", "cp850", "cp852"])
+def test_a_dos_code_page_guess_yields_to_cp1252_when_cp1252_reads_as_well(
+    monkeypatch: pytest.MonkeyPatch, dos_page: str
+) -> None:
+    """Regression: a Windows export with curly quotes and dashes was read as cp775 ("ōQuotedö").
+
+    The detector's answer is replaced by a DOS code page, as charset-normalizer gave on a real export;
+    the bytes are cp1252 (Python's codec tables are the reference), so cp1252 must win. Text in a DOS
+    page that cp1252 cannot read cleanly keeps the detector's answer.
+    """
+    from pilewise import plaintext
+
+    monkeypatch.setattr(plaintext.charset_normalizer, "from_bytes", lambda raw: _Matches([_Match(dos_page)]))
+    western = "“Quoted” start – the printer’s queue is stuck; ‘naïve’ café order".encode("cp1252")
+    assert plaintext.detect_encoding(western) == "cp1252"
+    cyrillic = "Привет, как дела? Это проверка кодировки русского текста.".encode("cp866")
+    assert plaintext.detect_encoding(cyrillic) == dos_page

@@ -44,11 +44,33 @@ def detect_encoding(raw: bytes) -> str | None:
     for match in matches:
         if match.encoding == "cp1252" and (match.chaos, match.coherence) == (best.chaos, best.coherence):
             chosen = "cp1252"
+    if chosen.startswith(_DOS_AND_MAC_PAGES) and _reads_as_cp1252_as_well(raw, chosen):
+        chosen = "cp1252"
     try:
         codecs.lookup(chosen)
     except LookupError:
         return None
     return chosen
+
+
+# Code pages of DOS consoles and classic Mac OS: the detector offers them for Western text that is
+# cp1252 (a Windows export with curly quotes and dashes read as cp775 gave "ōQuotedö"), while
+# current programs rarely write them.
+_DOS_AND_MAC_PAGES = ("cp437", "cp737", "cp775", "cp850", "cp852", "cp855", "cp857", "cp858", "cp860",
+                      "cp861", "cp862", "cp863", "cp865", "cp866", "cp869", "mac_")
+_MESS_SAMPLE = 200_000
+
+
+def _reads_as_cp1252_as_well(raw: bytes, detected: str) -> bool:
+    """True when `raw` is valid cp1252 and charset-normalizer's mess ratio rates it no worse than `detected`."""
+    from charset_normalizer.md import mess_ratio
+
+    try:
+        as_cp1252 = raw.decode("cp1252")  # strict: cp1252 leaves five bytes undefined
+    except UnicodeDecodeError:
+        return False
+    as_detected = raw.decode(detected, errors="replace")
+    return mess_ratio(as_cp1252[:_MESS_SAMPLE], 1.0) <= mess_ratio(as_detected[:_MESS_SAMPLE], 1.0)
 
 
 def first_line_title(text: str) -> str:
