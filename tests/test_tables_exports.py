@@ -259,7 +259,8 @@ class TestJson:
         assert notes_of(ingested, "records") == ["records from key 'data.items'"]
 
     def test_several_lists_of_records_need_records_key(self, tmp_path: Path) -> None:
-        data = {"users": [{"name": "ann"}], "export": {"posts": [{"text": "a post"}, {"text": "another post"}]}}
+        data = {"users": [{"name": "ann"}, {"name": "bo"}],
+                "export": {"posts": [{"text": "a post"}, {"text": "another post"}]}}
         (tmp_path / "t.json").write_text(json.dumps(data), encoding="utf-8")
         message = ("t.json holds several lists of records ('users', 'export.posts'); pass --records-key KEY with one "
                    "of them")
@@ -272,6 +273,24 @@ class TestJson:
         (tmp_path / "more.txt").write_text("plain words", encoding="utf-8")
         in_folder = read(tmp_path)
         assert skipped_of(in_folder) == [("t.json", "several record lists", message)]
+
+    def test_a_list_with_twice_the_items_of_every_other_is_taken_and_noted(self, tmp_path: Path) -> None:
+        """An API page: the records beside a list of one link object (common practice in paged APIs)."""
+        page = {"meta": {"links": [{"rel": "next", "href": "?page=2"}], "total": 5},
+                "data": [{"id": i, "text": f"record number {i}"} for i in range(5)]}
+        (tmp_path / "page.json").write_text(json.dumps(page), encoding="utf-8")
+        taken = read(tmp_path / "page.json")
+        assert [d.text for d in taken.documents] == [f"record number {i}" for i in range(5)]
+        assert notes_of(taken, "records") == ["records from key 'data', the longest list of objects (also: "
+                                              "'meta.links')"]
+
+    def test_records_are_found_deep_inside_objects(self, tmp_path: Path) -> None:
+        """Regression: records four levels down became one document holding all of them as JSON."""
+        deep = {"a": {"b": {"c": {"d": [{"text": f"entry {i}"} for i in range(4)]}}}}
+        (tmp_path / "deep.json").write_text(json.dumps(deep), encoding="utf-8")
+        found = read(tmp_path / "deep.json")
+        assert [d.text for d in found.documents] == [f"entry {i}" for i in range(4)]
+        assert notes_of(found, "records") == ["records from key 'a.b.c.d'"]
 
     def test_a_records_key_that_is_not_a_list(self, tmp_path: Path) -> None:
         (tmp_path / "t.json").write_text(json.dumps({"items": [{"text": "a"}], "meta": {}}), encoding="utf-8")
@@ -397,3 +416,33 @@ def test_a_dos_code_page_guess_yields_to_cp1252_when_cp1252_reads_as_well(
     assert plaintext.detect_encoding(western) == "cp1252"
     cyrillic = "Привет, как дела? Это проверка кодировки русского текста.".encode("cp866")
     assert plaintext.detect_encoding(cyrillic) == dos_page
+
+
+def test_row_numbers_count_the_rows_that_were_reported(tmp_path: Path) -> None:
+    """Regression: `#rowN` skipped malformed rows, so default ids pointed at the wrong row of the file.
+
+    `#rowN` is the N-th data record of the file (RFC 4180 §2: each record is one row after the
+    header), counted whether or not it became a document; JSON Lines count every non-blank line.
+    """
+    with (tmp_path / "noid.csv").open("w", encoding="utf-8", newline="") as handle:
+        csv.writer(handle).writerows([["title", "text"], ["first", "the first text"], ["bad"],
+                                      ["third", "the third text"]])
+    rows = read(tmp_path / "noid.csv")
+    assert [(d.doc_id, d.title) for d in rows.documents] == [("noid.csv#row1", "first"), ("noid.csv#row3", "third")]
+    assert rows.entries[0].detail == "2 of 3 rows became documents (text column 'text')"
+    lines = ['{"text": "one"}', "not json", "[1, 2]", '{"text": "four"}']
+    (tmp_path / "mixed.jsonl").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    records = read(tmp_path / "mixed.jsonl")
+    assert [(d.doc_id, d.text) for d in records.documents] == [("mixed.jsonl#row1", "one"),
+                                                                ("mixed.jsonl#row4", "four")]
+
+
+def test_blank_header_cells_are_named_by_position(tmp_path: Path) -> None:
+    """A spreadsheet export with trailing empty header cells ("id;text;;;") is read, not refused as
+    repeated columns (common practice: spreadsheets pad rows to the widest one)."""
+    lines = ["id;text;;;", "1;a first answer about parcels;;;", "2;a second answer about invoices;;;"]
+    (tmp_path / "padded.csv").write_text("\r\n".join(lines) + "\r\n", encoding="utf-8")
+    padded = read(tmp_path / "padded.csv")
+    assert [(d.doc_id, d.text) for d in padded.documents] == [("1", "a first answer about parcels"),
+                                                              ("2", "a second answer about invoices")]
+    assert [name for name, _ in padded.documents[0].metadata] == ["column 3", "column 4", "column 5"]

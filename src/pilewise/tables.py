@@ -43,7 +43,7 @@ _DIALECT_LINES = 500
 # (seconds for 64,000 characters, measured); a few thousand characters are what its docs suggest
 _SNIFFER_CHARS = 8_000
 _SEPARATORS = ",;\t|"  # the candidates sniffed; anything else needs --delimiter
-_RECORDS_DEPTH = 3  # how deep inside a JSON object lists of records are looked for
+_RECORDS_DEPTH = 10  # how deep inside a JSON object lists of records are looked for
 _PARQUET_BATCH = 4096
 _TABLE_ERRORS = (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError, ImportError,
                  RecursionError)  # json's parser raises RecursionError for arrays nested thousands deep
@@ -54,6 +54,15 @@ _SEP_LINE = re.compile(r"sep=(.)", re.IGNORECASE)
 _QUOTED_TAB_FIELD = re.compile(r'(?:^|\t)"(?:[^"]|"")*"(?=\t|\r|\n|$)', re.MULTILINE)
 
 Cell = object  # a cell as read (str from CSV; any JSON or Arrow value otherwise), made text by `_cell`
+
+
+class _ReportedRow(list[object]):
+    """The type of REPORTED_ROW."""
+
+
+# Yielded by the row readers in place of a data row they reported (malformed, invalid JSON), so
+# that `#rowN` stays the N-th data row of the file and default ids can be joined back to it.
+REPORTED_ROW = _ReportedRow()
 
 
 @dataclass(frozen=True)
@@ -134,10 +143,12 @@ def iter_table(
     """
     rows = _table_rows(path, rel, choice, report)
     try:
-        header = [str(name) for name in next(rows)]
+        header = _named_columns([str(name) for name in next(rows)])
         sample = list(islice(rows, SAMPLE_ROWS))
         _check_unique(header, rel)
-        text_col, title_col, id_col, date_col, guesses = _choose_columns(header, sample, rel, choice)
+        text_col, title_col, id_col, date_col, guesses = _choose_columns(
+            header, [row for row in sample if row is not REPORTED_ROW], rel, choice
+        )
     except _Unusable as err:
         if single:
             raise PilewiseError(err.message) from None
@@ -168,6 +179,8 @@ def iter_table(
             report.entries.append(_unreadable(rel, err, after_rows=row_number))
             break
         row_number += 1
+        if raw_row is REPORTED_ROW:  # its report line is written; it still counts as a row of the file
+            continue
         where = f"{rel}#row{row_number}"
         try:
             row = _text_cells(raw_row, header, text_at, byte_columns)
@@ -214,6 +227,11 @@ def _unreadable(rel: str, err: Exception, after_rows: int | None = None) -> Inge
     if after_rows is not None:
         message = f"reading stopped after row {after_rows:,}: {message}"
     return IngestEntry(rel, "skipped", "unreadable table", message)
+
+
+def _named_columns(header: list[str]) -> list[str]:
+    """Header cells with a blank name (a spreadsheet's trailing empty columns) named by position: "column 4"."""
+    return [name if name.strip() else f"column {i}" for i, name in enumerate(header, start=1)]
 
 
 def _check_unique(header: list[str], rel: str) -> None:
@@ -385,6 +403,11 @@ def _find_records(data: object, rel: str, records_key: str | None, report: Table
         for part in key.split("."):
             found = found[part]  # type: ignore[index]
         return found  # type: ignore[return-value]
+    dominant = _dominant_list(data, candidates)
+    if dominant is not None:
+        others = ", ".join(repr(key) for key in candidates if key != dominant)
+        report.note(rel, "records", f"records from key {dominant!r}, the longest list of objects (also: {others})")
+        return _at_key(data, dominant)  # type: ignore[return-value]
     if len(candidates) > 1:
         names = ", ".join(repr(key) for key in candidates)
         raise _Unusable(
@@ -393,6 +416,22 @@ def _find_records(data: object, rel: str, records_key: str | None, report: Table
         )
     lists = [value for value in data.values() if isinstance(value, list)]
     return lists[0] if len(lists) == 1 else [data]
+
+
+def _at_key(data: object, dotted: str) -> object:
+    for part in dotted.split("."):
+        data = data[part]  # type: ignore[index]
+    return data
+
+
+def _dominant_list(data: dict[str, Any], candidates: list[str]) -> str | None:
+    """Among several lists of objects, the one with at least twice the items of every other (an API
+    response's records beside a list of one link), else None: then the choice is the user's."""
+    if len(candidates) < 2:
+        return None
+    sizes = sorted(((len(_at_key(data, key)), key) for key in candidates), reverse=True)  # type: ignore[arg-type]
+    (largest, key), (runner_up, _) = sizes[0], sizes[1]
+    return key if largest >= 2 and largest >= 2 * runner_up else None
 
 
 def _record_lists(data: dict[str, Any], prefix: str, depth: int) -> list[str]:
@@ -421,6 +460,7 @@ def _array_rows(arrays: list[list[Any]], rel: str, report: TableReport) -> Itera
         if len(values) != len(header):
             detail = f"{len(values)} fields where the header has {len(header)}"
             report.entries.append(IngestEntry(f"{rel}#array{number}", "skipped", "malformed row", detail))
+            yield REPORTED_ROW
             continue
         yield values
 
@@ -588,6 +628,7 @@ def _dialect_rows(
             if len(cells) != width:
                 detail = f"{len(cells)} fields where the header has {width}"
                 report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "malformed row", detail))
+                yield REPORTED_ROW
                 continue
             yield list(cells)
     if runaways:  # one line for the user; the report lists every span
@@ -634,13 +675,16 @@ def _json_lines_rows(path: Path, rel: str, choice: ColumnChoice, report: TableRe
                             undetected="not UTF-8 and no encoding detected; decoded as latin-1")
         records = _json_records(lines, rel, report)
         sample = list(islice(records, SAMPLE_ROWS))
-        header = list(dict.fromkeys(key for _, record in sample for key in record))
+        header = list(dict.fromkeys(key for _, record in sample if record is not None for key in record))
         yield header
         for _, record in sample:
-            yield [record.get(key) for key in header]
+            yield REPORTED_ROW if record is None else [record.get(key) for key in header]
         del sample
         known = set(header)
         for line_number, record in records:
+            if record is None:
+                yield REPORTED_ROW
+                continue
             if not known.issuperset(record):
                 for key in record:
                     if key not in known:
@@ -652,8 +696,10 @@ def _json_lines_rows(path: Path, rel: str, choice: ColumnChoice, report: TableRe
             yield [record.get(key) for key in header]
 
 
-def _json_records(lines: Iterator[str], rel: str, report: TableReport) -> Iterator[tuple[int, dict[str, object]]]:
-    """(line number, record) for each JSON object line; other non-blank lines are reported."""
+def _json_records(
+    lines: Iterator[str], rel: str, report: TableReport
+) -> Iterator[tuple[int, dict[str, object] | None]]:
+    """(line number, record) for each JSON object line; other non-blank lines are reported, and give None."""
     # splitlines on each piece numbers the lines exactly as splitlines on the whole text would
     numbered = enumerate((line for piece in lines for line in piece.splitlines()), start=1)
     for line_number, line in numbered:
@@ -663,13 +709,16 @@ def _json_records(lines: Iterator[str], rel: str, report: TableReport) -> Iterat
             value = json.loads(line)
         except json.JSONDecodeError as err:
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", err.msg))
+            yield line_number, None
             continue
         except RecursionError:
             detail = "nested too deeply"
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", detail))
+            yield line_number, None
             continue
         if not isinstance(value, dict):
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", "not an object"))
+            yield line_number, None
             continue
         yield line_number, value
 
