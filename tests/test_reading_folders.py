@@ -349,3 +349,23 @@ def test_mail_dates_are_read_from_the_date_header(tmp_path: Path) -> None:
         "two.eml": "",
         "archive.mbox#msg1": "2024-03-01T08:00:00-05:00",
     }
+
+
+def test_mail_without_a_declared_charset_is_decoded_like_a_text_file(tmp_path: Path) -> None:
+    """Regression: 8-bit mail text without a charset parameter lost every accented letter to U+FFFD.
+
+    RFC 2045 §5.2 makes undeclared text US-ASCII, which 8-bit bytes are not; such mail is read as a
+    text file is (detected, or --encoding). The expected strings are Python's cp1252 codec's reading of
+    the same bytes.
+    """
+    folder = tmp_path / "mail"
+    folder.mkdir()
+    body = "We would like the naïve café order “as soon as possible” – the seedlings arrived fine."
+    raw = ("Subject: Café order for the garden\r\nContent-Type: text/plain\r\nContent-Transfer-Encoding: 8bit\r\n\r\n"
+           + body + "\r\n").encode("cp1252")
+    (folder / "order.eml").write_bytes(raw)
+    (folder / "other.eml").write_bytes(raw.replace(b"garden", b"shop"))
+    for columns in (ColumnChoice(), ColumnChoice(encoding="cp1252")):
+        docs = {doc.source: doc for doc in read(folder, columns).documents}
+        assert docs["order.eml"].title == "Café order for the garden"
+        assert docs["order.eml"].text == body

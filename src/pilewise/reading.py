@@ -536,12 +536,18 @@ def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str, 
     msg = email.message_from_bytes(raw, policy=email.policy.default)
     assert isinstance(msg, EmailMessage)
     subject = str(msg.get("subject", "") or "")
+    if "\ufffd" in subject:  # 8-bit bytes in the header: decode them as the body's text would be
+        subject = _raw_subject(raw, encoding) or subject
     date = mail_date(msg)
     body_part = msg.get_body(preferencelist=("plain", "html"))
     note = ""
     if body_part is None:
         return subject, "", "no text part", date
+    payload = body_part.get_payload(decode=True)
+    undeclared = body_part.get_content_charset() is None and isinstance(payload, bytes) and not payload.isascii()
     try:
+        if undeclared:  # RFC 2045 §5.2 would read it as US-ASCII and lose every other letter; detect instead
+            raise LookupError("no charset declared for 8-bit text")
         content = body_part.get_content()
     except (LookupError, UnicodeDecodeError, AssertionError):
         payload = body_part.get_payload(decode=True)
@@ -551,6 +557,19 @@ def _read_mail(raw: bytes, encoding: str | None = None) -> tuple[str, str, str, 
     if body_part.get_content_type() == "text/html":
         _, content = html_to_text(content)
     return subject, strip_mail_quotes(content), note, date
+
+
+_SUBJECT_LINE = re.compile(rb"^subject:[ \t]*(.*(?:\r?\n[ \t].*)*)", re.IGNORECASE | re.MULTILINE)
+
+
+def _raw_subject(raw: bytes, encoding: str | None) -> str:
+    """The Subject header's own bytes, decoded as `decode_bytes` decodes a text ("" when not found)."""
+    head = raw.split(b"\r\n\r\n", 1)[0].split(b"\n\n", 1)[0]
+    match = _SUBJECT_LINE.search(head)
+    if match is None:
+        return ""
+    text, _ = decode_bytes(match.group(1), encoding=encoding)
+    return " ".join(text.split())
 
 
 def mail_date(msg: EmailMessage) -> str:
