@@ -178,3 +178,20 @@ def test_sweep_reports_an_unreadable_range_with_the_other_problems(small_folder:
     assert one_error_line(stderr) == (
         "pilewise: error: --k 'x' is not of the form LOW:HIGH, for example 2:20; "
         "--max-df=3.0 is out of range; use a share above 0 and at most 1")
+
+
+def test_demo_checks_its_options_before_writing_anything(tmp_path: Path) -> None:
+    """Regression: `pilewise demo --seed 4294967296` wrote 1,500 demo files, then refused the seed."""
+    code, _, stderr = run_cli("demo", "--seed", "4294967296", "--out", str(tmp_path / "site"))
+    assert code == 1
+    assert one_error_line(stderr) == ("pilewise: error: --seed=4294967296 is out of range; use a value from 0 to "
+                                      "4294967295")
+    assert not (tmp_path / "site").exists()
+
+
+def test_quiet_prints_only_the_index_path(small_folder: Path, tmp_path: Path) -> None:
+    """--quiet: the index page's path on standard output and nothing on standard error (docs/usage.md)."""
+    code, stdout, stderr = run_cli("run", str(small_folder), "--k", "3", "--out", str(tmp_path / "site"), "--quiet")
+    assert code == 0
+    assert stderr == ""
+    assert Path(stdout.strip()) == tmp_path / "site" / "runs" / "k3" / "index.html"

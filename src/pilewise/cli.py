@@ -103,12 +103,14 @@ def user_errors(command: F) -> F:
     return wrapper  # type: ignore[return-value]
 
 
-def _print_outcome(outcome: RunOutcome) -> None:
-    typer.echo(
-        f"{outcome.documents:,} documents in {outcome.clusters} clusters; "
-        f"{outcome.skipped:,} files or rows skipped (see ingest-report.csv)",
-        err=True,
-    )
+def _print_outcome(outcome: RunOutcome, *, quiet: bool) -> None:
+    """The summary line (not with --quiet) on standard error, the index page's path on standard output."""
+    if not quiet:
+        typer.echo(
+            f"{outcome.documents:,} documents in {outcome.clusters} clusters; "
+            f"{outcome.skipped:,} files or rows skipped (see ingest-report.csv)",
+            err=True,
+        )
     typer.echo(str(outcome.index_page))
 
 
@@ -237,7 +239,7 @@ def run(
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
     options = _run_options(locals(), k=k, k_range=(k_range, "--k-range"))
-    _print_outcome(run_collection(options))
+    _print_outcome(run_collection(options), quiet=options.quiet)
 
 
 @app.command()
@@ -301,10 +303,13 @@ def demo(
     """Write the invented demo collection (a plant shop's customer messages) and cluster it."""
     from pilewise.corpora.shop_messages import write_demo_collection
 
-    collection = write_demo_collection(out.resolve() / "demo-data")
-    typer.echo(f"demo collection written to {collection}", err=True)
-    options = RunOptions(source=collection, k=k, out=out, seed=seed, name=f"demo-k{k}", quiet=quiet)
-    _print_outcome(run_collection(options))
+    options = RunOptions(source=out.resolve() / "demo-data", k=k, out=out, seed=seed, name=f"demo-k{k}",
+                         quiet=quiet)
+    validate(options, with_source=False)  # before writing 1,500 files for a run that cannot start
+    collection = write_demo_collection(options.source)
+    if not quiet:
+        typer.echo(f"demo collection written to {collection}", err=True)
+    _print_outcome(run_collection(options), quiet=quiet)
 
 
 def main() -> None:

@@ -92,8 +92,12 @@ class RunOptions:
         return f"{prefix}k{k if k is not None else self.k}"
 
 
-def validate(options: RunOptions) -> None:
-    """Check every option against LIMITS and report all problems in one message."""
+def validate(options: RunOptions, *, with_source: bool = True) -> None:
+    """Check every option against LIMITS and report all problems in one message.
+
+    `with_source` False leaves out the checks of SOURCE (for `pilewise demo`, which checks its
+    options before it writes the demo collection that becomes SOURCE).
+    """
     problems: list[str] = []
     for attr, (low, high, flag) in LIMITS.items():
         value = getattr(options, attr)
@@ -126,6 +130,14 @@ def validate(options: RunOptions) -> None:
     name = options.run_name()
     if not name.replace("-", "").replace("_", "").replace(".", "").isalnum() or name.startswith("."):
         problems.append(f"--name {name!r} is not a safe folder name; use letters, digits, '-', '_' or '.'")
+    if with_source:
+        problems.extend(_source_problems(options))
+    if problems:
+        raise PilewiseError("; ".join(problems))
+
+
+def _source_problems(options: RunOptions) -> list[str]:
+    problems: list[str] = []
     if not options.source.exists():
         problems.append(f"source {str(options.source)!r} does not exist; pass a folder or a table file")
     if options.stop_words_file is not None and not options.stop_words_file.is_file():
@@ -138,8 +150,7 @@ def validate(options: RunOptions) -> None:
                 f"--out {str(options.out)!r} lies inside the source folder, so the next run would read "
                 "its own pages; choose an output folder outside the source"
             )
-    if problems:
-        raise PilewiseError("; ".join(problems))
+    return problems
 
 
 def _limit(value: float) -> str:
