@@ -446,3 +446,17 @@ def test_blank_header_cells_are_named_by_position(tmp_path: Path) -> None:
     assert [(d.doc_id, d.text) for d in padded.documents] == [("1", "a first answer about parcels"),
                                                               ("2", "a second answer about invoices")]
     assert [name for name, _ in padded.documents[0].metadata] == ["column 3", "column 4", "column 5"]
+
+
+def test_many_rows_that_do_not_fit_the_header_earn_a_warning(tmp_path: Path) -> None:
+    """A separator the sniffer does not try (`~`) leaves most rows the wrong width: the user is told to
+    pass --delimiter, and --delimiter reads every row (common practice: report, never guess silently)."""
+    lines = ["id~title~text,notes"] + [f"{i}~item {i}~words about parcel {i}, more words" + (", and" * (i % 2))
+                                        for i in range(20)]
+    (tmp_path / "tilde.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    guessed = read(tmp_path / "tilde.csv")
+    assert any("pass --delimiter or --encoding" in note for note in guessed.notes)
+    assert len(guessed.documents) == 10  # the rows that happen to hold one comma
+    given = read(tmp_path / "tilde.csv", ColumnChoice(text="text,notes", delimiter="~"))
+    assert len(given.documents) == 20
+    assert not any("pass --delimiter" in note for note in given.notes)

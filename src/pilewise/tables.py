@@ -43,6 +43,7 @@ _DIALECT_LINES = 500
 # (seconds for 64,000 characters, measured); a few thousand characters are what its docs suggest
 _SNIFFER_CHARS = 8_000
 _SEPARATORS = ",;\t|"  # the candidates sniffed; anything else needs --delimiter
+_MALFORMED_WARNING = (5, 0.1)  # at least this many malformed rows, and this share of all rows, earn a warning
 _RECORDS_DEPTH = 10  # how deep inside a JSON object lists of records are looked for
 _PARQUET_BATCH = 4096
 _TABLE_ERRORS = (OSError, ValueError, UnicodeDecodeError, csv.Error, pd.errors.ParserError, ImportError,
@@ -166,7 +167,7 @@ def iter_table(
     row_entries: list[IngestEntry] = []
     byte_columns: dict[str, None] = {}
     seen_ids: set[str] = set()
-    made = 0
+    made = reported = 0
     row_number = 0
     remaining = chain(sample, rows)
     del sample
@@ -180,6 +181,7 @@ def iter_table(
             break
         row_number += 1
         if raw_row is REPORTED_ROW:  # its report line is written; it still counts as a row of the file
+            reported += 1
             continue
         where = f"{rel}#row{row_number}"
         try:
@@ -213,6 +215,9 @@ def iter_table(
         )
     for name in byte_columns:
         report.note(rel, "binary cells", f"column {name!r} holds bytes; read as UTF-8 text")
+    if reported >= _MALFORMED_WARNING[0] and reported >= _MALFORMED_WARNING[1] * row_number:
+        report.notes.append(f"{rel}: {reported:,} of {row_number:,} rows do not fit the header; if the separator "
+                            "or encoding was guessed wrong, pass --delimiter or --encoding")
     summary = f"{made} of {row_number} rows became documents (text column {text_col!r})"
     report.entries.insert(0, IngestEntry(rel, "document", "table", summary))
     report.entries.extend(row_entries)
