@@ -291,3 +291,29 @@ def test_table_columns_count_every_copy_with_its_own_cells(tmp_path: Path) -> No
     sums = dict(zip(channel["values"], np.asarray(channel["table"]).sum(axis=0).tolist(), strict=True))
     expected = {value: sum(1 for _, v in rows if v == value) for value in ("mail", "phone")}
     assert sums == expected
+
+
+def test_manifest_counts_exact_distinct_texts_before_near_duplicate_grouping(tmp_path: Path) -> None:
+    """Regression: manifest.json's `distinct_texts` equalled `texts_clustered` (near-duplicate groups).
+
+    Six auto-replies differ in one word only (word 5-gram Jaccard far above 0.8, so they form one group);
+    the expected counts are those of the files written here: 6 + 15 exactly distinct texts, 16 clustered.
+    """
+    folder = tmp_path / "texts"
+    folder.mkdir()
+    reply = ("Thank you for your message. We have received your request and a member of our team will answer "
+             "within two working days. Please keep the reference of this message for any further questions {}.")
+    for i, word in enumerate(["alpha", "bravo", "charlie", "delta", "echo", "foxtrot"]):
+        (folder / f"reply-{i}.txt").write_text(reply.format(word), encoding="utf-8")
+    topics = ["soil compost seedling mulch watering spade trowel", "chain saddle pedal spoke brake gear tyre",
+              "oven flour dough whisk butter saucepan ladle"]
+    rng = random.Random(5)
+    for i in range(15):
+        words = topics[i % 3].split()
+        (folder / f"note-{i}.txt").write_text(" ".join(rng.choice(words) for _ in range(14)), encoding="utf-8")
+    out = tmp_path / "site"
+    result = runner.invoke(app, ["run", str(folder), "--k", "3", "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    manifest = json.loads((out / "runs" / "k3" / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["input"]["distinct_texts"] == 21
+    assert manifest["input"]["texts_clustered"] == 16

@@ -37,6 +37,12 @@ class Collection:
     text_of_doc: np.ndarray  # (n_docs,) index of each document's distinct text
     first_doc_of_text: np.ndarray  # (n_texts,) the first document holding each distinct text
     copies: np.ndarray  # (n_texts,) how many documents hold each distinct text
+    exact_texts: int | None = None  # distinct texts before near-duplicates were grouped; None: n_texts
+
+    @property
+    def distinct_texts(self) -> int:
+        """Exactly distinct texts (after collapsing white space), before near-duplicate grouping."""
+        return int(self.copies.size) if self.exact_texts is None else self.exact_texts
 
 
 def describe_clusters(

@@ -306,7 +306,7 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
             "fingerprint": result.fingerprint,
             "files_found": ingested.files_found,
             "documents": len(ingested.documents),
-            "distinct_texts": int(result.collection.copies.size),
+            "distinct_texts": result.collection.distinct_texts,
             "skipped": len(ingested.skipped()),
             "notes": list(ingested.notes),
             "redacted": dict(result.redacted) if result.options.redact else "redaction off",

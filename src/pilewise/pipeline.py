@@ -563,7 +563,7 @@ def merge_near_duplicates(collection: Collection, near: NearDuplicates) -> Colle
     text_of_doc = near.group_of[collection.text_of_doc]
     copies = np.bincount(text_of_doc, minlength=near.representative.size).astype(np.int64)
     first = collection.first_doc_of_text[near.representative]
-    return Collection(collection.documents, text_of_doc, first, copies)
+    return Collection(collection.documents, text_of_doc, first, copies, exact_texts=collection.distinct_texts)
 
 
 def collect_distinct(documents: Sequence[Document]) -> Collection:
