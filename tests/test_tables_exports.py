@@ -15,9 +15,9 @@ from typer.testing import CliRunner
 
 from pilewise.cli import app
 from pilewise.errors import PilewiseError
+from pilewise.ingest.reading import ReadLimits, read_source
+from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Ingested
-from pilewise.reading import ReadLimits, read_source
-from pilewise.tables import ColumnChoice
 
 LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
 runner = CliRunner()

@@ -13,13 +13,13 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, cluster_sums
-from pilewise.kwic import kwic_line
+from pilewise.clustering.kmeans import Clustering, cluster_sums
+from pilewise.clustering.stability import StabilityResult
+from pilewise.describe.kwic import kwic_line
+from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Document, KwicLine, Neighbour, QualityScores, TermScore
-from pilewise.stability import StabilityResult
-from pilewise.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
-from pilewise.text import Analyzer
-from pilewise.vectors import Vectorized
+from pilewise.vectors.text import Analyzer
+from pilewise.vectors.tfidf import Vectorized
 
 NEAREST_SHOWN = 5
 KWIC_TERMS = 5

@@ -16,12 +16,12 @@ from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from pilewise.clustering.stability import STABILITY_ROWS
+from pilewise.clustering.sweep import RECOMMENDATION_RULE, Sweep
+from pilewise.describe.names import write_names_csv
+from pilewise.describe.rules import RULES_ROWS
 from pilewise.model import ClusterSummary, TermScore
-from pilewise.names import write_names_csv
-from pilewise.outfolder import spreadsheet_cell, spreadsheet_row
-from pilewise.rules import RULES_ROWS
-from pilewise.stability import STABILITY_ROWS
-from pilewise.sweep import RECOMMENDATION_RULE, Sweep
+from pilewise.output.outfolder import spreadsheet_cell, spreadsheet_row
 
 if TYPE_CHECKING:
     from pilewise.pipeline import RunResult
