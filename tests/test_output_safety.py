@@ -23,17 +23,12 @@ from typer.testing import CliRunner
 
 from pilewise import pipeline
 from pilewise.cli import app
+from pilewise.csvcells import read_spreadsheet_cell, spreadsheet_cell
 from pilewise.describe.compare import compare_run_folders
 from pilewise.describe.names import find_old_names, read_names_csv
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions
-from pilewise.output.outfolder import (
-    MARKER,
-    name_lock,
-    read_spreadsheet_cell,
-    safe_name,
-    spreadsheet_cell,
-)
+from pilewise.output.outfolder import MARKER, name_lock, safe_name
 
 runner = CliRunner()
 SRC = str(Path(__file__).resolve().parents[1] / "src")

@@ -21,20 +21,19 @@ import scipy.sparse as sp
 
 from pilewise.clustering.hierarchy import Tree, cut_tree, ward_tree
 from pilewise.clustering.kmeans import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
-from pilewise.clustering.levels import Levels, build_levels, centroid_tree
+from pilewise.clustering.levels import build_levels, centroid_tree
 from pilewise.clustering.quality import assess
 from pilewise.clustering.stability import (
     ClusterFn,
-    StabilityResult,
     bootstrap_stability,
     kmeans_cluster_fn,
     stability_rows,
 )
 from pilewise.clustering.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
-from pilewise.describe.names import Naming, carry_names, earlier_run_problems, find_old_names, suggested_name
-from pilewise.describe.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
+from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names, suggested_name
+from pilewise.describe.profiles import MetadataAnalysis, analyse_metadata, term_profiles_from_counts
 from pilewise.describe.rules import RULES_ROWS, RuleSet, explain_clusters
-from pilewise.describe.summaries import Collection, describe_clusters
+from pilewise.describe.summaries import describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
@@ -48,7 +47,7 @@ from pilewise.ingest.reading import ReadLimits, SourceStream, stream_source
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.shelf import DocumentShelf
 from pilewise.ingest.tables import ColumnChoice
-from pilewise.model import ClusterSummary, Document, Ingested, QualityScores, fingerprint_record
+from pilewise.model import Collection, Document, Ingested, RunResult, fingerprint_record
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
     RunOptions,
@@ -68,33 +67,6 @@ from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
 
 REDACTION_OFF = "redaction is off (--no-redact); pages and exports show personal data as written"
 BOILERPLATE_OFF = "boilerplate removal is off (--keep-boilerplate); every line of every text is vectorized"
-
-
-@dataclass(frozen=True)
-class RunResult:
-    """Everything computed for one run, ready to be written."""
-
-    options: RunOptions
-    name: str
-    k: int
-    ingested: Ingested
-    collection: Collection
-    vectors: Vectorized
-    clustering: Clustering
-    quality: QualityScores
-    stability: StabilityResult
-    clusters: tuple[ClusterSummary, ...]
-    analyzer: Analyzer
-    levels: Levels
-    sweep: Sweep | None
-    naming: Naming
-    boilerplate: Boilerplate
-    redacted: dict[str, int]
-    profiles: tuple[ClusterProfile, ...]
-    rules: RuleSet
-    metadata: MetadataAnalysis | None
-    fingerprint: str
-    timings: dict[str, float]
 
 
 @dataclass(frozen=True)

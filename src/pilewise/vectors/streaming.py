@@ -30,12 +30,11 @@ from sklearn.decomposition import TruncatedSVD
 from sklearn.preprocessing import normalize
 from sklearn.utils import murmurhash3_32
 
-from pilewise.describe.summaries import Collection
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, find_boilerplate, strip_boilerplate
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.shelf import DocumentShelf, shelf_record
-from pilewise.model import Document, fingerprint_record
+from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer
 from pilewise.vectors.tfidf import Vectorized, VectorSettings, default_min_df, smooth_idf, tfidf_rows

@@ -12,7 +12,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 from urllib.parse import quote
 
 from jinja2 import Environment, PackageLoader, StrictUndefined
@@ -20,7 +20,7 @@ from jinja2 import Environment, PackageLoader, StrictUndefined
 from pilewise.clustering.sweep import Sweep
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.ingest.redact import display_text, redact
-from pilewise.model import ClusterSummary, Document
+from pilewise.model import ClusterSummary, Document, RunResult
 from pilewise.output.outfolder import (
     check_replaceable,
     inside,
@@ -30,9 +30,6 @@ from pilewise.output.outfolder import (
     site_lock,
     write_text_atomically,
 )
-
-if TYPE_CHECKING:
-    from pilewise.pipeline import RunResult
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
