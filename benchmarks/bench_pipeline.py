@@ -518,7 +518,7 @@ def main(argv: list[str] | None = None) -> None:
         return
 
     from pilewise.options import RunOptions
-    from pilewise.vectors import default_min_df
+    from pilewise.vectors.tfidf import default_min_df
 
     info, work, temporary = start_benchmark(args.threads, args.workdir, "pilewise-bench-")
     try:

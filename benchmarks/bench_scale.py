@@ -405,7 +405,7 @@ def measure_pilewise(mode: str | None, collection: Collection, planted: np.ndarr
 
 def measure_bare(name: str, collection: Collection, planted: np.ndarray, setting: Setting) -> Measurement:
     """One of BARE_CHILDREN over one collection, in a fresh child of this script."""
-    from pilewise.vectors import default_min_df
+    from pilewise.vectors.tfidf import default_min_df
 
     n = collection.documents
     labels = setting.work / f"{name}-{n}-labels.csv"

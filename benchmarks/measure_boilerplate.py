@@ -20,12 +20,14 @@ from unittest import mock
 from sklearn.metrics import normalized_mutual_info_score
 from typer.testing import CliRunner
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))  # the open-corpora loaders
+
+import open_sets
 from pilewise import pipeline
 from pilewise.cli import app
-from pilewise.corpora import open_sets
-from pilewise.dedup import Boilerplate, Stripped, find_boilerplate, normalize_line, strip_texts
+from pilewise.ingest.dedup import Boilerplate, Stripped, find_boilerplate, normalize_line, strip_texts
+from pilewise.ingest.redact import redact_document
 from pilewise.model import Document
-from pilewise.redact import redact_document
 
 SEEDS = (0, 1, 2)
 THEMES = {

@@ -2,7 +2,7 @@
 
 What it measures
 ----------------
-On each open labeled collection (``pilewise.corpora.open_sets``: mini_newsgroups, reuters_sample,
+On each open labeled collection (``open_sets``: mini_newsgroups, reuters_sample,
 chat_categories, sentence_sources, wordnet_glosses with its 20,000-gloss sample, fortunes) it runs
 pilewise's own ``vectorize`` + ``kmeans_clusters`` with k = the number of gold labels, once per seed, and
 scores the clusters against the labels with scikit-learn: NMI (arithmetic mean), adjusted Rand index and
@@ -60,11 +60,13 @@ from typing import Any
 import numpy as np
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score, v_measure_score
 
-from pilewise.clustering import kmeans_clusters
-from pilewise.corpora import open_sets
-from pilewise.corpora.open_sets import LabeledCollection
-from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import VectorSettings, default_min_df, vectorize
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))  # the open-corpora loaders
+
+import open_sets
+from open_sets import LabeledCollection
+from pilewise.clustering.kmeans import kmeans_clusters
+from pilewise.vectors.text import Analyzer, load_stop_words
+from pilewise.vectors.tfidf import VectorSettings, default_min_df, vectorize
 
 COLLECTIONS: dict[str, Callable[[], LabeledCollection]] = {
     "mini_newsgroups": open_sets.load_mini_newsgroups,

@@ -3,7 +3,7 @@
 What it measures
 ----------------
 On n random unit vectors of 100 dimensions (seeded; a stand-in for the LSA space) it times
-``pilewise.hierarchy.ward_tree`` in two ways, each n in a fresh subprocess:
+``pilewise.clustering.hierarchy.ward_tree`` in two ways, each n in a fresh subprocess:
 
 - ``full``: ``full_limit=n``, i.e. ``scipy.cluster.hierarchy.linkage(method="ward")`` on the rows;
 - ``two-stage``: ``full_limit=2``, i.e. mini-batch k-means into 300 groups, then weighted Ward,
@@ -64,7 +64,7 @@ def child(method: str, n: int, dims: int, seed: int) -> dict[str, Any]:
     """Build one tree in this process and return its timings (runs inside the subprocess)."""
     import resource
 
-    from pilewise.hierarchy import cuts_for_range, ward_tree
+    from pilewise.clustering.hierarchy import cuts_for_range, ward_tree
 
     space = unit_rows(n, dims, seed)
     weights = np.ones(n)

@@ -20,13 +20,13 @@ from sklearn.metrics import normalized_mutual_info_score
 from typer.testing import CliRunner
 
 from pilewise.cli import app
-from pilewise.dedup import Boilerplate, find_boilerplate, strip_boilerplate, strip_texts
+from pilewise.ingest.dedup import Boilerplate, find_boilerplate, strip_boilerplate, strip_texts
 from pilewise.model import Document
 from pilewise.options import RunOptions
 from pilewise.pipeline import collect_distinct, prepare_collection
 from pilewise.progress import Reporter
-from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import VectorSettings, document_frequency, smooth_idf, vectorize
+from pilewise.vectors.text import Analyzer, load_stop_words
+from pilewise.vectors.tfidf import VectorSettings, document_frequency, smooth_idf, vectorize
 
 runner = CliRunner()
 ANALYZER = Analyzer(stop_words=load_stop_words(None), stem=False)

@@ -14,7 +14,7 @@ from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 from typer.testing import CliRunner
 
 from pilewise.cli import app
-from pilewise.compare import (
+from pilewise.describe.compare import (
     MOVED_LISTED,
     READINGS_A,
     READINGS_B,

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from pilewise.dedup import (
+from pilewise.ingest.dedup import (
     NEAR_DUPLICATE_THRESHOLD,
     Boilerplate,
     NearDuplicates,

@@ -1,4 +1,4 @@
-"""Tests of the invented demo collection generator (pilewise.corpora.shop_messages)."""
+"""Tests of the invented demo collection generator (pilewise.demo.shop_messages)."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from pilewise.corpora.shop_messages import CSV_COLUMNS, THEMES, write_demo_collection
+from pilewise.demo.shop_messages import CSV_COLUMNS, THEMES, write_demo_collection
 
 _ADDRESS = re.compile(r"[A-Za-z0-9._%+-]+@([A-Za-z0-9-]+(?:\.[A-Za-z0-9-]+)+)")
 _ALLOWED_DOMAINS = {"example.org", "example.com", "example.net"}

@@ -7,11 +7,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from pilewise.describe.stats import chi_square_2x2
 from pilewise.options import RunOptions
 from pilewise.pipeline import compute_run
 from pilewise.progress import Reporter
-from pilewise.stats import chi_square_2x2
-from pilewise.vectors import with_phrases
+from pilewise.vectors.tfidf import with_phrases
 
 
 @pytest.fixture(scope="module")

@@ -9,7 +9,7 @@ from pathlib import Path
 import typer
 
 from pilewise.cli import app
-from pilewise.exports import EXPORT_FILES
+from pilewise.output.exports import EXPORT_FILES
 
 ROOT = Path(__file__).resolve().parents[1]
 

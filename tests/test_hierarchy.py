@@ -13,8 +13,7 @@ from scipy.cluster import hierarchy as sch
 from sklearn.cluster import AgglomerativeClustering
 from sklearn.metrics import adjusted_rand_score
 
-from pilewise.errors import PilewiseError
-from pilewise.hierarchy import (
+from pilewise.clustering.hierarchy import (
     CUT_COLOUR,
     LINK_COLOUR,
     Split,
@@ -27,6 +26,7 @@ from pilewise.hierarchy import (
     ward_tree,
     weighted_ward,
 )
+from pilewise.errors import PilewiseError
 
 # SciPy documentation of scipy.cluster.hierarchy.ward (and fcluster, is_valid_linkage): twelve points in four
 # groups of three. Confirmed in the installed SciPy's docstrings; see shared/CHECKS.md.
@@ -294,7 +294,7 @@ def test_dendrogram_svg_is_deterministic_and_self_contained(small_tree: Tree) ->
 
 def test_dendrogram_svg_is_the_same_in_a_fresh_process(small_tree: Tree) -> None:
     code = (
-        "import numpy as np, sys; from pilewise.hierarchy import Tree, dendrogram_svg; "
+        "import numpy as np, sys; from pilewise.clustering.hierarchy import Tree, dendrogram_svg; "
         "z = np.array(eval(sys.argv[1])); w = np.arange(1, 41, dtype=float); "
         "t = Tree(linkage=z, leaf_of_row=np.arange(40), leaf_weights=w, method='full Ward', n_leaves=40); "
         "sys.stdout.write(dendrogram_svg(t, top=12, cut_k=4))"

@@ -13,8 +13,8 @@ from typer.testing import CliRunner
 
 from pilewise.cli import app
 from pilewise.errors import PilewiseError
-from pilewise.reading import ReadLimits, read_source
-from pilewise.tables import ColumnChoice
+from pilewise.ingest.reading import ReadLimits, read_source
+from pilewise.ingest.tables import ColumnChoice
 
 runner = CliRunner()
 TOPICS = ["soil compost seedling mulch watering", "chain saddle pedal spoke brake", "oven flour dough whisk butter"]

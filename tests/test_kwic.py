@@ -7,8 +7,8 @@ import re
 from hypothesis import given
 from hypothesis import strategies as st
 
-from pilewise.kwic import CONTEXT_CHARS, find_term, kwic_line, kwic_window
-from pilewise.text import Analyzer
+from pilewise.describe.kwic import CONTEXT_CHARS, find_term, kwic_line, kwic_window
+from pilewise.vectors.text import Analyzer
 
 analyzer = Analyzer(stop_words=frozenset({"the", "a"}), stem=False)
 filler = st.text(alphabet=st.sampled_from("abcdefgh \n\t.,"), max_size=200)

@@ -10,7 +10,7 @@ from pathlib import Path
 from typer.testing import CliRunner
 
 from pilewise.cli import app
-from pilewise.names import suggested_name
+from pilewise.describe.names import suggested_name
 
 runner = CliRunner()
 

@@ -12,7 +12,7 @@ from typer.testing import CliRunner
 
 from pilewise.cli import app
 
-open_sets = pytest.importorskip("pilewise.corpora.open_sets")
+open_sets = pytest.importorskip("open_sets")
 
 
 def _load(loader):  # type: ignore[no-untyped-def]

@@ -23,17 +23,12 @@ from typer.testing import CliRunner
 
 from pilewise import pipeline
 from pilewise.cli import app
-from pilewise.compare import compare_run_folders
+from pilewise.csvcells import read_spreadsheet_cell, spreadsheet_cell
+from pilewise.describe.compare import compare_run_folders
+from pilewise.describe.names import find_old_names, read_names_csv
 from pilewise.errors import PilewiseError
-from pilewise.names import find_old_names, read_names_csv
 from pilewise.options import RunOptions
-from pilewise.outfolder import (
-    MARKER,
-    name_lock,
-    read_spreadsheet_cell,
-    safe_name,
-    spreadsheet_cell,
-)
+from pilewise.output.outfolder import MARKER, name_lock, safe_name
 
 runner = CliRunner()
 SRC = str(Path(__file__).resolve().parents[1] / "src")
@@ -303,7 +298,7 @@ def test_a_second_run_of_the_same_name_is_told_at_once(
     run_ok(str(topic_folder), "--k", "3", "--out", str(out))
     before = (out / "runs" / "k3" / "manifest.json").read_bytes()
     holder = subprocess.Popen(  # another process holds the lock, as a running pilewise does
-        [sys.executable, "-c", "import sys; from pathlib import Path; from pilewise.outfolder import name_lock\n"
+        [sys.executable, "-c", "import sys; from pathlib import Path; from pilewise.output.outfolder import name_lock\n"
          f"with name_lock(Path({str(out / 'runs' / 'k3')!r}), what='--name'):\n"
          "    print('locked', flush=True); sys.stdin.readline()"],
         stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True, env={**os.environ, "PYTHONPATH": SRC},
@@ -363,7 +358,7 @@ def test_a_full_disk_while_writing_is_one_line_and_keeps_the_old_run(
     def full(*args: object, **kwargs: object) -> None:
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
-    monkeypatch.setattr("pilewise.exports._write_json", full)
+    monkeypatch.setattr("pilewise.output.exports._write_json", full)
     result = invoke("run", str(topic_folder), "--k", "3", "--out", str(out), "--seed", "9")
     assert_one_line_error(result, f"cannot write to --out {out}: {os.strerror(errno.ENOSPC)}; free space or "
                                   "choose another --out")
@@ -377,7 +372,7 @@ def test_a_read_only_out_is_one_line_before_any_computation(
         raise OSError(errno.EROFS, os.strerror(errno.EROFS))
 
     refuse_compute(monkeypatch)
-    monkeypatch.setattr("pilewise.outfolder.mark", read_only)
+    monkeypatch.setattr("pilewise.output.outfolder.mark", read_only)
     out = tmp_path / "site"
     result = invoke("run", str(topic_folder), "--k", "3", "--out", str(out))
     assert_one_line_error(result, f"cannot write to --out {out}: {os.strerror(errno.EROFS)}; choose a folder you "

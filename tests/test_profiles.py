@@ -10,7 +10,7 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 from scipy.stats.contingency import association
 
-from pilewise.profiles import (
+from pilewise.describe.profiles import (
     BLANK,
     SKIP_REASONS,
     CategoricalColumn,

@@ -10,8 +10,8 @@ import pytest
 import scipy.sparse as sp
 from sklearn.metrics import calinski_harabasz_score, davies_bouldin_score, silhouette_score
 
-from pilewise import quality
-from pilewise.quality import assess, calinski_harabasz_davies_bouldin, silhouette_reading
+from pilewise.clustering import quality
+from pilewise.clustering.quality import assess, calinski_harabasz_davies_bouldin, silhouette_reading
 
 
 def test_davies_bouldin_matches_scikit_learn_documentation_example() -> None:

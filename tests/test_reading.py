@@ -8,9 +8,9 @@ from pathlib import Path
 import pytest
 
 from pilewise.errors import PilewiseError
-from pilewise.plaintext import first_line_title
-from pilewise.reading import ReadLimits, html_to_text, read_source, strip_mail_quotes
-from pilewise.tables import ColumnChoice
+from pilewise.ingest.plaintext import first_line_title
+from pilewise.ingest.reading import ReadLimits, html_to_text, read_source, strip_mail_quotes
+from pilewise.ingest.tables import ColumnChoice
 
 LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
 

@@ -14,8 +14,8 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from pilewise.cli import app
-from pilewise.reading import ReadLimits, read_source, stream_source
-from pilewise.tables import ColumnChoice
+from pilewise.ingest.reading import ReadLimits, read_source, stream_source
+from pilewise.ingest.tables import ColumnChoice
 
 runner = CliRunner()
 LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)

@@ -12,8 +12,8 @@ import pandas as pd
 import pytest
 
 from pilewise.errors import PilewiseError
-from pilewise.reading import ReadLimits, read_source, stream_source
-from pilewise.tables import SAMPLE_ROWS, ColumnChoice
+from pilewise.ingest.reading import ReadLimits, read_source, stream_source
+from pilewise.ingest.tables import SAMPLE_ROWS, ColumnChoice
 
 LIMITS = ReadLimits(max_file_bytes=50_000_000, max_doc_chars=300)
 WORDS = ["soil", "compost", "seedling", "mulch", "chain", "saddle", "pedal", "spoke", "oven", "flour", "dough", "whisk"]

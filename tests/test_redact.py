@@ -8,8 +8,8 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from pilewise.redact import KINDS, LABELS, PLACEHOLDERS, Redaction, display_text, iban_valid, luhn_valid, redact
-from pilewise.text import PLACEHOLDER_PREFIX, Analyzer
+from pilewise.ingest.redact import KINDS, LABELS, PLACEHOLDERS, Redaction, display_text, iban_valid, luhn_valid, redact
+from pilewise.vectors.text import PLACEHOLDER_PREFIX, Analyzer
 
 analyzer = Analyzer(stop_words=frozenset(), stem=False)
 

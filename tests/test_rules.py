@@ -17,7 +17,7 @@ import scipy.sparse as sp
 from sklearn.metrics import accuracy_score, f1_score
 from sklearn.model_selection import StratifiedKFold, cross_val_predict
 
-from pilewise.rules import (
+from pilewise.describe.rules import (
     MIN_COVERAGE,
     MIN_PRECISION,
     ChiSquareTreeClassifier,

@@ -10,7 +10,7 @@ import pytest
 import scipy.sparse as sp
 from sklearn.cluster import KMeans
 
-from pilewise.stability import (
+from pilewise.clustering.stability import (
     STABILITY_READINGS,
     best_jaccard,
     bootstrap_stability,

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy.stats import chi2_contingency
 
-from pilewise.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
+from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
 
 
 def test_chi_square_matches_iir_export_poultry_example() -> None:

@@ -14,12 +14,12 @@ from sklearn.feature_extraction.text import HashingVectorizer
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 from typer.testing import CliRunner
 
-import pilewise.describe as describe
+import pilewise.describe.summaries as describe
 from pilewise.cli import app
-from pilewise.describe import NearestDigest
+from pilewise.describe.summaries import NearestDigest
 from pilewise.progress import Reporter, progress_line
-from pilewise.streaming import HASH_BUCKETS, column_names, hashed_counts
-from pilewise.text import Analyzer, load_stop_words
+from pilewise.vectors.streaming import HASH_BUCKETS, column_names, hashed_counts
+from pilewise.vectors.text import Analyzer, load_stop_words
 
 TEXTS = [
     "The courier left the parcel at the wrong door, and the parcel was wet.",
@@ -252,7 +252,7 @@ def test_a_streamed_run_shows_progress_on_a_terminal_and_nothing_when_quiet(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
     tmp_path: Path,
 ) -> None:
-    import pilewise.streaming as streaming
+    import pilewise.vectors.streaming as streaming
     from pilewise.options import RunOptions
     from pilewise.pipeline import run_collection
 

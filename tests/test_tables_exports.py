@@ -15,9 +15,9 @@ from typer.testing import CliRunner
 
 from pilewise.cli import app
 from pilewise.errors import PilewiseError
+from pilewise.ingest.reading import ReadLimits, read_source
+from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Ingested
-from pilewise.reading import ReadLimits, read_source
-from pilewise.tables import ColumnChoice
 
 LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
 runner = CliRunner()
@@ -409,7 +409,7 @@ def test_a_dos_code_page_guess_yields_to_cp1252_when_cp1252_reads_as_well(
     the bytes are cp1252 (Python's codec tables are the reference), so cp1252 must win. Text in a DOS
     page that cp1252 cannot read cleanly keeps the detector's answer.
     """
-    from pilewise import plaintext
+    from pilewise.ingest import plaintext
 
     monkeypatch.setattr(plaintext.charset_normalizer, "from_bytes", lambda raw: _Matches([_Match(dos_page)]))
     western = "“Quoted” start – the printer’s queue is stuck; ‘naïve’ café order".encode("cp1252")

@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from pilewise.clustering import cosine_to_centroids
-from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import VectorSettings, default_min_df, tfidf_weights, vectorize, with_phrases
+from pilewise.clustering.kmeans import cosine_to_centroids
+from pilewise.vectors.text import Analyzer, load_stop_words
+from pilewise.vectors.tfidf import VectorSettings, default_min_df, tfidf_weights, vectorize, with_phrases
 
 
 def test_tfidf_matches_the_scikit_learn_user_guide_example() -> None:
@@ -86,7 +86,7 @@ def test_bulk_tokenizing_gives_the_same_tokens_as_nltk() -> None:
     # The analyzer compiles nltk's RegexpTokenizer pattern with `re` for speed; the tokens must not differ.
     from nltk.tokenize import RegexpTokenizer
 
-    from pilewise.text import TOKEN_PATTERN
+    from pilewise.vectors.text import TOKEN_PATTERN
 
     text = "Re-potted the Monstera; it's fine — don't panic! Café naïve e-mail log-in 42 x y-z O'Neil -- a'b"
     analyzer = Analyzer(stop_words=frozenset(), stem=False)
@@ -99,7 +99,7 @@ def test_phrase_counts_follow_the_text_order() -> None:
     """Regression: sorting the word matrix in place once scrambled the adjacent pairs."""
     import random
 
-    from pilewise.vectors import count_terms
+    from pilewise.vectors.tfidf import count_terms
 
     analyzer = Analyzer(stop_words=frozenset({"the"}), stem=False)
     rng = random.Random(0)

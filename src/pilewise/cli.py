@@ -12,10 +12,10 @@ from typing import Annotated, Any, TypeVar
 import typer
 from typer.core import TyperGroup
 
+from pilewise.clustering.sweep import parse_k_range
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions, validate
 from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
-from pilewise.sweep import parse_k_range
 
 # click's exception classes, from wherever this typer takes them (recent typer carries its own copy of click)
 _click_errors: Any = importlib.import_module(typer.BadParameter.__module__)
@@ -301,7 +301,7 @@ def demo(
     quiet: QuietOption = False,
 ) -> None:
     """Write the invented demo collection (a plant shop's customer messages) and cluster it."""
-    from pilewise.corpora.shop_messages import write_demo_collection
+    from pilewise.demo.shop_messages import write_demo_collection
 
     options = RunOptions(source=out.resolve() / "demo-data", k=k, out=out, seed=seed, name=f"demo-k{k}",
                          quiet=quiet)

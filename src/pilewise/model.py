@@ -4,6 +4,22 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # stage types for annotations only: model stays importable by every stage, without cycles
+    import numpy as np
+
+    from pilewise.clustering.kmeans import Clustering
+    from pilewise.clustering.levels import Levels
+    from pilewise.clustering.stability import StabilityResult
+    from pilewise.clustering.sweep import Sweep
+    from pilewise.describe.names import Naming
+    from pilewise.describe.profiles import ClusterProfile, MetadataAnalysis
+    from pilewise.describe.rules import RuleSet
+    from pilewise.ingest.dedup import Boilerplate
+    from pilewise.options import RunOptions
+    from pilewise.vectors.text import Analyzer
+    from pilewise.vectors.tfidf import Vectorized
 
 
 @dataclass(frozen=True)
@@ -113,3 +129,46 @@ class QualityScores:
     davies_bouldin: float | None
     silhouette_reading: str = ""
     per_cluster_silhouette: tuple[float, ...] = field(default_factory=tuple)
+
+
+@dataclass(frozen=True)
+class Collection:
+    """Documents and how they map onto the distinct texts that were clustered."""
+
+    documents: Sequence[Document]
+    text_of_doc: np.ndarray  # (n_docs,) index of each document's distinct text
+    first_doc_of_text: np.ndarray  # (n_texts,) the first document holding each distinct text
+    copies: np.ndarray  # (n_texts,) how many documents hold each distinct text
+    exact_texts: int | None = None  # distinct texts before near-duplicates were grouped; None: n_texts
+
+    @property
+    def distinct_texts(self) -> int:
+        """Exactly distinct texts (after collapsing white space), before near-duplicate grouping."""
+        return int(self.copies.size) if self.exact_texts is None else self.exact_texts
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """Everything computed for one run, ready to be written."""
+
+    options: RunOptions
+    name: str
+    k: int
+    ingested: Ingested
+    collection: Collection
+    vectors: Vectorized
+    clustering: Clustering
+    quality: QualityScores
+    stability: StabilityResult
+    clusters: tuple[ClusterSummary, ...]
+    analyzer: Analyzer
+    levels: Levels
+    sweep: Sweep | None
+    naming: Naming
+    boilerplate: Boilerplate
+    redacted: dict[str, int]
+    profiles: tuple[ClusterProfile, ...]
+    rules: RuleSet
+    metadata: MetadataAnalysis | None
+    fingerprint: str
+    timings: dict[str, float]

@@ -19,8 +19,23 @@ from pathlib import Path
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
-from pilewise.dedup import (
+from pilewise.clustering.hierarchy import Tree, cut_tree, ward_tree
+from pilewise.clustering.kmeans import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
+from pilewise.clustering.levels import build_levels, centroid_tree
+from pilewise.clustering.quality import assess
+from pilewise.clustering.stability import (
+    ClusterFn,
+    bootstrap_stability,
+    kmeans_cluster_fn,
+    stability_rows,
+)
+from pilewise.clustering.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
+from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names, suggested_name
+from pilewise.describe.profiles import MetadataAnalysis, analyse_metadata, term_profiles_from_counts
+from pilewise.describe.rules import RULES_ROWS, RuleSet, explain_clusters
+from pilewise.describe.summaries import describe_clusters
+from pilewise.errors import PilewiseError
+from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
     Boilerplate,
     NearDuplicates,
@@ -28,13 +43,11 @@ from pilewise.dedup import (
     near_duplicate_groups,
     strip_texts,
 )
-from pilewise.describe import Collection, describe_clusters
-from pilewise.errors import PilewiseError
-from pilewise.exports import write_exports, write_manifest
-from pilewise.hierarchy import Tree, cut_tree, ward_tree
-from pilewise.levels import Levels, build_levels, centroid_tree
-from pilewise.model import ClusterSummary, Document, Ingested, QualityScores, fingerprint_record
-from pilewise.names import Naming, carry_names, earlier_run_problems, find_old_names, suggested_name
+from pilewise.ingest.reading import ReadLimits, SourceStream, stream_source
+from pilewise.ingest.redact import redact_document
+from pilewise.ingest.shelf import DocumentShelf
+from pilewise.ingest.tables import ColumnChoice
+from pilewise.model import Collection, Document, Ingested, RunResult, fingerprint_record
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
     RunOptions,
@@ -44,57 +57,16 @@ from pilewise.options import (
     table_delimiter,
     validate,
 )
-from pilewise.outfolder import check_replaceable, claim_site, inside, mark, name_lock, site_lock, writing_to
-from pilewise.profiles import ClusterProfile, MetadataAnalysis, analyse_metadata, term_profiles_from_counts
+from pilewise.output.exports import write_exports, write_manifest
+from pilewise.output.outfolder import check_replaceable, claim_site, inside, mark, name_lock, site_lock, writing_to
+from pilewise.output.site import render_root_index, render_run_site
 from pilewise.progress import Reporter
-from pilewise.quality import assess
-from pilewise.reading import ReadLimits, SourceStream, stream_source
-from pilewise.redact import redact_document
-from pilewise.rules import RULES_ROWS, RuleSet, explain_clusters
-from pilewise.shelf import DocumentShelf
-from pilewise.site import render_root_index, render_run_site
-from pilewise.stability import (
-    ClusterFn,
-    StabilityResult,
-    bootstrap_stability,
-    kmeans_cluster_fn,
-    stability_rows,
-)
-from pilewise.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
-from pilewise.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
-from pilewise.tables import ColumnChoice
-from pilewise.text import Analyzer, load_stop_words
-from pilewise.vectors import Vectorized, VectorSettings, vectorize
+from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
+from pilewise.vectors.text import Analyzer, load_stop_words
+from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
 
 REDACTION_OFF = "redaction is off (--no-redact); pages and exports show personal data as written"
 BOILERPLATE_OFF = "boilerplate removal is off (--keep-boilerplate); every line of every text is vectorized"
-
-
-@dataclass(frozen=True)
-class RunResult:
-    """Everything computed for one run, ready to be written."""
-
-    options: RunOptions
-    name: str
-    k: int
-    ingested: Ingested
-    collection: Collection
-    vectors: Vectorized
-    clustering: Clustering
-    quality: QualityScores
-    stability: StabilityResult
-    clusters: tuple[ClusterSummary, ...]
-    analyzer: Analyzer
-    levels: Levels
-    sweep: Sweep | None
-    naming: Naming
-    boilerplate: Boilerplate
-    redacted: dict[str, int]
-    profiles: tuple[ClusterProfile, ...]
-    rules: RuleSet
-    metadata: MetadataAnalysis | None
-    fingerprint: str
-    timings: dict[str, float]
 
 
 @dataclass(frozen=True)
@@ -169,7 +141,7 @@ class SweepOutcome:
 
 def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> SweepOutcome:
     """Vectorize once, score every k of the range, and write OUT/sweeps/NAME/ (page, curves, sweep.json)."""
-    from pilewise.site import render_sweep
+    from pilewise.output.site import render_sweep
 
     reporter = reporter or Reporter(quiet=options.quiet)
     options = replace(options, mode="memory")  # a sweep clusters at every k in memory
@@ -207,8 +179,8 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
     The page goes to OUT/compare/A--B/, OUT being the site folder holding both runs unless given; A and
     B are the runs' recorded names made safe for a path, and the folder is checked to stay under OUT.
     """
-    from pilewise.compare import compare_run_folders, comparison_document
-    from pilewise.site import render_comparison
+    from pilewise.describe.compare import compare_run_folders, comparison_document
+    from pilewise.output.site import render_comparison
 
     document = comparison_document(compare_run_folders(run_a, run_b))
     if out is None:

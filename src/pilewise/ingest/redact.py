@@ -4,7 +4,7 @@ and IP addresses.
 Design: `redact` returns ONE text in which every value found is replaced by a placeholder word,
 ``xredacted<kind>`` (``xredactedemail``, ``xredactedphone``, ``xredactedcard``, ``xredactediban``,
 ``xredactedip``). That text is the one vectorized (the analyzer drops every token that starts with
-`pilewise.text.PLACEHOLDER_PREFIX`, so a placeholder never becomes a term) and the one shown, after
+`PLACEHOLDER_PREFIX`, so a placeholder never becomes a term) and the one shown, after
 `display_text` has turned the placeholders into bracket labels ("[e-mail]", "[phone]", "[card]", "[IBAN]",
 "[IP address]"). One text means that terms, keyword-in-context windows and exemplars are all computed on
 the string that is shown, and that the original value exists in no output.
@@ -74,8 +74,10 @@ import re
 from dataclasses import dataclass, replace
 
 from pilewise.model import Document
-from pilewise.text import PLACEHOLDER_PREFIX
 
+# The placeholder redaction puts in place of personal data; never a term (the analyzer in
+# `pilewise.vectors.text` imports it from here, so ingest does not depend on the vectors stage).
+PLACEHOLDER_PREFIX = "xredacted"
 KINDS = ("email", "phone", "card", "iban", "ip")
 # The word put in place of a value of each kind; the analyzer drops it (it starts with PLACEHOLDER_PREFIX).
 PLACEHOLDERS = {kind: PLACEHOLDER_PREFIX + kind for kind in KINDS}

@@ -12,8 +12,8 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.preprocessing import normalize
 
-from pilewise.clustering import ROW_BLOCK, Clustering, weighted_sums
-from pilewise.hierarchy import Split, Tree, cuts_for_range, dendrogram_svg, split_table, weighted_ward
+from pilewise.clustering.hierarchy import Split, Tree, cuts_for_range, dendrogram_svg, split_table, weighted_ward
+from pilewise.clustering.kmeans import ROW_BLOCK, Clustering, weighted_sums
 
 DENDROGRAM_LEAVES = 30
 

@@ -25,8 +25,8 @@ import numpy as np
 import pandas as pd
 
 from pilewise.errors import PilewiseError
+from pilewise.ingest.plaintext import detect_encoding, first_line_title
 from pilewise.model import Document, IngestEntry
-from pilewise.plaintext import detect_encoding, first_line_title
 
 TABLE_SUFFIXES = {".csv", ".tsv", ".json", ".jsonl", ".ndjson", ".parquet"}
 

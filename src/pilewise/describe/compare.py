@@ -17,8 +17,8 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score, homogeneity_completeness_v_measure, normalized_mutual_info_score
 
+from pilewise.csvcells import read_spreadsheet_cell, read_spreadsheet_row
 from pilewise.errors import PilewiseError
-from pilewise.outfolder import read_spreadsheet_cell, read_spreadsheet_row
 
 # Thresholds of the readings (our choice; see cluster_fates).
 SHARE_MIN = 0.2  # a cluster of the other run is a partner when it holds this share of the members

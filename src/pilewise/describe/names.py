@@ -20,7 +20,7 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.preprocessing import normalize
 
-from pilewise.outfolder import read_spreadsheet_cell, read_spreadsheet_row, spreadsheet_row
+from pilewise.csvcells import read_spreadsheet_cell, read_spreadsheet_row, spreadsheet_row
 
 JACCARD_CARRY = 0.5  # a name carries over to the new cluster whose members overlap the old one's this much
 CENTROID_CARRY = 0.8  # cosine of centroids, for new clusters that hold mostly new documents

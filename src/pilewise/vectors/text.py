@@ -15,13 +15,12 @@ from nltk.tokenize import RegexpTokenizer
 from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
 
 from pilewise.errors import PilewiseError
+from pilewise.ingest.redact import PLACEHOLDER_PREFIX  # redaction's placeholder words are never terms
 
 # Runs of letters, with inner apostrophes and hyphens kept ("don't", "log-in"); one-letter words are
 # dropped by the analyzer. Each repetition of the group must start with ' or -, so matching is linear.
 TOKEN_PATTERN = r"[^\W\d_]+(?:['\-][^\W\d_]+)*"
 _MISSING = object()
-# The placeholder redaction puts in place of personal data; never a term.
-PLACEHOLDER_PREFIX = "xredacted"
 
 
 def load_stop_words(extra_file: Path | None) -> frozenset[str]:

@@ -12,13 +12,16 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 from urllib.parse import quote
 
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
-from pilewise.model import ClusterSummary, Document
-from pilewise.outfolder import (
+from pilewise.clustering.sweep import Sweep
+from pilewise.describe.rules import RULES_ROWS
+from pilewise.ingest.redact import display_text, redact
+from pilewise.model import ClusterSummary, Document, RunResult
+from pilewise.output.outfolder import (
     check_replaceable,
     inside,
     mark,
@@ -27,12 +30,6 @@ from pilewise.outfolder import (
     site_lock,
     write_text_atomically,
 )
-from pilewise.redact import display_text, redact
-from pilewise.rules import RULES_ROWS
-from pilewise.sweep import Sweep
-
-if TYPE_CHECKING:
-    from pilewise.pipeline import RunResult
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
@@ -50,7 +47,7 @@ CAUTION = (
 
 def _environment() -> Environment:
     env = Environment(
-        loader=PackageLoader("pilewise.site", "templates"),
+        loader=PackageLoader("pilewise.output.site", "templates"),
         autoescape=True,
         undefined=StrictUndefined,
         trim_blocks=True,
@@ -63,7 +60,7 @@ def _environment() -> Environment:
 
 
 def _copy_stylesheet(folder: Path) -> None:
-    source = files("pilewise.site").joinpath("static", STYLESHEET)
+    source = files("pilewise.output.site").joinpath("static", STYLESHEET)
     (folder / STYLESHEET).write_bytes(source.read_bytes())
 
 
@@ -204,9 +201,9 @@ def _render_levels(folder: Path, result: RunResult, env: Environment, common: di
 
 def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source: str = "", method: str = "") -> Path:
     """sweep.html (or index.html for a stand-alone sweep), sweep-curves.svg and, stand-alone, sweep.json."""
-    from pilewise.exports import sweep_document
-    from pilewise.plots import sweep_curves_svg
-    from pilewise.sweep import RECOMMENDATION_RULE
+    from pilewise.clustering.sweep import RECOMMENDATION_RULE
+    from pilewise.output.exports import sweep_document
+    from pilewise.output.plots import sweep_curves_svg
 
     folder.mkdir(parents=True, exist_ok=True)
     ks = [p.k for p in sweep.points]
@@ -397,7 +394,7 @@ def _auto_comparisons(out: Path, runs: list[dict[str, Any]], notes: list[str]) -
 
     A pair that cannot be compared (a damaged or edited export) is left out, with a line in `notes`.
     """
-    from pilewise.compare import compare_run_folders, comparison_document
+    from pilewise.describe.compare import compare_run_folders, comparison_document
     from pilewise.errors import PilewiseError
 
     by_input: dict[str, list[dict[str, Any]]] = {}

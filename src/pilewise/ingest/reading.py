@@ -21,9 +21,9 @@ from pathlib import Path
 from bs4 import BeautifulSoup
 
 from pilewise.errors import PilewiseError
+from pilewise.ingest.plaintext import decode_bytes, first_line_title
+from pilewise.ingest.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_table
 from pilewise.model import Document, Ingested, IngestEntry
-from pilewise.plaintext import decode_bytes, first_line_title
-from pilewise.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_table
 
 TEXT_SUFFIXES = {".txt", ".md", ".markdown", ".text"}
 HTML_SUFFIXES = {".html", ".htm", ".xhtml"}

@@ -7,7 +7,7 @@ e-mail addresses are all made up. E-mail addresses only use the RFC 2606 reserve
 Everything is derived from ``random.Random(seed)``: two calls with the same seed and message count
 write byte-identical files.
 
-Run ``python -m pilewise.corpora.shop_messages OUTPUT_FOLDER`` to write the collection.
+Run ``python -m pilewise.demo.shop_messages OUTPUT_FOLDER`` to write the collection.
 """
 
 from __future__ import annotations

@@ -5,8 +5,7 @@ cache by ``bash corpora/fetch.sh`` (``--all`` for the larger ones); nothing here
 ``corpora/README.md`` for what each collection is, its source and its licence.
 
 The cache folder is ``$PILEWISE_CORPORA`` when that variable is set, else ``corpora/.cache`` in the
-repository (found next to this module in a source checkout or an editable install, or under the current
-working directory when pilewise is installed into site-packages and run from the repository root).
+repository (found from this module's place in tests/, or under the current working directory).
 
 Every loader returns a :class:`LabeledCollection` and raises :class:`CorpusNotFetchedError` (a
 ``FileNotFoundError``) saying which command fetches the missing files.
@@ -91,8 +90,8 @@ def cache_dir() -> Path:
     Returns
     -------
     pathlib.Path
-        ``$PILEWISE_CORPORA`` if set; otherwise the first existing folder among ``.cache`` next to this
-        module and ``corpora/.cache`` under the current working directory.
+        ``$PILEWISE_CORPORA`` if set; otherwise the first existing folder among ``corpora/.cache`` of the
+        repository holding this module and ``corpora/.cache`` under the current working directory.
 
     Raises
     ------
@@ -105,7 +104,7 @@ def cache_dir() -> Path:
         if not path.is_dir():
             raise CorpusNotFetchedError(f"{FETCH_HINT} (missing: {path}, from ${ENV_VAR})")
         return path
-    candidates = [Path(__file__).resolve().parent / ".cache", Path.cwd() / "corpora" / ".cache"]
+    candidates = [Path(__file__).resolve().parents[1] / "corpora" / ".cache", Path.cwd() / "corpora" / ".cache"]
     for path in candidates:
         if path.is_dir():
             return path

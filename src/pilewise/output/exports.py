@@ -14,17 +14,14 @@ from dataclasses import asdict
 from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
-from pilewise.model import ClusterSummary, TermScore
-from pilewise.names import write_names_csv
-from pilewise.outfolder import spreadsheet_cell, spreadsheet_row
-from pilewise.rules import RULES_ROWS
-from pilewise.stability import STABILITY_ROWS
-from pilewise.sweep import RECOMMENDATION_RULE, Sweep
-
-if TYPE_CHECKING:
-    from pilewise.pipeline import RunResult
+from pilewise.clustering.stability import STABILITY_ROWS
+from pilewise.clustering.sweep import RECOMMENDATION_RULE, Sweep
+from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
+from pilewise.describe.names import write_names_csv
+from pilewise.describe.rules import RULES_ROWS
+from pilewise.model import ClusterSummary, RunResult, TermScore
 
 EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv",
                 "names.csv", "boilerplate.csv")

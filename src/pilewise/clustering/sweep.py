@@ -8,10 +8,10 @@ from dataclasses import dataclass, replace
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, farthest_row, kmeans_clusters
+from pilewise.clustering.kmeans import Clustering, farthest_row, kmeans_clusters
+from pilewise.clustering.quality import assess
+from pilewise.clustering.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn, stability_rows
 from pilewise.errors import PilewiseError
-from pilewise.quality import assess
-from pilewise.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn, stability_rows
 
 SWEEP_RESAMPLES = 10  # bootstrap resamples per k inside a sweep (a run's own stability uses --resamples)
 STABLE = 0.75  # Hennig's clusterboot documentation: ">= 0.75 valid, stable"

@@ -28,7 +28,7 @@ from sklearn.metrics import accuracy_score, f1_score
 from sklearn.model_selection import StratifiedKFold, cross_val_predict
 from sklearn.tree import DecisionTreeClassifier
 
-from pilewise.stats import chi_square_2x2
+from pilewise.describe.stats import chi_square_2x2
 
 RULES_ROWS = 20_000  # distinct texts the pipeline fits and cross-validates rules on (a seeded sample above)
 MAX_FOLDS = 5  # held-out folds; fewer when a cluster (or the rest) has fewer distinct texts

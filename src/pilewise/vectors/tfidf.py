@@ -19,7 +19,7 @@ from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.preprocessing import normalize
 
 from pilewise.errors import PilewiseError
-from pilewise.text import Analyzer
+from pilewise.vectors.text import Analyzer
 
 
 @dataclass(frozen=True)

@@ -30,15 +30,14 @@ from sklearn.decomposition import TruncatedSVD
 from sklearn.preprocessing import normalize
 from sklearn.utils import murmurhash3_32
 
-from pilewise.dedup import NO_BOILERPLATE, Boilerplate, find_boilerplate, strip_boilerplate
-from pilewise.describe import Collection
 from pilewise.errors import PilewiseError
-from pilewise.model import Document, fingerprint_record
+from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, find_boilerplate, strip_boilerplate
+from pilewise.ingest.redact import redact_document
+from pilewise.ingest.shelf import DocumentShelf, shelf_record
+from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
-from pilewise.redact import redact_document
-from pilewise.shelf import DocumentShelf, shelf_record
-from pilewise.text import Analyzer
-from pilewise.vectors import Vectorized, VectorSettings, default_min_df, smooth_idf, tfidf_rows
+from pilewise.vectors.text import Analyzer
+from pilewise.vectors.tfidf import Vectorized, VectorSettings, default_min_df, smooth_idf, tfidf_rows
 
 HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
 CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step

@@ -8,18 +8,17 @@ keyword-in-context lines for the top terms.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 
-from pilewise.clustering import Clustering, cluster_sums
-from pilewise.kwic import kwic_line
-from pilewise.model import ClusterSummary, Document, KwicLine, Neighbour, QualityScores, TermScore
-from pilewise.stability import StabilityResult
-from pilewise.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
-from pilewise.text import Analyzer
-from pilewise.vectors import Vectorized
+from pilewise.clustering.kmeans import Clustering, cluster_sums
+from pilewise.clustering.stability import StabilityResult
+from pilewise.describe.kwic import kwic_line
+from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
+from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
+from pilewise.vectors.text import Analyzer
+from pilewise.vectors.tfidf import Vectorized
 
 NEAREST_SHOWN = 5
 KWIC_TERMS = 5
@@ -27,22 +26,6 @@ KWIC_LINES_PER_TERM = 5
 KWIC_HOLDERS_KEPT = 20  # members holding a top term kept per cluster and term, nearest first
 ROW_BLOCK = 65_536  # rows per block in passes over all rows
 PRIOR_MASS = 1000.0  # Dirichlet pseudo-counts in all; our choice, see docs/method.md
-
-
-@dataclass(frozen=True)
-class Collection:
-    """Documents and how they map onto the distinct texts that were clustered."""
-
-    documents: Sequence[Document]
-    text_of_doc: np.ndarray  # (n_docs,) index of each document's distinct text
-    first_doc_of_text: np.ndarray  # (n_texts,) the first document holding each distinct text
-    copies: np.ndarray  # (n_texts,) how many documents hold each distinct text
-    exact_texts: int | None = None  # distinct texts before near-duplicates were grouped; None: n_texts
-
-    @property
-    def distinct_texts(self) -> int:
-        """Exactly distinct texts (after collapsing white space), before near-duplicate grouping."""
-        return int(self.copies.size) if self.exact_texts is None else self.exact_texts
 
 
 def describe_clusters(

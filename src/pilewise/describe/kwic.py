@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import re
 
-from pilewise.redact import display_text
-from pilewise.text import Analyzer
+from pilewise.ingest.redact import display_text
+from pilewise.vectors.text import Analyzer
 
 CONTEXT_CHARS = 45
 _SPACE = re.compile(r"\s+")

@@ -25,8 +25,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 
-from pilewise.clustering import cluster_sums
-from pilewise.vectors import document_frequency, smooth_idf, tfidf_rows
+from pilewise.clustering.kmeans import cluster_sums
+from pilewise.vectors.tfidf import document_frequency, smooth_idf, tfidf_rows
 
 # Column typing (our choices; see analyse_metadata).
 NUMERIC_SHARE_MIN = 0.95  # share of non-empty cells that must parse as numbers (or be ISO dates)

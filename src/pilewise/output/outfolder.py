@@ -1,11 +1,11 @@
-"""Safety of the output folder: what pilewise owns there, locks on names, safe paths and CSV cells.
+"""Safety of the output folder: what pilewise owns there, locks on names, safe paths.
 
 pilewise writes into a folder the user names (--out). It marks every folder it writes (the site
 folder and each run, sweep and comparison folder) with a small `.pilewise` file and replaces or
 rewrites only folders and pages that carry that mark (or that an earlier pilewise wrote, recognized by
-its exports). Writers of one name take an exclusive lock, so that two runs cannot interleave. Every
-CSV cell that a spreadsheet would read as a formula is written with a leading single quote (OWASP,
-"CSV Injection"), and pilewise's own readers remove that quote again.
+its exports). Writers of one name take an exclusive lock, so that two runs cannot interleave. CSV
+cells escaped against spreadsheet formulas live in `pilewise.csvcells`, a base module that the
+describe stage (names.csv, compare) can import too.
 """
 
 from __future__ import annotations
@@ -17,7 +17,7 @@ import json
 import os
 import re
 import tempfile
-from collections.abc import Iterable, Iterator
+from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, Any
@@ -33,38 +33,7 @@ NAME_MAX = 60  # characters of one path part built from a recorded name
 # Files by which folders written by an earlier pilewise (before the marker existed) are recognized.
 LEGACY_EXPORTS = {"runs": "manifest.json", "sweeps": "sweep.json", "compare": "compare.json"}
 
-_FORMULA_START = re.compile(r"'*[=+\-@\t\r]")  # OWASP: = + - @ tab CR start a formula; quotes counted
-_ESCAPED = re.compile(r"'+[=+\-@\t\r]")
-_PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _UNSAFE_CHARS = re.compile(r"[^A-Za-z0-9._-]+")
-
-
-# --- CSV cells -----------------------------------------------------------------------------------
-
-def spreadsheet_cell(value: object) -> object:
-    """A CSV cell that no spreadsheet runs as a formula (OWASP "CSV Injection" guidance).
-
-    A text cell that starts with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return (after any
-    single quotes of its own) gets one leading single quote; a plain number such as ``-0.5`` or ``+3``
-    is left alone, and so is every value that is not text. `read_spreadsheet_cell` undoes it exactly.
-    """
-    if not isinstance(value, str) or _PLAIN_NUMBER.fullmatch(value) or not _FORMULA_START.match(value):
-        return value
-    return "'" + value
-
-
-def spreadsheet_row(cells: Iterable[object]) -> list[object]:
-    """Every cell of a row through `spreadsheet_cell`."""
-    return [spreadsheet_cell(cell) for cell in cells]
-
-
-def read_spreadsheet_cell(cell: str) -> str:
-    """The value `spreadsheet_cell` was given: one leading quote removed from an escaped cell."""
-    return cell[1:] if _ESCAPED.match(cell) else cell
-
-
-def read_spreadsheet_row(cells: Iterable[str]) -> list[str]:
-    return [read_spreadsheet_cell(cell) for cell in cells]
 
 
 # --- names used in paths -------------------------------------------------------------------------

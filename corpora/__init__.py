@@ -1,1 +1,0 @@
-"""Collections: the invented demo generator and loaders for open labeled corpora."""

@@ -1,0 +1,1 @@
+"""Clustering stage: k-means, Ward trees and their levels, choosing k, quality and stability."""

@@ -1,0 +1,1 @@
+"""The invented demo collection behind `pilewise demo`."""

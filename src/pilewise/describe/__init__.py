@@ -1,0 +1,1 @@
+"""Describe stage: per-cluster summaries and evidence, profiles, rules, names and run comparisons."""

@@ -1,0 +1,1 @@
+"""Ingest stage: reading SOURCE into documents, redaction, boilerplate and near-duplicates."""

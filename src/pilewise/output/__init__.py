@@ -1,0 +1,1 @@
+"""Output stage: the output folder's safety, CSV/JSON exports, figures and the static site."""

@@ -1,0 +1,1 @@
+"""Vectors stage: the analyzer, counts, TF-IDF and LSA, in memory or streamed."""
