@@ -7,32 +7,23 @@ them into a temporary folder that replaces the run's folder only when complete.
 from __future__ import annotations
 
 import hashlib
-import os
-import shutil
-import tempfile
-import time
-from collections.abc import Callable, Iterable, Iterator, Sequence
-from contextlib import ExitStack, contextmanager
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import scipy.sparse as sp
 
-from pilewise.clustering.hierarchy import Tree, cut_tree, ward_tree
-from pilewise.clustering.kmeans import Clustering, clustering_from_labels, kmeans_clusters, minibatch_clusters
+from pilewise.clustering.hierarchy import Tree, ward_tree
+from pilewise.clustering.kmeans import Clustering
 from pilewise.clustering.levels import build_levels, centroid_tree
+from pilewise.clustering.methods import _cluster_at, _dense, _stability_fn, sweep_k
 from pilewise.clustering.quality import assess
-from pilewise.clustering.stability import (
-    ClusterFn,
-    bootstrap_stability,
-    kmeans_cluster_fn,
-    stability_rows,
-)
-from pilewise.clustering.sweep import SWEEP_RESAMPLES, Sweep, sweep_clusterings, sweep_kmeans
+from pilewise.clustering.stability import bootstrap_stability, stability_rows
+from pilewise.clustering.sweep import Sweep
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names, suggested_name
-from pilewise.describe.profiles import MetadataAnalysis, analyse_metadata, term_profiles_from_counts
-from pilewise.describe.rules import RULES_ROWS, RuleSet, explain_clusters
+from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
+from pilewise.describe.rules import explain_run
 from pilewise.describe.summaries import describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -57,9 +48,9 @@ from pilewise.options import (
     table_delimiter,
     validate,
 )
-from pilewise.output.exports import write_exports, write_manifest
-from pilewise.output.outfolder import check_replaceable, claim_site, inside, mark, name_lock, site_lock, writing_to
-from pilewise.output.site import render_root_index, render_run_site
+from pilewise.output.outfolder import claim_site, site_lock, writing_to
+from pilewise.output.site import render_root_index
+from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run
 from pilewise.progress import Reporter
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
@@ -121,15 +112,6 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     )
 
 
-@contextmanager
-def _claim_name(folder: Path, kind: str, option: str, *, wait: bool = False) -> Iterator[None]:
-    """The lock on OUT/kind/NAME, and the check that pilewise may replace what is there."""
-    inside(folder.parent.parent, folder)
-    with writing_to(folder.parent.parent), name_lock(folder, what=option, wait=wait):
-        check_replaceable(folder, kind, f"pass another {option}")
-        yield
-
-
 @dataclass(frozen=True)
 class SweepOutcome:
     """Where a sweep was written and what it recommends."""
@@ -158,7 +140,7 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
         with reporter.stage("sweeping k"):
             tree = ward_tree(_dense(prepared.vectors.space), prepared.weights, seed=options.seed) \
                 if options.method == "ward" else None
-            result, _ = sweep_k(options, prepared, k_min, k_max, tree, reporter)
+            result, _ = _sweep(options, prepared, k_min, k_max, tree, reporter)
         name = options.name or f"{'ward-' if options.method == 'ward' else ''}k{k_min}-{k_max}"
         folder = options.out / "sweeps" / name
         if not options.name:
@@ -209,36 +191,6 @@ class Prepared:
     redacted: dict[str, int]
     fingerprint: str
     streamed: bool = False
-
-
-@contextmanager
-def _work_folder(out: Path) -> Iterator[Path]:
-    """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end.
-
-    Made before the computation starts, so that an OUT that cannot be written fails at once.
-    """
-    with writing_to(out):
-        out.mkdir(parents=True, exist_ok=True)
-        for stale in out.glob(".work-*-*"):  # left by a killed run; another run may be using its own right now
-            if not _process_alive(stale.name.split("-")[1]):
-                shutil.rmtree(stale, ignore_errors=True)
-        folder = Path(tempfile.mkdtemp(prefix=f".work-{os.getpid()}-", dir=out))
-    try:
-        yield folder
-    finally:
-        shutil.rmtree(folder, ignore_errors=True)
-
-
-def _process_alive(pid: str) -> bool:
-    if not pid.isdigit():
-        return False
-    try:
-        os.kill(int(pid), 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:  # alive, under another user
-        return True
-    return True
 
 
 def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int, work: Path | None = None) -> Prepared:
@@ -394,19 +346,21 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     with reporter.stage("clustering"):
         tree = ward_tree(_dense(space), weights, seed=options.seed) if options.method == "ward" else None
         if options.k_auto:
-            sweep, clusterings = sweep_k(options, prepared, k_min, k_max, tree, reporter)
+            sweep, clusterings = _sweep(options, prepared, k_min, k_max, tree, reporter)
             k = sweep.recommended_k
             reporter.say(f"recommended {sweep.reason}")
             clustering = clusterings[k]
         else:
             k = options.k
-            clustering = _cluster_at(options, prepared, k, tree, reporter)
+            clustering = _cluster_at(space, weights, k, tree, seed=options.seed,
+                                     starts=kmeans_starts(options, distinct), streamed=prepared.streamed,
+                                     reporter=reporter)
     with reporter.stage("assessing"):
         quality = assess(space, clustering.labels, k=k, seed=options.seed)
         rows = stability_rows(distinct, options.seed)
         stability = bootstrap_stability(
             space[rows], weights[rows], clustering.labels[rows], k=k, resamples=options.resamples,
-            seed=options.seed, cluster_fn=_stability_fn(options, k),
+            seed=options.seed, cluster_fn=_stability_fn(options.method, k),
             track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
         )
     with reporter.stage("describing"):
@@ -426,7 +380,8 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
-        rules = explain_run(prepared, clustering.labels, shown, metadata, columns, k=k, seed=options.seed)
+        rules = explain_run(prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns, k=k,
+                            seed=options.seed)
     suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
@@ -444,83 +399,6 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=prepared.fingerprint, timings=reporter.timings,
     )
-
-
-def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
-    if sp.issparse(space):
-        raise PilewiseError("--method ward needs the LSA space; do not pass --lsa-components 0 with it")
-    return np.asarray(space)
-
-
-def _cluster_at(
-    options: RunOptions, prepared: Prepared, k: int, tree: Tree | None, reporter: Reporter | None = None
-) -> Clustering:
-    space, weights = prepared.vectors.space, prepared.weights
-    if tree is not None:
-        return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
-    if prepared.streamed:
-        track = (lambda steps, total: reporter.track(steps, total=total, label="mini-batches", unit="batch")) \
-            if reporter is not None else None
-        return minibatch_clusters(space, weights, k=k, seed=options.seed, track=track)
-    starts = kmeans_starts(options, int(weights.size))
-    return kmeans_clusters(space, weights, k=k, seed=options.seed, n_init=starts)
-
-
-def _stability_fn(options: RunOptions, k: int, cache: dict[int, Tree] | None = None) -> ClusterFn:
-    """Re-clustering of a resample with the run's own method; Ward trees are cached per resample seed."""
-    if options.method != "ward":
-        return kmeans_cluster_fn(k)
-    trees = cache if cache is not None else {}
-
-    def ward_cut(rows: np.ndarray | sp.csr_matrix, weights: np.ndarray, seed: int) -> np.ndarray:
-        if seed not in trees:
-            trees[seed] = ward_tree(np.asarray(rows), weights, seed=seed)
-        return cut_tree(trees[seed], min(k, trees[seed].n_leaves))
-
-    return ward_cut
-
-
-def sweep_k(
-    options: RunOptions, prepared: Prepared, k_min: int, k_max: int, tree: Tree | None, reporter: Reporter
-) -> tuple[Sweep, dict[int, Clustering]]:
-    """Quality and stability for every k of the range, sharing the vectors (and the tree, for Ward)."""
-    space, weights = prepared.vectors.space, prepared.weights
-    ks = list(range(k_min, k_max + 1))
-    say = (lambda k: reporter.say(f"k={k}")) if not reporter.quiet else None
-    if tree is None:
-        return sweep_kmeans(space, weights, ks, seed=options.seed, n_init=kmeans_starts(options, int(weights.size)),
-                            resamples=min(options.resamples, SWEEP_RESAMPLES), on_k=say)
-    cache: dict[int, Tree] = {}
-    k_max = min(k_max, tree.n_leaves)
-    clusterings = {k: _cluster_at(options, prepared, k, tree) for k in range(k_min, k_max + 1)}
-    return sweep_clusterings(space, weights, clusterings, seed=options.seed,
-                             resamples=min(options.resamples, SWEEP_RESAMPLES),
-                             cluster_fn_for=lambda k: _stability_fn(options, k, cache), on_k=say), clusterings
-
-
-def explain_run(
-    prepared: Prepared, labels: np.ndarray, shown: list[str], metadata: MetadataAnalysis | None,
-    columns: dict[str, list[str]], *, k: int, seed: int,
-) -> RuleSet:
-    """Decision rules per cluster on term presence and the categorical table columns."""
-    rows = stability_rows(labels.size, seed, cap=RULES_ROWS)
-    present = prepared.vectors.counts[rows]
-    present = sp.csr_matrix((np.ones_like(present.data), present.indices, present.indptr), shape=present.shape)
-    categorical = [c.column for c in metadata.categorical] if metadata is not None else []
-    fields = {name: [columns[name][i] for i in rows] for name in categorical} or None
-    return explain_clusters(present, labels[rows], prepared.weights[rows], shown, k=k, seed=seed, metadata=fields)
-
-
-def metadata_columns(collection: Collection) -> dict[str, list[str]]:
-    """Extra table columns, one cell per document ("" where a document lacks the column); one pass in reading order."""
-    cells: dict[str, list[str]] = {}
-    for i, doc in enumerate(collection.documents):
-        row = dict(doc.metadata)
-        for name, column in cells.items():
-            column.append(row.pop(name, ""))
-        for name, value in row.items():  # a column first seen here: earlier documents lack it
-            cells[name] = [""] * i + [value]
-    return {name: cells[name] for name in sorted(cells)}
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:
@@ -561,39 +439,11 @@ def fingerprint(documents: Iterable[Document]) -> str:
     return "sha256:" + digest.hexdigest()
 
 
-def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
-    start = time.perf_counter()
-    total = len(result.collection.documents)
-    write_exports(folder, result, track=lambda items: reporter.track(items, total=total, label="writing exports"))
-    render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
-    # the manifest is written again last, so that its timings include writing the exports and pages
-    result.timings["writing site"] = round(time.perf_counter() - start, 3)
-    write_manifest(folder, result)
-
-
-def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
-    """Build into a temporary sibling folder, mark it as pilewise's, and move it into place only when complete.
-
-    The caller holds the lock on the target's name, so the staging folders found here were left by a
-    killed run. The move itself happens under the site's lock, so that the root index never sees the
-    name missing.
-    """
-    target.parent.mkdir(parents=True, exist_ok=True)
-    for stale in target.parent.glob(f".{target.name}-building-*"):  # left by a killed run
-        shutil.rmtree(stale, ignore_errors=True)
-    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
-    try:
-        write(staging)
-        mark(staging)
-        os.chmod(staging, 0o755)
-        with site_lock(target.parent.parent):
-            if target.exists():
-                retired = Path(tempfile.mkdtemp(prefix=f".{target.name}-old-", dir=target.parent))
-                os.replace(target, retired / target.name)
-                os.replace(staging, target)
-                shutil.rmtree(retired, ignore_errors=True)
-            else:
-                os.replace(staging, target)
-    finally:
-        if staging.exists():
-            shutil.rmtree(staging, ignore_errors=True)
+def _sweep(
+    options: RunOptions, prepared: Prepared, k_min: int, k_max: int, tree: Tree | None, reporter: Reporter
+) -> tuple[Sweep, dict[int, Clustering]]:
+    """clustering.methods.sweep_k with the run's options."""
+    weights = prepared.weights
+    return sweep_k(prepared.vectors.space, weights, k_min, k_max, tree, method=options.method, seed=options.seed,
+                   starts=kmeans_starts(options, int(weights.size)), resamples=options.resamples,
+                   say=(lambda k: reporter.say(f"k={k}")) if not reporter.quiet else None)

@@ -26,6 +26,7 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 
 from pilewise.clustering.kmeans import cluster_sums
+from pilewise.model import Collection
 from pilewise.vectors.tfidf import document_frequency, smooth_idf, tfidf_rows
 
 # Column typing (our choices; see analyse_metadata).
@@ -465,3 +466,15 @@ def _quartiles(sample: np.ndarray) -> tuple[float, float, float]:
         return math.nan, math.nan, math.nan
     q1, median, q3 = np.percentile(sample, [25, 50, 75])
     return float(q1), float(median), float(q3)
+
+
+def metadata_columns(collection: Collection) -> dict[str, list[str]]:
+    """Extra table columns, one cell per document ("" where a document lacks the column); one pass in reading order."""
+    cells: dict[str, list[str]] = {}
+    for i, doc in enumerate(collection.documents):
+        row = dict(doc.metadata)
+        for name, column in cells.items():
+            column.append(row.pop(name, ""))
+        for name, value in row.items():  # a column first seen here: earlier documents lack it
+            cells[name] = [""] * i + [value]
+    return {name: cells[name] for name in sorted(cells)}

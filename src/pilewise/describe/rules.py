@@ -28,6 +28,8 @@ from sklearn.metrics import accuracy_score, f1_score
 from sklearn.model_selection import StratifiedKFold, cross_val_predict
 from sklearn.tree import DecisionTreeClassifier
 
+from pilewise.clustering.stability import stability_rows
+from pilewise.describe.profiles import MetadataAnalysis
 from pilewise.describe.stats import chi_square_2x2
 
 RULES_ROWS = 20_000  # distinct texts the pipeline fits and cross-validates rules on (a seeded sample above)
@@ -558,3 +560,20 @@ def _tree_node(model: ChiSquareTreeClassifier, node: int, condition: str, column
         majority_share=float(value[top] / value.sum()),
         children=children,
     )
+
+
+def explain_run(
+    counts: sp.csr_matrix, weights: np.ndarray, labels: np.ndarray, shown: list[str],
+    metadata: MetadataAnalysis | None, columns: dict[str, list[str]], *, k: int, seed: int,
+) -> RuleSet:
+    """Decision rules per cluster on term presence and the categorical table columns.
+
+    `counts` holds the term counts of the distinct texts (one row each), `weights` their copies, and
+    `columns` the table columns' cells of each distinct text.
+    """
+    rows = stability_rows(labels.size, seed, cap=RULES_ROWS)
+    present = counts[rows]
+    present = sp.csr_matrix((np.ones_like(present.data), present.indices, present.indptr), shape=present.shape)
+    categorical = [c.column for c in metadata.categorical] if metadata is not None else []
+    fields = {name: [columns[name][i] for i in rows] for name in categorical} or None
+    return explain_clusters(present, labels[rows], weights[rows], shown, k=k, seed=seed, metadata=fields)

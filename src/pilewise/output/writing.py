@@ -1,0 +1,94 @@
+"""Writing a finished run (or sweep) into OUT: scratch and staging folders, name locks, the move into place."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+from pilewise.model import RunResult
+from pilewise.output.exports import write_exports, write_manifest
+from pilewise.output.outfolder import check_replaceable, inside, mark, name_lock, site_lock, writing_to
+from pilewise.output.site import render_run_site
+from pilewise.progress import Reporter
+
+
+@contextmanager
+def _claim_name(folder: Path, kind: str, option: str, *, wait: bool = False) -> Iterator[None]:
+    """The lock on OUT/kind/NAME, and the check that pilewise may replace what is there."""
+    inside(folder.parent.parent, folder)
+    with writing_to(folder.parent.parent), name_lock(folder, what=option, wait=wait):
+        check_replaceable(folder, kind, f"pass another {option}")
+        yield
+
+
+@contextmanager
+def _work_folder(out: Path) -> Iterator[Path]:
+    """A private scratch folder inside OUT (the streaming path's document shelf), removed at the end.
+
+    Made before the computation starts, so that an OUT that cannot be written fails at once.
+    """
+    with writing_to(out):
+        out.mkdir(parents=True, exist_ok=True)
+        for stale in out.glob(".work-*-*"):  # left by a killed run; another run may be using its own right now
+            if not _process_alive(stale.name.split("-")[1]):
+                shutil.rmtree(stale, ignore_errors=True)
+        folder = Path(tempfile.mkdtemp(prefix=f".work-{os.getpid()}-", dir=out))
+    try:
+        yield folder
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _process_alive(pid: str) -> bool:
+    if not pid.isdigit():
+        return False
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # alive, under another user
+        return True
+    return True
+
+
+def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
+    start = time.perf_counter()
+    total = len(result.collection.documents)
+    write_exports(folder, result, track=lambda items: reporter.track(items, total=total, label="writing exports"))
+    render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
+    # the manifest is written again last, so that its timings include writing the exports and pages
+    result.timings["writing site"] = round(time.perf_counter() - start, 3)
+    write_manifest(folder, result)
+
+
+def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
+    """Build into a temporary sibling folder, mark it as pilewise's, and move it into place only when complete.
+
+    The caller holds the lock on the target's name, so the staging folders found here were left by a
+    killed run. The move itself happens under the site's lock, so that the root index never sees the
+    name missing.
+    """
+    target.parent.mkdir(parents=True, exist_ok=True)
+    for stale in target.parent.glob(f".{target.name}-building-*"):  # left by a killed run
+        shutil.rmtree(stale, ignore_errors=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{target.name}-building-", dir=target.parent))
+    try:
+        write(staging)
+        mark(staging)
+        os.chmod(staging, 0o755)
+        with site_lock(target.parent.parent):
+            if target.exists():
+                retired = Path(tempfile.mkdtemp(prefix=f".{target.name}-old-", dir=target.parent))
+                os.replace(target, retired / target.name)
+                os.replace(staging, target)
+                shutil.rmtree(retired, ignore_errors=True)
+            else:
+                os.replace(staging, target)
+    finally:
+        if staging.exists():
+            shutil.rmtree(staging, ignore_errors=True)
