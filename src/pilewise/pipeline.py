@@ -7,7 +7,7 @@ them into a temporary folder that replaces the run's folder only when complete.
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -21,9 +21,11 @@ from pilewise.clustering.methods import _cluster_at, _dense, _stability_fn, swee
 from pilewise.clustering.quality import assess
 from pilewise.clustering.stability import bootstrap_stability, stability_rows
 from pilewise.clustering.sweep import Sweep
+from pilewise.describe.compare import RunPair, compare_run_folders, comparison_document, site_comparisons
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names, suggested_name
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import explain_run
+from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import describe_clusters
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -48,9 +50,10 @@ from pilewise.options import (
     table_delimiter,
     validate,
 )
-from pilewise.output.outfolder import claim_site, site_lock, writing_to
-from pilewise.output.site import render_root_index
-from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run
+from pilewise.output.exports import write_sweep_json
+from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
+from pilewise.output.site import render_root_index, render_sweep
+from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run, write_comparison
 from pilewise.progress import Reporter
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
@@ -98,7 +101,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
                     held.enter_context(_claim_name(run_folder, "runs", "--name", wait=True))
                 with reporter.stage("writing site"), writing_to(out):
                     _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
-                    root_index = render_root_index(out, warn=reporter.warn)
+                    root_index = refresh_site(out, warn=reporter.warn)
             finally:
                 if isinstance(result.ingested.documents, DocumentShelf):
                     result.ingested.documents.close()
@@ -123,8 +126,6 @@ class SweepOutcome:
 
 def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> SweepOutcome:
     """Vectorize once, score every k of the range, and write OUT/sweeps/NAME/ (page, curves, sweep.json)."""
-    from pilewise.output.site import render_sweep
-
     reporter = reporter or Reporter(quiet=options.quiet)
     options = replace(options, mode="memory")  # a sweep clusters at every k in memory
     validate(options)
@@ -148,10 +149,11 @@ def sweep_collection(options: RunOptions, reporter: Reporter | None = None) -> S
 
         def write(staging: Path) -> None:
             render_sweep(staging, result, name=name, in_run=False, source=str(options.source), method=options.method)
+            write_sweep_json(staging, result, name)
 
         with writing_to(options.out):
             _write_atomically(folder, write)
-            render_root_index(options.out, warn=reporter.warn)
+            refresh_site(options.out, warn=reporter.warn)
     return SweepOutcome(folder / "index.html", result.recommended_k, result.reason)
 
 
@@ -161,9 +163,6 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
     The page goes to OUT/compare/A--B/, OUT being the site folder holding both runs unless given; A and
     B are the runs' recorded names made safe for a path, and the folder is checked to stay under OUT.
     """
-    from pilewise.describe.compare import compare_run_folders, comparison_document
-    from pilewise.output.site import render_comparison
-
     document = comparison_document(compare_run_folders(run_a, run_b))
     if out is None:
         roots = {folder.resolve().parent.parent for folder in (run_a, run_b) if folder.resolve().parent.name == "runs"}
@@ -175,7 +174,32 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
     with writing_to(out):
         claim_site(out)
         with site_lock(out):
-            return render_comparison(out, document, run_a, run_b)
+            return write_comparison(out, document, run_a, run_b)
+
+
+def refresh_site(out: Path, warn: Callable[[str], None] | None = None) -> Path:
+    """Compare the site's runs of one collection and (re)write the comparisons and the root index.
+
+    Runs, sweeps and comparisons that cannot be read are left out and named in a note on the page
+    (and given to `warn`); they never stop the index. One writer at a time (the site's lock).
+    """
+    out.mkdir(parents=True, exist_ok=True)
+    with site_lock(out):
+        runs, notes = read_site_runs(out / "runs", lambda folder: owned(folder, "runs"))
+        pairs, failed = site_comparisons(runs)
+        notes.extend(failed)
+        written: list[tuple[RunPair, Path]] = []
+        for pair in pairs:
+            try:
+                written.append((pair, write_comparison(out, pair.document, pair.run_a.folder, pair.run_b.folder)))
+            except PilewiseError as err:
+                notes.append(f"a comparison was left out: {err}")
+        sweeps, more = read_site_sweeps(out / "sweeps")
+        notes = list(dict.fromkeys([*notes, *more]))
+        if warn is not None:
+            for note in notes:
+                warn(note)
+        return render_root_index(out, runs, written, sweeps, notes)
 
 
 @dataclass(frozen=True)

@@ -6,8 +6,6 @@ counted and left out of every figure.
 
 from __future__ import annotations
 
-import csv
-import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -17,14 +15,13 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score, homogeneity_completeness_v_measure, normalized_mutual_info_score
 
-from pilewise.csvcells import read_spreadsheet_cell, read_spreadsheet_row
+from pilewise.describe.runfolders import Assignments, FinishedRun, open_run, read_assignments
 from pilewise.errors import PilewiseError
 
 # Thresholds of the readings (our choice; see cluster_fates).
 SHARE_MIN = 0.2  # a cluster of the other run is a partner when it holds this share of the members
 KEEP_MIN = 0.8  # "kept": one partner holds this share of the members and draws this share of its own from them
 MOVED_LISTED = 5_000  # moved documents listed in compare.json; the total is always recorded
-RUN_FILES = ("assignments.csv", "clusters.json", "manifest.json")
 
 READINGS_A = ("kept", "split", "merged", "split and merged", "dissolved", "reshaped", "no shared documents")
 """Readings of a cluster of run A: what became of it in run B."""
@@ -328,13 +325,23 @@ def compare_run_folders(folder_a: Path, folder_b: Path) -> Comparison:
     PilewiseError
         When a folder is not a run folder or its files cannot be read.
     """
-    run_a = _load_run(folder_a)
-    run_b = _load_run(folder_b)
+    run_a = open_run(folder_a)
+    rows_a = read_assignments(run_a)
+    run_b = open_run(folder_b)
+    return compare_finished_runs(run_a, run_b, rows_a, read_assignments(run_b))
+
+
+def compare_finished_runs(run_a: FinishedRun, run_b: FinishedRun, rows_a: Assignments,
+                          rows_b: Assignments) -> Comparison:
+    """Compare two finished runs read by `describe.runfolders` (their records and assignments)."""
     name_a, name_b = run_a.name, run_b.name
     if name_a == name_b:
-        name_a, name_b = str(folder_a), str(folder_b)
-    comparison = compare_labelings(run_a.ids, run_a.labels, run_b.ids, run_b.labels, name_a=name_a,
-                                   name_b=name_b, headlines_a=run_a.headlines, headlines_b=run_b.headlines)
+        name_a, name_b = str(run_a.folder), str(run_b.folder)
+    # a name a person gave wins over the exemplar's title
+    headlines_a = {c.cluster_id: c.shown for c in run_a.clusters if c.cluster_id >= 0}
+    headlines_b = {c.cluster_id: c.shown for c in run_b.clusters if c.cluster_id >= 0}
+    comparison = compare_labelings(rows_a.ids, rows_a.labels, rows_b.ids, rows_b.labels, name_a=name_a,
+                                   name_b=name_b, headlines_a=headlines_a, headlines_b=headlines_b)
     notes: list[str] = []
     if run_a.fingerprint and run_a.fingerprint == run_b.fingerprint:
         notes.append("both runs read the same input (equal fingerprints)")
@@ -393,85 +400,6 @@ def comparison_document(c: Comparison) -> dict[str, Any]:
     }
 
 
-@dataclass(frozen=True)
-class _Run:
-    name: str
-    ids: list[str]
-    labels: list[int]
-    headlines: dict[int, str]
-    fingerprint: str
-
-
-def _load_run(folder: Path) -> _Run:
-    """Read one run folder; every problem is a PilewiseError naming the folder."""
-    if not folder.is_dir():
-        raise PilewiseError(f"run folder {folder} not found; pass a run folder such as OUT/runs/k5")
-    missing = [name for name in RUN_FILES if not (folder / name).is_file()]
-    if missing:
-        runs = sorted(p.name for p in (folder / "runs").iterdir() if p.is_dir()) if (folder / "runs").is_dir() else []
-        hint = (f"it looks like a site; pass one of its runs: {', '.join(str(folder / 'runs' / r) for r in runs)}"
-                if runs else "pass a run folder written by pilewise run, such as OUT/runs/k5")
-        raise PilewiseError(f"{folder} is not a pilewise run folder (no {', '.join(missing)}); {hint}")
-    ids, labels = _read_assignments(folder / "assignments.csv")
-    clusters = _read_json(folder / "clusters.json")
-    manifest = _read_json(folder / "manifest.json")
-    documents = manifest.get("input", {}).get("documents") if isinstance(manifest.get("input"), dict) else None
-    if isinstance(documents, int) and documents != len(ids):
-        raise PilewiseError(
-            f"{folder / 'assignments.csv'} lists {len(ids):,} documents where manifest.json says {documents:,} "
-            "(cut short or edited); re-run pilewise run to rewrite the folder"
-        )
-    headlines: dict[int, str] = {}
-    records = clusters.get("clusters")
-    for record in records if isinstance(records, list) else []:
-        if isinstance(record, dict) and isinstance(record.get("id"), int):
-            # a name a person gave wins over the exemplar's title
-            headlines[record["id"]] = str(record.get("name") or record.get("headline", ""))
-    name = str(manifest.get("run") or clusters.get("run") or folder.name)
-    source = manifest.get("input")
-    fingerprint = str(source.get("fingerprint", "")) if isinstance(source, dict) else ""
-    return _Run(name, ids, labels, headlines, fingerprint)
-
-
-def _read_assignments(path: Path) -> tuple[list[str], list[int]]:
-    """doc_id and cluster columns of assignments.csv (first column of each name; tables may add columns)."""
-    ids: list[str] = []
-    labels: list[int] = []
-    try:
-        with path.open(encoding="utf-8", newline="") as handle:
-            reader = csv.reader(handle)
-            header = read_spreadsheet_row(next(reader, []))
-            if "doc_id" not in header or "cluster" not in header:
-                raise PilewiseError(f"{path} has no doc_id and cluster columns; pass a run folder written by "
-                                    "pilewise run")
-            id_col, cluster_col = header.index("doc_id"), header.index("cluster")
-            width = max(id_col, cluster_col) + 1
-            for line_number, row in enumerate(reader, start=2):
-                if len(row) < width or not row[cluster_col].lstrip("-").isdigit():
-                    raise PilewiseError(f"{path} line {line_number} has no cluster number; re-run pilewise run "
-                                        "to rewrite the folder")
-                ids.append(read_spreadsheet_cell(row[id_col]))
-                labels.append(int(row[cluster_col]))
-    except UnicodeDecodeError:
-        raise PilewiseError(f"{path} is not UTF-8 (saved from a spreadsheet?); re-run pilewise run to rewrite "
-                            "the folder") from None
-    except (OSError, csv.Error) as err:
-        raise PilewiseError(f"cannot read {path} ({err}); re-run pilewise run to rewrite the folder") from None
-    if not ids:
-        raise PilewiseError(f"{path} lists no documents; re-run pilewise run to rewrite the folder")
-    return ids, labels
-
-
-def _read_json(path: Path) -> dict[str, Any]:
-    try:
-        document = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as err:
-        raise PilewiseError(f"cannot read {path} ({err}); re-run pilewise run to rewrite the folder") from None
-    if not isinstance(document, dict):
-        raise PilewiseError(f"{path} is not a pilewise export; re-run pilewise run to rewrite the folder")
-    return document
-
-
 def _unique_index(ids: Sequence[str], run: str) -> dict[str, int]:
     """Position of each id; a repeated id cannot be matched between runs."""
     index: dict[str, int] = {}
@@ -528,3 +456,70 @@ def _at(values: tuple[str, ...], i: int) -> str:
 
 def _round(value: float, places: int = 6) -> float:
     return round(float(value), places)
+
+
+AUTO_COMPARE_RUNS = 12  # runs of one collection compared pairwise on the root index; above, neighbours by k only
+
+
+@dataclass(frozen=True)
+class RunPair:
+    """Two finished runs of the same collection, compared: the record the root index and run pages show.
+
+    ``document`` is the content of the pair's compare.json (`comparison_document`); ``ari`` and ``nmi``
+    are its rounded agreement figures.
+    """
+
+    run_a: FinishedRun
+    run_b: FinishedRun
+    document: dict[str, Any]
+
+    @property
+    def ari(self) -> float:
+        return float(self.document["agreement"]["adjusted_rand_index"])
+
+    @property
+    def nmi(self) -> float:
+        return float(self.document["agreement"]["nmi_arithmetic"])
+
+
+def site_comparisons(runs: Sequence[FinishedRun]) -> tuple[list[RunPair], list[str]]:
+    """Compare the runs of a site that read the same collection (equal fingerprints), and say which pairs failed.
+
+    Runs are grouped by fingerprint (a run without one is compared with nothing: nothing says two runs
+    read the same input) and sorted by k and folder name; up to AUTO_COMPARE_RUNS runs of a group are
+    compared pairwise, more only with their neighbours. A pair that cannot be compared (a damaged or
+    edited export) is left out, with a note.
+    """
+    by_input: dict[str, list[FinishedRun]] = {}
+    for run in runs:
+        if run.fingerprint:
+            by_input.setdefault(run.fingerprint, []).append(run)
+    pairs: list[RunPair] = []
+    notes: list[str] = []
+    assignments: dict[Path, Assignments | PilewiseError] = {}
+
+    def rows(run: FinishedRun) -> Assignments:
+        if run.folder not in assignments:  # each run's assignments.csv is read once for all its pairs
+            try:
+                assignments[run.folder] = read_assignments(run)
+            except PilewiseError as err:
+                assignments[run.folder] = err
+        found = assignments[run.folder]
+        if isinstance(found, PilewiseError):
+            raise found
+        return found
+
+    for group in by_input.values():
+        group.sort(key=lambda r: (r.k if r.k is not None else 0, r.folder.name))
+        if len(group) <= AUTO_COMPARE_RUNS:
+            candidates = [(x, y) for i, x in enumerate(group) for y in group[i + 1 :]]
+        else:
+            candidates = list(zip(group, group[1:], strict=False))
+        for run_a, run_b in candidates:
+            try:
+                comparison = compare_finished_runs(run_a, run_b, rows(run_a), rows(run_b))
+            except PilewiseError as err:
+                notes.append(f"a comparison was left out: {err}")
+                continue
+            pairs.append(RunPair(run_a, run_b, comparison_document(comparison)))
+    return pairs, notes

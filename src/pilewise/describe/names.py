@@ -10,22 +10,29 @@ mostly of documents the old run did not have, by the cosine similarity of centro
 from __future__ import annotations
 
 import csv
-import json
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.preprocessing import normalize
 
-from pilewise.csvcells import read_spreadsheet_cell, read_spreadsheet_row, spreadsheet_row
+from pilewise.csvcells import spreadsheet_row
+from pilewise.describe.runfolders import (
+    NAME_COLUMNS,
+    Assignments,
+    DamagedRun,
+    FinishedRun,
+    finished_folders,
+    read_assignments,
+    read_names,
+    read_run,
+)
 
 JACCARD_CARRY = 0.5  # a name carries over to the new cluster whose members overlap the old one's this much
 CENTROID_CARRY = 0.8  # cosine of centroids, for new clusters that hold mostly new documents
 SHARED_MIN = 0.5  # below this share of documents the old run also had, the centroid fallback is used
-NAME_COLUMNS = ("cluster", "suggested_name", "name", "note")
 
 
 @dataclass(frozen=True)
@@ -77,124 +84,69 @@ def suggested_name(terms: Sequence[str], count: int = 3) -> str:
 
 def read_names_csv(path: Path) -> dict[int, tuple[str, str]]:
     """The clusters of a names.csv that a person named (non-empty name), with their notes; {} if unreadable."""
-    return _read_names(path)[0]
+    return read_names(path)[0]
 
 
 def names_csv_problem(path: Path) -> str | None:
     """Why a names.csv cannot be read (not UTF-8, no cluster/name columns, ...), or None when it can."""
-    return _read_names(path)[1]
-
-
-def _read_names(path: Path) -> tuple[dict[int, tuple[str, str]], str | None]:
-    found: dict[int, tuple[str, str]] = {}
-    try:
-        with path.open(encoding="utf-8-sig", newline="") as handle:
-            reader = csv.reader(handle)
-            header = read_spreadsheet_row(next(reader, []))
-            if "cluster" not in header or "name" not in header:
-                return {}, "it has no cluster and name columns"
-            column = {name: header.index(name) for name in NAME_COLUMNS if name in header}
-            for row in reader:
-                cells = read_spreadsheet_row(row)
-
-                def cell(name: str, cells: list[str] = cells) -> str:
-                    i = column.get(name)
-                    return cells[i].strip() if i is not None and i < len(cells) else ""
-
-                if cell("name") and cell("cluster").isdigit():
-                    found[int(cell("cluster"))] = (cell("name"), cell("note"))
-    except UnicodeDecodeError:
-        return {}, "it is not UTF-8 (saved from a spreadsheet?); save it again as CSV UTF-8"
-    except (OSError, csv.Error) as err:
-        return {}, f"cannot read it ({err})"
-    return found, None
+    return read_names(path)[1]
 
 
 def find_old_names(runs_folder: Path, *, source: str, fingerprint: str) -> OldNames | None:
     """The most recently edited names.csv with names, among runs of the same collection.
 
-    Runs whose manifest.json, names.csv or assignments.csv cannot be read are skipped (never fatal);
-    `earlier_run_problems` says which and why.
+    Runs whose manifest.json, clusters.json, names.csv or assignments.csv cannot be read are skipped
+    (never fatal); `earlier_run_problems` says which and why.
     """
-    candidates: list[tuple[float, str, Path, dict[int, tuple[str, str]]]] = []
-    for folder in _run_folders(runs_folder):
+    candidates: list[tuple[float, str, FinishedRun, dict[int, tuple[str, str]]]] = []
+    for folder in finished_folders(runs_folder):
         names_path = folder / "names.csv"
-        manifest = _manifest(folder / "manifest.json")
-        if manifest is None or not names_path.is_file():
+        if not names_path.is_file():
             continue
-        same = _field(manifest, "input", "fingerprint") == fingerprint or \
-            _field(manifest, "parameters", "source") == source
+        try:
+            run = read_run(folder)
+        except DamagedRun:
+            continue
+        same = run.fingerprint == fingerprint or run.source == source
         names = read_names_csv(names_path) if same else {}
         if names:
-            candidates.append((names_path.stat().st_mtime, folder.name, folder, names))
-    for _, _, folder, names in sorted(candidates, key=lambda item: (item[0], item[1]), reverse=True):
-        members, _ = _read_members(folder)
-        if members is not None:
-            return OldNames(folder.name, names, members)
+            candidates.append((names_path.stat().st_mtime, folder.name, run, names))
+    for _, _, run, names in sorted(candidates, key=lambda item: (item[0], item[1]), reverse=True):
+        try:
+            members = _members(read_assignments(run))
+        except DamagedRun:
+            continue
+        return OldNames(run.folder.name, names, members)
     return None
 
 
 def earlier_run_problems(runs_folder: Path) -> list[str]:
     """One line per earlier run whose files name carry-over cannot read; those runs are skipped."""
     problems: list[str] = []
-    for folder in _run_folders(runs_folder):
-        manifest_path, names_path = folder / "manifest.json", folder / "names.csv"
+    for folder in finished_folders(runs_folder):
+        names_path = folder / "names.csv"
         where = f"{runs_folder.name}/{folder.name}"
-        if manifest_path.is_file() and _manifest(manifest_path) is None:
+        try:
+            run = read_run(folder)
+        except DamagedRun:
             continue  # the root index names it (its list and comparisons skip it too)
         problem = names_csv_problem(names_path) if names_path.is_file() else None
         if problem is not None:
             problems.append(f"{where}/names.csv is skipped for carrying names over: {problem}")
         elif names_path.is_file() and read_names_csv(names_path):
-            _, problem = _read_members(folder)
-            if problem is not None:
-                problems.append(f"{where}/assignments.csv is skipped for carrying names over: {problem}")
+            try:
+                read_assignments(run)
+            except DamagedRun as err:
+                problems.append(f"{where}/{err.path.name} is skipped for carrying names over: it {err.problem}")
     return problems
 
 
-def _run_folders(runs_folder: Path) -> list[Path]:
-    try:
-        return [f for f in sorted(runs_folder.iterdir()) if f.is_dir() and not f.name.startswith(".")]
-    except OSError:  # no runs yet
-        return []
-
-
-def _manifest(path: Path) -> dict[str, Any] | None:
-    try:
-        document = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    return document if isinstance(document, dict) else None
-
-
-def _field(document: dict[str, Any], section: str, key: str) -> object:
-    part = document.get(section)
-    return part.get(key) if isinstance(part, dict) else None
-
-
-def _read_members(folder: Path) -> tuple[dict[int, frozenset[str]] | None, str | None]:
-    """Members of every cluster from a run's assignments.csv, or None and the reason it cannot be read."""
+def _members(assignments: Assignments) -> dict[int, frozenset[str]]:
+    """doc_ids of every cluster."""
     members: dict[int, set[str]] = {}
-    rows = 0
-    try:
-        with (folder / "assignments.csv").open(encoding="utf-8", newline="") as handle:
-            reader = csv.reader(handle)
-            header = read_spreadsheet_row(next(reader, []))
-            if "doc_id" not in header or "cluster" not in header:
-                return None, "it has no doc_id and cluster columns"
-            id_col, cluster_col = header.index("doc_id"), header.index("cluster")
-            for row in reader:
-                rows += 1
-                if len(row) > max(id_col, cluster_col) and row[cluster_col].isdigit():
-                    members.setdefault(int(row[cluster_col]), set()).add(read_spreadsheet_cell(row[id_col]))
-    except UnicodeDecodeError:
-        return None, "it is not UTF-8 (saved from a spreadsheet?); re-run that run to rewrite it"
-    except (OSError, csv.Error) as err:
-        return None, f"cannot read it ({err})"
-    expected = _field(_manifest(folder / "manifest.json") or {}, "input", "documents")
-    if isinstance(expected, int) and expected != rows:
-        return None, f"it lists {rows:,} documents where manifest.json says {expected:,} (cut short or edited)"
-    return {c: frozenset(ids) for c, ids in members.items()}, None
+    for doc_id, cluster in zip(assignments.ids, assignments.labels, strict=True):
+        members.setdefault(cluster, set()).add(doc_id)
+    return {c: frozenset(ids) for c, ids in members.items()}
 
 
 def carry_names(

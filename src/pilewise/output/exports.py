@@ -22,6 +22,7 @@ from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
 from pilewise.describe.names import write_names_csv
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.model import ClusterSummary, RunResult, TermScore
+from pilewise.output.outfolder import write_text_atomically
 
 EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv",
                 "names.csv", "boilerplate.csv")
@@ -318,3 +319,13 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
 
 def _write_json(path: Path, document: dict[str, Any]) -> None:
     path.write_text(json.dumps(document, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
+
+
+def write_sweep_json(folder: Path, sweep: Sweep, name: str) -> None:
+    """sweep.json of a stand-alone sweep (OUT/sweeps/NAME), ASCII-escaped as it has always been."""
+    (folder / "sweep.json").write_text(json.dumps(sweep_document(sweep, name), indent=2) + "\n", encoding="utf-8")
+
+
+def write_compare_json(folder: Path, document: dict[str, Any]) -> None:
+    """compare.json of a comparison folder; replaced atomically, since a later run may refresh a finished one."""
+    write_text_atomically(folder / "compare.json", json.dumps(document, indent=2, ensure_ascii=False) + "\n")

@@ -9,11 +9,20 @@ import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import Any
 
 from pilewise.model import RunResult
-from pilewise.output.exports import write_exports, write_manifest
-from pilewise.output.outfolder import check_replaceable, inside, mark, name_lock, site_lock, writing_to
-from pilewise.output.site import render_run_site
+from pilewise.output.exports import write_compare_json, write_exports, write_manifest
+from pilewise.output.outfolder import (
+    check_replaceable,
+    inside,
+    mark,
+    name_lock,
+    safe_name,
+    site_lock,
+    writing_to,
+)
+from pilewise.output.site import render_comparison, render_run_site
 from pilewise.progress import Reporter
 
 
@@ -92,3 +101,23 @@ def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:
     finally:
         if staging.exists():
             shutil.rmtree(staging, ignore_errors=True)
+
+
+def comparison_folder(out: Path, document: dict[str, Any]) -> Path:
+    """OUT/compare/A--B, its parts made safe from the runs' recorded names and checked to stay under OUT."""
+    a, b = document["runs"]["a"], document["runs"]["b"]
+    return inside(out, out / "compare" / f"{safe_name(str(a))}--{safe_name(str(b))}")
+
+
+def write_comparison(out: Path, document: dict[str, Any], run_a: Path, run_b: Path) -> Path:
+    """OUT/compare/A--B/ (compare.json and index.html) for a comparison of the run folders given; the page's path.
+
+    A comparison folder that pilewise did not write is refused. The caller holds the site's lock.
+    """
+    folder = comparison_folder(out, document)
+    check_replaceable(folder, "compare", "pass another --out")
+    folder.mkdir(parents=True, exist_ok=True)
+    mark(folder)
+    write_compare_json(folder, document)
+    return render_comparison(folder, out, document, run_a, run_b)
+

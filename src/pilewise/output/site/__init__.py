@@ -6,7 +6,6 @@ pages show raw document text, which is never trusted HTML.
 
 from __future__ import annotations
 
-import json
 import os
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
@@ -18,18 +17,12 @@ from urllib.parse import quote
 from jinja2 import Environment, PackageLoader, StrictUndefined
 
 from pilewise.clustering.sweep import Sweep
+from pilewise.describe.compare import RunPair
 from pilewise.describe.rules import RULES_ROWS
+from pilewise.describe.runfolders import FinishedRun, FinishedSweep
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
-from pilewise.output.outfolder import (
-    check_replaceable,
-    inside,
-    mark,
-    owned,
-    safe_name,
-    site_lock,
-    write_text_atomically,
-)
+from pilewise.output.outfolder import write_text_atomically
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
@@ -59,9 +52,13 @@ def _environment() -> Environment:
     return env
 
 
-def _copy_stylesheet(folder: Path) -> None:
+def _copy_stylesheet(folder: Path, *, atomic: bool = False) -> None:
+    """The stylesheet beside the pages; `atomic` for folders that readers may be looking at."""
     source = files("pilewise.output.site").joinpath("static", STYLESHEET)
-    (folder / STYLESHEET).write_bytes(source.read_bytes())
+    if atomic:
+        write_text_atomically(folder / STYLESHEET, source.read_text(encoding="utf-8"))
+    else:
+        (folder / STYLESHEET).write_bytes(source.read_bytes())
 
 
 @dataclass(frozen=True)
@@ -200,9 +197,8 @@ def _render_levels(folder: Path, result: RunResult, env: Environment, common: di
 
 
 def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source: str = "", method: str = "") -> Path:
-    """sweep.html (or index.html for a stand-alone sweep), sweep-curves.svg and, stand-alone, sweep.json."""
+    """sweep.html (or index.html for a stand-alone sweep) and sweep-curves.svg."""
     from pilewise.clustering.sweep import RECOMMENDATION_RULE
-    from pilewise.output.exports import sweep_document
     from pilewise.output.plots import sweep_curves_svg
 
     folder.mkdir(parents=True, exist_ok=True)
@@ -214,9 +210,8 @@ def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source:
         ("Mean stability", [p.stability_mean for p in sweep.points], "higher is better"),
     ], sweep.recommended_k)
     (folder / "sweep-curves.svg").write_text(svg, encoding="utf-8")
-    if not in_run:
+    if not in_run:  # a stand-alone sweep's sweep.json is written by output.exports.write_sweep_json
         _copy_stylesheet(folder)
-        (folder / "sweep.json").write_text(json.dumps(sweep_document(sweep, name), indent=2) + "\n", encoding="utf-8")
     page = folder / ("sweep.html" if in_run else "index.html")
     _write(page, _environment().get_template("sweep.html").render(
         run=name, sweep=sweep, rule=RECOMMENDATION_RULE, in_run=in_run, source=source, method=method,
@@ -330,7 +325,6 @@ def _write(path: Path, content: str) -> None:
 
 
 MOVED_ON_PAGE = 500
-AUTO_COMPARE_RUNS = 12  # runs of one collection compared pairwise on the root index; above, neighbours by k only
 
 
 def _shade(share: float) -> str:
@@ -340,24 +334,14 @@ def _shade(share: float) -> str:
     return f"s{min(5, 1 + int(share * 5))}"
 
 
-def comparison_folder(out: Path, document: dict[str, Any]) -> Path:
-    """OUT/compare/A--B, its parts made safe from the runs' recorded names and checked to stay under OUT."""
-    a, b = document["runs"]["a"], document["runs"]["b"]
-    return inside(out, out / "compare" / f"{safe_name(str(a))}--{safe_name(str(b))}")
-
-
-def render_comparison(out: Path, document: dict[str, Any], run_a: Path, run_b: Path) -> Path:
-    """Write OUT/compare/A--B/ (index.html and compare.json) for a comparison of the run folders given.
+def render_comparison(folder: Path, out: Path, document: dict[str, Any], run_a: Path, run_b: Path) -> Path:
+    """Write the comparison's page (index.html) and stylesheet into `folder` (OUT/compare/A--B).
 
     Links to the runs are relative paths from the comparison's folder to the run folders themselves,
-    so that they hold wherever the runs lie. A comparison folder that pilewise did not write is refused.
+    so that they hold wherever the runs lie. The folder may be a finished one that a later run
+    refreshes, so every file is replaced atomically.
     """
-    folder = comparison_folder(out, document)
-    check_replaceable(folder, "compare", "pass another --out")
-    folder.mkdir(parents=True, exist_ok=True)
-    mark(folder)
-    (folder / "compare.json").write_text(json.dumps(document, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
-    _copy_stylesheet(folder)
+    _copy_stylesheet(folder, atomic=True)
     a, b = document["runs"]["a"], document["runs"]["b"]
     table = document["contingency"]
     rows = [
@@ -372,7 +356,7 @@ def render_comparison(out: Path, document: dict[str, Any], run_a: Path, run_b: P
                                    if f.resolve().parent.name == "runs")]
     home = next((_href(folder, h) for h in homes if h.is_file()), None)
     page = folder / "index.html"
-    _write(page, _environment().get_template("compare.html").render(
+    write_text_atomically(page, _environment().get_template("compare.html").render(
         doc=document, a=a, b=b, ka=len(table["clusters_a"]), kb=len(table["clusters_b"]), rows=rows,
         moved=moved, home=home, href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
         caution=CAUTION, css=STYLESHEET, up=""))
@@ -389,129 +373,45 @@ def private_text(text: str) -> str:
     return display_text(redact(text).text)
 
 
-def _auto_comparisons(out: Path, runs: list[dict[str, Any]], notes: list[str]) -> list[dict[str, Any]]:
-    """Compare runs of the same collection (equal fingerprints); write their pages and list them.
+def render_root_index(
+    out: Path, runs: Sequence[FinishedRun], pairs: Sequence[tuple[RunPair, Path]], sweeps: Sequence[FinishedSweep],
+    notes: Sequence[str],
+) -> Path:
+    """(Re)write OUT/index.html and every listed run's comparisons.html from finished records.
 
-    A pair that cannot be compared (a damaged or edited export) is left out, with a line in `notes`.
+    `pairs` are the comparisons written, each with its page; `notes` name what was left out. The
+    caller holds the site's lock. Run folders are finished, so their comparisons.html is replaced
+    atomically.
     """
-    from pilewise.describe.compare import compare_run_folders, comparison_document
-    from pilewise.errors import PilewiseError
-
-    by_input: dict[str, list[dict[str, Any]]] = {}
-    for run in runs:
-        if run["fingerprint"]:  # no fingerprint recorded: nothing says two runs read the same input
-            by_input.setdefault(run["fingerprint"], []).append(run)
-    pairs: list[dict[str, Any]] = []
-    for group in by_input.values():
-        group.sort(key=lambda r: (r["k"] if isinstance(r["k"], int) else 0, r["name"]))
-        if len(group) <= AUTO_COMPARE_RUNS:
-            candidates = [(x, y) for i, x in enumerate(group) for y in group[i + 1 :]]
-        else:
-            candidates = list(zip(group, group[1:], strict=False))
-        for run_a, run_b in candidates:
-            folder_a, folder_b = out / "runs" / run_a["name"], out / "runs" / run_b["name"]
-            try:
-                document = comparison_document(compare_run_folders(folder_a, folder_b))
-                page = render_comparison(out, document, folder_a, folder_b)
-            except PilewiseError as err:
-                notes.append(f"a comparison was left out: {err}")
-                continue
-            pairs.append({"a": run_a["name"], "b": run_b["name"], "ka": run_a["k"], "kb": run_b["k"],
-                          "ari": document["agreement"]["adjusted_rand_index"],
-                          "nmi": document["agreement"]["nmi_arithmetic"],
-                          "href": _href(out, page)})
     env = _environment()
+    listed = [{"a": p.run_a.folder.name, "b": p.run_b.folder.name, "ka": p.run_a.k, "kb": p.run_b.k,
+               "ari": p.ari, "nmi": p.nmi, "href": _href(out, page)} for p, page in pairs]
     for run in runs:
-        mine = [{"other": p["b"] if p["a"] == run["name"] else p["a"],
-                 "k": p["kb"] if p["a"] == run["name"] else p["ka"], **p}
-                for p in pairs if run["name"] in (p["a"], p["b"])]
-        _write(out / "runs" / run["name"] / "comparisons.html", env.get_template("comparisons.html").render(
-            run=run["name"], pairs=mine, caution=CAUTION, css=STYLESHEET, up=""))
-    return pairs
-
-
-def render_root_index(out: Path, warn: Callable[[str], None] | None = None) -> Path:
-    """(Re)write OUT/index.html listing every run found under OUT/runs, with comparisons of same-input runs.
-
-    Runs, sweeps and comparisons whose files cannot be read are left out and named in a note on the
-    page (and given to `warn`); they never stop the index. One writer at a time (the site's lock).
-    """
-    out.mkdir(parents=True, exist_ok=True)
-    with site_lock(out):
-        notes: list[str] = []
-        runs = [run for folder in _entries(out / "runs") if (run := _run_entry(folder, notes)) is not None]
-        comparisons = _auto_comparisons(out, runs, notes)
-        sweeps = []
-        for folder in _entries(out / "sweeps"):
-            try:
-                found = json.loads((folder / "sweep.json").read_text(encoding="utf-8"))
-                if not isinstance(found, dict):
-                    raise ValueError("not a JSON object")
-            except (OSError, ValueError) as err:
-                notes.append(f"sweeps/{folder.name} is not listed: its sweep.json cannot be read ({err})")
-                continue
-            sweeps.append({"name": folder.name, "href": f"sweeps/{quote(folder.name)}/index.html",
-                           "k": found.get("recommended_k"), "reason": str(found.get("reason", ""))})
-        notes = list(dict.fromkeys(notes))
-        if warn is not None:
-            for note in notes:
-                warn(note)
-        _copy_stylesheet(out)
-        page = out / "index.html"
-        write_text_atomically(page, _environment().get_template("root_index.html").render(
-            runs=runs, comparisons=comparisons, sweeps=sweeps, notes=notes, caution=CAUTION, css=STYLESHEET,
-            up=""))
+        name = run.folder.name
+        mine = [{"other": p["b"] if p["a"] == name else p["a"], "k": p["kb"] if p["a"] == name else p["ka"], **p}
+                for p in listed if name in (p["a"], p["b"])]
+        write_text_atomically(out / "runs" / name / "comparisons.html", env.get_template("comparisons.html").render(
+            run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up=""))
+    _copy_stylesheet(out, atomic=True)
+    page = out / "index.html"
+    write_text_atomically(page, env.get_template("root_index.html").render(
+        runs=[_run_line(run) for run in runs], comparisons=listed,
+        sweeps=[{"name": s.folder.name, "href": f"sweeps/{quote(s.folder.name)}/index.html", "k": s.recommended_k,
+                 "reason": s.reason} for s in sweeps],
+        notes=list(notes), caution=CAUTION, css=STYLESHEET, up=""))
     return page
 
 
-def _entries(folder: Path) -> list[Path]:
-    """Sub-folders of OUT/runs (or sweeps), without pilewise's hidden staging folders and locks."""
-    try:
-        return [f for f in sorted(folder.iterdir()) if f.is_dir() and not f.name.startswith(".")]
-    except OSError:  # not there yet
-        return []
-
-
-def _run_entry(folder: Path, notes: list[str]) -> dict[str, Any] | None:
-    """The root index's line for one run folder, or None (and a note) when it cannot be read."""
-    where = f"runs/{folder.name}"
-    if not owned(folder, "runs"):
-        notes.append(f"{where} is not listed: pilewise did not write it (no .pilewise marker or manifest.json)")
-        return None
-    documents: list[dict[str, Any]] = []
-    for name in ("manifest.json", "clusters.json"):
-        try:
-            document = json.loads((folder / name).read_text(encoding="utf-8"))
-            if not isinstance(document, dict):
-                raise ValueError("not a JSON object")
-        except (OSError, ValueError) as err:
-            notes.append(f"{where}/{name} cannot be read ({err}); that run is not listed or compared; re-run it "
-                         "or delete it")
-            return None
-        documents.append(document)
-    manifest, clusters = documents
-
-    def part(document: dict[str, Any], key: str) -> dict[str, Any]:
-        value = document.get(key)
-        return value if isinstance(value, dict) else {}
-
-    records = clusters.get("clusters")
-    quality = part(clusters, "quality")
+def _run_line(run: FinishedRun) -> dict[str, Any]:
+    """The root index's line for one run."""
     return {
-        "name": folder.name,
-        "href": f"runs/{quote(folder.name)}/index.html",
-        "k": clusters.get("k"),
-        "documents": _number(clusters.get("documents")),
-        "silhouette": _number(quality.get("silhouette_cosine")),
-        "reading": str(quality.get("silhouette_reading", "")),
-        "created": str(manifest.get("created", "")),
-        "source": private_text(str(part(manifest, "parameters").get("source", ""))),
-        "headlines": [str(c.get("headline", "")) for c in (records if isinstance(records, list) else [])[:3]
-                      if isinstance(c, dict)],
-        "fingerprint": str(part(manifest, "input").get("fingerprint", "")),
+        "name": run.folder.name,
+        "href": f"runs/{quote(run.folder.name)}/index.html",
+        "k": run.k,
+        "documents": run.clustered,
+        "silhouette": run.silhouette,
+        "reading": run.silhouette_reading,
+        "created": run.created,
+        "source": private_text(run.source),
+        "headlines": [c.headline for c in run.clusters[:3]],
     }
-
-
-def _number(value: object) -> float | int | None:
-    """A figure read from an export, or None when the file holds something else there."""
-    return value if isinstance(value, int | float) and not isinstance(value, bool) else None
