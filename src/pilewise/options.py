@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import codecs
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -92,44 +93,78 @@ class RunOptions:
         return f"{prefix}k{k if k is not None else self.k}"
 
 
+@dataclass(frozen=True)
+class Check:
+    """One rule of the options: `broken` says whether the options break it, `message` what to change."""
+
+    broken: Callable[[RunOptions], bool]
+    message: Callable[[RunOptions], str]
+
+
+def _range_check(attr: str, low: float, high: float, flag: str) -> Check:
+    def broken(o: RunOptions) -> bool:
+        return not (attr == "k" and o.k_auto) and not low <= getattr(o, attr) <= high
+
+    return Check(broken, lambda o: f"{flag}={getattr(o, attr)} is out of range; use a value from {_limit(low)} "
+                                   f"to {_limit(high)}")
+
+
+def _choice_check(attr: str, choices: tuple[str, ...], flag: str) -> Check:
+    return Check(lambda o: getattr(o, attr) not in choices,
+                 lambda o: f"{flag} {getattr(o, attr)!r} is not known; use one of: {', '.join(choices)}")
+
+
+def _known_encoding(name: str) -> bool:
+    try:
+        codecs.lookup(name)
+    except LookupError:
+        return False
+    return True
+
+
+def _safe_name(name: str) -> bool:
+    return name.replace("-", "").replace("_", "").replace(".", "").isalnum() and not name.startswith(".")
+
+
+STREAM_ONE_K = ("streaming mode clusters with mini-batch k-means at one given k; pass --k N without --method ward, "
+                "or --mode memory (choose k with `pilewise sweep` on a sample of the collection)")
+WARD_NEEDS_LSA = "--method ward needs the LSA space; do not pass --lsa-components 0 with it"
+
+# Every check of the options, in the order their messages are reported: ranges (LIMITS), shares and
+# counts, values that must name something, choices, and combinations of options.
+CHECKS: tuple[Check, ...] = (
+    *(_range_check(attr, low, high, flag) for attr, (low, high, flag) in LIMITS.items()),
+    Check(lambda o: not 0.0 < o.max_df <= 1.0,
+          lambda o: f"--max-df={o.max_df} is out of range; use a share above 0 and at most 1"),
+    Check(lambda o: not 0.5 <= o.near_duplicate <= 1.0,
+          lambda o: f"--near-duplicate={o.near_duplicate} is out of range; use a Jaccard similarity from 0.5 to 1 "
+                    "(1 turns grouping off)"),
+    Check(lambda o: o.min_df is not None and o.min_df < 1,
+          lambda o: f"--min-df={o.min_df} is out of range; use a document count of at least 1"),
+    Check(lambda o: o.delimiter is not None and table_delimiter(o.delimiter) is None,
+          lambda o: f"--delimiter {o.delimiter!r} is not one character; pass e.g. --delimiter ';' or --delimiter tab"),
+    Check(lambda o: o.encoding is not None and not _known_encoding(o.encoding),
+          lambda o: f"--encoding {o.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, latin-1, shift_jis"),
+    _choice_check("method", METHODS, "--method"),
+    _choice_check("mode", MODES, "--mode"),
+    Check(lambda o: not 2 <= o.k_min < o.k_max <= LIMITS["k"][1],
+          lambda o: f"k range {o.k_min}:{o.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}"),
+    Check(lambda o: not _safe_name(o.run_name()),
+          lambda o: f"--name {o.run_name()!r} is not a safe folder name; use letters, digits, '-', '_' or '.'"),
+    # combinations; --mode auto chooses streaming only after measuring SOURCE, so the streaming path
+    # repeats the first check as a fallback
+    Check(lambda o: o.mode == "stream" and (o.k_auto or o.method == "ward"), lambda o: STREAM_ONE_K),
+    Check(lambda o: o.method == "ward" and o.lsa_components == 0, lambda o: WARD_NEEDS_LSA),
+)
+
+
 def validate(options: RunOptions, *, with_source: bool = True) -> None:
-    """Check every option against LIMITS and report all problems in one message.
+    """Check the options against every rule of CHECKS and report all problems in one message, before any reading.
 
     `with_source` False leaves out the checks of SOURCE (for `pilewise demo`, which checks its
     options before it writes the demo collection that becomes SOURCE).
     """
-    problems: list[str] = []
-    for attr, (low, high, flag) in LIMITS.items():
-        value = getattr(options, attr)
-        if attr == "k" and options.k_auto:
-            continue
-        if not low <= value <= high:
-            problems.append(f"{flag}={value} is out of range; use a value from {_limit(low)} to {_limit(high)}")
-    if not 0.0 < options.max_df <= 1.0:
-        problems.append(f"--max-df={options.max_df} is out of range; use a share above 0 and at most 1")
-    if not 0.5 <= options.near_duplicate <= 1.0:
-        problems.append(f"--near-duplicate={options.near_duplicate} is out of range; use a Jaccard similarity "
-                        "from 0.5 to 1 (1 turns grouping off)")
-    if options.min_df is not None and options.min_df < 1:
-        problems.append(f"--min-df={options.min_df} is out of range; use a document count of at least 1")
-    if options.delimiter is not None and table_delimiter(options.delimiter) is None:
-        problems.append(f"--delimiter {options.delimiter!r} is not one character; pass e.g. --delimiter ';' "
-                        "or --delimiter tab")
-    if options.encoding is not None:
-        try:
-            codecs.lookup(options.encoding)
-        except LookupError:
-            problems.append(f"--encoding {options.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, "
-                            "latin-1, shift_jis")
-    if options.method not in METHODS:
-        problems.append(f"--method {options.method!r} is not known; use one of: {', '.join(METHODS)}")
-    if options.mode not in MODES:
-        problems.append(f"--mode {options.mode!r} is not known; use one of: {', '.join(MODES)}")
-    if not 2 <= options.k_min < options.k_max <= LIMITS["k"][1]:
-        problems.append(f"k range {options.k_min}:{options.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}")
-    name = options.run_name()
-    if not name.replace("-", "").replace("_", "").replace(".", "").isalnum() or name.startswith("."):
-        problems.append(f"--name {name!r} is not a safe folder name; use letters, digits, '-', '_' or '.'")
+    problems = [check.message(options) for check in CHECKS if check.broken(options)]
     if with_source:
         problems.extend(_source_problems(options))
     if problems:
