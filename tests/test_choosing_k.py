@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from helpers import read_assignments, read_clusters, read_csv, read_json, read_manifest, runner
+from helpers import read_assignments, read_clusters, read_csv, read_json, read_manifest, runner, write_topic_folder
 from pilewise.cli import app
 
 
@@ -18,8 +18,6 @@ def invoke(*args: str):  # type: ignore[no-untyped-def]
 
 @pytest.fixture(scope="module")
 def site(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
-    from helpers import write_topic_folder
-
     base = tmp_path_factory.mktemp("choose")
     folder = base / "notes"
     write_topic_folder(folder, per_topic=20)

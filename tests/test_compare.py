@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 
-from helpers import invoke, read_clusters
+from helpers import invoke, read_clusters, write_topic_folder
 from pilewise.describe.compare import (
     MOVED_LISTED,
     READINGS_A,
@@ -281,8 +281,6 @@ def test_moved_documents_are_capped_in_the_document_with_the_total_recorded() ->
 
 @pytest.fixture(scope="module")
 def site(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    from helpers import write_topic_folder
-
     base = tmp_path_factory.mktemp("compare")
     folder = base / "notes"
     write_topic_folder(folder)

@@ -9,6 +9,7 @@ import pytest
 import scipy.sparse as sp
 
 import pilewise.describe.summaries as describe
+from helpers import write_topic_folder
 from pilewise.describe.stats import chi_square_2x2
 from pilewise.describe.summaries import NearestDigest
 from pilewise.options import RunOptions
@@ -19,8 +20,6 @@ from pilewise.vectors.tfidf import with_phrases
 
 @pytest.fixture(scope="module")
 def result(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
-    from helpers import write_topic_folder
-
     folder = tmp_path_factory.mktemp("describe") / "notes"
     write_topic_folder(folder, per_topic=15)
     # three exact copies of one garden note: clustered once, counted three times

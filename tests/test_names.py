@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import json
 import shutil
 from pathlib import Path
 
@@ -10,7 +11,15 @@ import numpy as np
 import pytest
 
 from helpers import invoke, read_clusters, read_csv
-from pilewise.describe.names import Naming, OldNames, carry_names, suggested_name
+from pilewise.describe.names import (
+    Naming,
+    OldNames,
+    carry_names,
+    earlier_run_problems,
+    find_old_names,
+    read_names_csv,
+    suggested_name,
+)
 
 
 def _run(folder: Path, out: Path, *extra: str) -> None:
@@ -222,3 +231,66 @@ def test_an_old_cluster_whose_documents_are_all_gone_is_not_carried() -> None:
     old = OldNames("earlier", {0: ("Gone", "")}, {0: frozenset(_ids("x", 3)), 1: frozenset(d)})
     naming = _carry(old, [d[:3], d[3:]])
     assert naming.not_carried == ("Gone (cluster 0 of earlier; best member overlap 0.00)",)
+
+
+# --- names.csv and assignments.csv of earlier runs that cannot be used are skipped with their reason ------
+
+
+def _earlier_run(runs: Path, names: bytes, assignments: str, documents: int) -> Path:
+    """runs/first with a manifest of `documents` documents, the given names.csv bytes and assignments.csv."""
+    folder = runs / "first"
+    folder.mkdir(parents=True)
+    manifest = {"input": {"fingerprint": "same", "documents": documents}, "parameters": {"source": "notes"}}
+    (folder / "manifest.json").write_text(json.dumps(manifest), encoding="utf-8")
+    (folder / "names.csv").write_bytes(names)
+    (folder / "assignments.csv").write_text(assignments, encoding="utf-8", newline="")
+    return folder
+
+
+NAMED = b"cluster,suggested_name,name,note\n0,soil / compost,Garden,\n1,chain / saddle,,\n"
+ASSIGNED = "doc_id,cluster\na,0\nb,0\nc,1\n"
+
+
+def test_names_csv_without_name_column_is_skipped_with_its_reason(tmp_path: Path) -> None:
+    runs = tmp_path / "runs"
+    folder = _earlier_run(runs, b"cluster,label\n0,Garden\n", ASSIGNED, 3)
+    assert read_names_csv(folder / "names.csv") == {}
+    assert earlier_run_problems(runs) == [
+        "runs/first/names.csv is skipped for carrying names over: it has no cluster and name columns"]
+    assert find_old_names(runs, source="notes", fingerprint="same") is None
+
+
+def test_names_csv_saved_as_cp1252_is_skipped_with_its_reason(tmp_path: Path) -> None:
+    # Python codecs docs: cp1252 writes "é" as the single byte 0xE9, which is not valid UTF-8
+    runs = tmp_path / "runs"
+    _earlier_run(runs, "cluster,name\n0,Café\n".encode("cp1252"), ASSIGNED, 3)
+    assert earlier_run_problems(runs) == [
+        "runs/first/names.csv is skipped for carrying names over: it is not UTF-8 (saved from a spreadsheet?); "
+        "save it again as CSV UTF-8"]
+    assert find_old_names(runs, source="notes", fingerprint="same") is None
+
+
+def test_csv_files_the_csv_module_refuses_are_skipped_with_their_reason(tmp_path: Path) -> None:
+    # Python csv module docs: a field longer than csv.field_size_limit() raises csv.Error
+    limit = csv.field_size_limit()
+    runs = tmp_path / "names" / "runs"
+    _earlier_run(runs, f"cluster,name\n0,{'x' * (limit + 1)}\n".encode(), ASSIGNED, 3)
+    assert earlier_run_problems(runs) == [
+        f"runs/first/names.csv is skipped for carrying names over: cannot read it "
+        f"(field larger than field limit ({limit}))"]
+    runs = tmp_path / "assignments" / "runs"
+    _earlier_run(runs, NAMED, f"doc_id,cluster\n{'x' * (limit + 1)},0\n", 1)
+    assert earlier_run_problems(runs) == [
+        f"runs/first/assignments.csv is skipped for carrying names over: cannot read it "
+        f"(field larger than field limit ({limit}))"]
+    assert find_old_names(runs, source="notes", fingerprint="same") is None
+
+
+def test_rows_without_a_cluster_number_are_not_members_but_are_counted(tmp_path: Path) -> None:
+    # a short row and a row whose cluster is not a number join no cluster; the row count still matches
+    # the manifest's 5 documents, so the run is used
+    runs = tmp_path / "runs"
+    _earlier_run(runs, NAMED, ASSIGNED + "d\ne,x\n", 5)
+    assert earlier_run_problems(runs) == []
+    old = find_old_names(runs, source="notes", fingerprint="other")  # found by the same source path
+    assert old == OldNames("first", {0: ("Garden", "")}, {0: frozenset({"a", "b"}), 1: frozenset({"c"})})
