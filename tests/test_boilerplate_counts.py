@@ -104,7 +104,6 @@ def test_max_df_counts_copies() -> None:
     assert 11 / len(docs) > 0.4 and 2 / 13 < 0.4  # counted over distinct texts it would have stayed
 
 
-
 @pytest.mark.parametrize("mode", ["memory", "stream"])
 def test_both_modes_count_copies(tmp_path: Path, mode: str) -> None:
     docs = short_answer_collection()

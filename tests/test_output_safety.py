@@ -35,8 +35,6 @@ FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 
 
-
-
 def run_ok(*args: str) -> str:
     result = invoke("run", *args, "--quiet")
     assert result.exit_code == 0, result.output

@@ -20,7 +20,6 @@ TOPICS = ["soil compost seedling mulch watering spade", "chain saddle pedal spok
           "oven flour dough whisk butter saucepan"]
 
 
-
 def _message(subject: str, plain: str | None = None, html: str | None = None) -> EmailMessage:
     msg = EmailMessage()
     msg["Subject"] = subject
