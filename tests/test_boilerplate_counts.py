@@ -17,9 +17,8 @@ import numpy as np
 import pytest
 from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
 from sklearn.metrics import normalized_mutual_info_score
-from typer.testing import CliRunner
 
-from pilewise.cli import app
+from helpers import invoke, read_assignments, read_clusters, read_manifest, write_texts
 from pilewise.ingest.dedup import Boilerplate, find_boilerplate, strip_boilerplate, strip_texts
 from pilewise.model import Document
 from pilewise.options import RunOptions
@@ -28,7 +27,6 @@ from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import VectorSettings, document_frequency, smooth_idf, vectorize
 
-runner = CliRunner()
 ANALYZER = Analyzer(stop_words=load_stop_words(None), stem=False)
 
 
@@ -106,17 +104,10 @@ def test_max_df_counts_copies() -> None:
     assert 11 / len(docs) > 0.4 and 2 / 13 < 0.4  # counted over distinct texts it would have stayed
 
 
-def write_folder(folder: Path, docs: list[str]) -> Path:
-    folder.mkdir()
-    for i, text in enumerate(docs):
-        (folder / f"{i:03d}.txt").write_text(text + "\n", encoding="utf-8")
-    return folder
-
-
 @pytest.mark.parametrize("mode", ["memory", "stream"])
 def test_both_modes_count_copies(tmp_path: Path, mode: str) -> None:
     docs = short_answer_collection()
-    source = write_folder(tmp_path / "docs", docs)
+    source = write_texts(tmp_path / "docs", docs)
     options = RunOptions(source=source, k=2, out=tmp_path / "site", min_df=2, max_df=1.0, lsa_components=0,
                          near_duplicate=1.0, mode=mode, workers=1, quiet=True)
     work = tmp_path / "work"
@@ -230,9 +221,9 @@ def test_templated_tickets_cluster_by_theme(tmp_path: Path, mode: str) -> None:
     texts, labels = templated_tickets()
     table = tickets_table(tmp_path / "tickets.csv", texts)
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(table), "--k", "5", "--out", str(out), "--mode", mode, "--workers", "1"])
+    result = invoke("run", str(table), "--k", "5", "--out", str(out), "--mode", mode, "--workers", "1")
     assert result.exit_code == 0, result.stderr
-    rows = list(csv.DictReader((out / "runs" / "k5" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k5")
     truth = {f"t{i:03d}": label for i, label in enumerate(labels)}
     # five themes, planted: the clusters must recover them exactly (NMI 1, scikit-learn's definition)
     assert normalized_mutual_info_score([truth[r["doc_id"]] for r in rows], [r["cluster"] for r in rows]) == 1.0
@@ -247,14 +238,14 @@ def test_keep_boilerplate_turns_detection_off(tmp_path: Path, mode: str) -> None
     texts, _ = templated_tickets(60)
     table = tickets_table(tmp_path / "tickets.csv", texts)
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(table), "--k", "5", "--out", str(out), "--mode", mode, "--workers", "1",
-                                 "--keep-boilerplate"])
+    result = invoke("run", str(table), "--k", "5", "--out", str(out), "--mode", mode, "--workers", "1",
+                    "--keep-boilerplate")
     assert result.exit_code == 0, result.stderr
     off = "boilerplate removal is off (--keep-boilerplate); every line of every text is vectorized"
     assert f"pilewise: {off}" in result.stderr.splitlines()
     run = out / "runs" / "k5"
     assert (run / "boilerplate.csv").read_text(encoding="utf-8").count("\n") == 1  # the header alone
-    manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(run)
     assert off in json.dumps(manifest)
     assert off in (run / "ingest.html").read_text(encoding="utf-8")  # the ingest page's notes
 
@@ -284,9 +275,9 @@ def test_table_columns_count_every_copy_with_its_own_cells(tmp_path: Path) -> No
         writer.writerow(["text", "channel"])
         writer.writerows(rows)
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(table), "--k", "3", "--out", str(out), "--quiet"])
+    result = invoke("run", str(table), "--k", "3", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.output
-    document = json.loads((out / "runs" / "k3" / "clusters.json").read_text(encoding="utf-8"))
+    document = read_clusters(out / "runs" / "k3")
     (channel,) = [c for c in document["metadata"]["categorical"] if c["column"] == "channel"]
     sums = dict(zip(channel["values"], np.asarray(channel["table"]).sum(axis=0).tolist(), strict=True))
     expected = {value: sum(1 for _, v in rows if v == value) for value in ("mail", "phone")}
@@ -312,8 +303,8 @@ def test_manifest_counts_exact_distinct_texts_before_near_duplicate_grouping(tmp
         words = topics[i % 3].split()
         (folder / f"note-{i}.txt").write_text(" ".join(rng.choice(words) for _ in range(14)), encoding="utf-8")
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(folder), "--k", "3", "--out", str(out), "--quiet"])
+    result = invoke("run", str(folder), "--k", "3", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.output
-    manifest = json.loads((out / "runs" / "k3" / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(out / "runs" / "k3")
     assert manifest["input"]["distinct_texts"] == 21
     assert manifest["input"]["texts_clustered"] == 16

@@ -2,16 +2,12 @@
 
 from __future__ import annotations
 
-import csv
-import json
 from pathlib import Path
 
 import pytest
-from typer.testing import CliRunner
 
+from helpers import read_assignments, read_clusters, read_csv, read_json, read_manifest, runner, write_topic_folder
 from pilewise.cli import app
-
-runner = CliRunner()
 
 
 def invoke(*args: str):  # type: ignore[no-untyped-def]
@@ -22,8 +18,6 @@ def invoke(*args: str):  # type: ignore[no-untyped-def]
 
 @pytest.fixture(scope="module")
 def site(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path]:
-    from conftest import write_topic_folder
-
     base = tmp_path_factory.mktemp("choose")
     folder = base / "notes"
     write_topic_folder(folder, per_topic=20)
@@ -37,11 +31,11 @@ def test_auto_k_recovers_three_planted_topics(site: tuple[Path, Path]) -> None:
     result = invoke("run", str(folder), "--k", "auto", "--k-range", "2:8", "--out", str(out), "--quiet")
     run = out / "runs" / "k3"
     assert result.stdout.strip() == str(run / "index.html")
-    sweep = json.loads((run / "sweep.json").read_text(encoding="utf-8"))
+    sweep = read_json(run / "sweep.json")
     assert sweep["recommended_k"] == 3 and [p["k"] for p in sweep["points"]] == list(range(2, 9))
-    clusters = json.loads((run / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(run)
     assert [c["stability"]["reading"] for c in clusters["clusters"]] == ["highly stable"] * 3
-    manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(run)
     assert manifest["k_chosen_by"] == "sweep"
 
 
@@ -49,10 +43,10 @@ def test_ward_run_stores_every_cut_and_one_split_per_step(site: tuple[Path, Path
     folder, out = site
     invoke("run", str(folder), "--k", "3", "--method", "ward", "--k-range", "2:10", "--out", str(out), "--quiet")
     run = out / "runs" / "ward-k3"
-    levels = json.loads((run / "levels.json").read_text(encoding="utf-8"))
+    levels = read_json(run / "levels.json")
     assert levels["tree"] == "full Ward" and levels["k_range"] == [2, 10]
     assert [s["k"] for s in levels["splits"]] == list(range(2, 10))
-    rows = list(csv.DictReader((run / "cuts.csv").open(encoding="utf-8")))
+    rows = read_csv(run / "cuts.csv")
     assert len(rows) == 60 and list(rows[0]) == ["doc_id", *(f"k{k}" for k in range(2, 11))]
     for split in levels["splits"]:
         before = [r[f"k{split['k']}"] for r in rows]
@@ -62,7 +56,7 @@ def test_ward_run_stores_every_cut_and_one_split_per_step(site: tuple[Path, Path
             if int(b) == split["parent"]:
                 assert int(a) in {c["id"] for c in split["children"]}
         assert sum(c["size"] for c in split["children"]) == split["parent_size"]
-    assignments = list(csv.DictReader((run / "assignments.csv").open(encoding="utf-8")))
+    assignments = read_assignments(run)
     assert [r["cluster"] for r in assignments] == [r["k3"] for r in rows]
 
 
@@ -71,7 +65,7 @@ def test_sweep_command_writes_curves_table_and_figures(site: tuple[Path, Path]) 
     result = invoke("sweep", str(folder), "--k", "2:6", "--out", str(out), "--quiet")
     page = out / "sweeps" / "k2-6" / "index.html"
     assert result.stdout.strip() == str(page)
-    figures = json.loads((page.parent / "sweep.json").read_text(encoding="utf-8"))
+    figures = read_json(page.parent / "sweep.json")
     assert figures["recommended_k"] == 3
     assert all(p["silhouette_cosine"] is not None for p in figures["points"])
     assert (page.parent / "sweep-curves.svg").read_text(encoding="utf-8").startswith(("<?xml", "<svg"))
@@ -84,13 +78,13 @@ def test_compare_reads_a_known_split(site: tuple[Path, Path]) -> None:
     invoke("run", str(folder), "--k", "3", "--method", "ward", "--name", "w3", "--out", str(out), "--quiet")
     result = invoke("compare", str(out / "runs" / "w2"), str(out / "runs" / "w3"))
     page = Path(result.stdout.strip())
-    document = json.loads((page.parent / "compare.json").read_text(encoding="utf-8"))
+    document = read_json(page.parent / "compare.json")
     # Three equal topics: the cut at 2 holds two of them together (40 documents), the cut at 3 parts
     # them 20/20, so that cluster reads "split" and the other "kept"; in the other direction, "formed by
     # a split of" twice and "kept" once.
     assert [(f["size"], f["reading"]) for f in document["fates_a"]] == [(40, "split"), (20, "kept")]
     assert sorted(f["reading"] for f in document["fates_b"]) == ["formed by a split of"] * 2 + ["kept"]
-    levels = json.loads((out / "runs" / "w2" / "levels.json").read_text(encoding="utf-8"))
+    levels = read_json(out / "runs" / "w2" / "levels.json")
     assert next(s for s in levels["splits"] if s["k"] == 2)["parent"] == 0
 
 
@@ -98,7 +92,7 @@ def test_a_run_compared_with_itself_keeps_everything(site: tuple[Path, Path]) ->
     folder, out = site
     invoke("run", str(folder), "--k", "3", "--name", "again", "--out", str(out), "--quiet")
     invoke("run", str(folder), "--k", "3", "--name", "again2", "--out", str(out), "--quiet")
-    document = json.loads((out / "compare" / "again--again2" / "compare.json").read_text(encoding="utf-8"))
+    document = read_json(out / "compare" / "again--again2" / "compare.json")
     assert document["agreement"]["adjusted_rand_index"] == 1.0
     assert {f["reading"] for f in document["fates_a"]} == {"kept"} and document["moved"]["total"] == 0
     listing = (out / "runs" / "again" / "comparisons.html").read_text(encoding="utf-8")
@@ -131,5 +125,5 @@ def test_k_beyond_the_groups_of_identical_word_sets_is_a_user_error(tmp_path: Pa
     sweep = runner.invoke(app, ["sweep", str(folder), "--k", "2:6", "--out", str(out), "--quiet",
                                 "--near-duplicate", "1"])
     assert sweep.exit_code == 0, sweep.stderr
-    figures = json.loads((out / "sweeps" / "k2-6" / "sweep.json").read_text(encoding="utf-8"))
+    figures = read_json(out / "sweeps" / "k2-6" / "sweep.json")
     assert [p["k"] for p in figures["points"]] == [2]

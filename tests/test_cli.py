@@ -2,26 +2,10 @@
 
 from __future__ import annotations
 
-import csv
-import json
 from pathlib import Path
 
-from typer.testing import CliRunner
-
+from helpers import assert_one_line_error, invoke, read_assignments, read_manifest
 from pilewise.cli import app
-
-runner = CliRunner()
-
-
-def invoke(*args: str):  # type: ignore[no-untyped-def]
-    return runner.invoke(app, list(args))
-
-
-def assert_one_line_error(result, expected: str) -> None:  # type: ignore[no-untyped-def]
-    assert result.exit_code == 1
-    lines = [line for line in result.stderr.splitlines() if line.startswith("pilewise: error")]
-    assert lines == [f"pilewise: error: {expected}"]
-    assert "Traceback" not in result.output + result.stderr
 
 
 def test_run_writes_the_site_and_prints_the_index_path(topic_folder: Path, tmp_path: Path) -> None:
@@ -31,7 +15,7 @@ def test_run_writes_the_site_and_prints_the_index_path(topic_folder: Path, tmp_p
     index = out / "runs" / "k3" / "index.html"
     assert result.stdout.strip() == str(index)
     assert index.is_file() and (out / "index.html").is_file()
-    rows = list(csv.DictReader((out / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k3")
     assert len(rows) == 60
     # well-separated invented topics: every file of a topic lands in one cluster
     by_topic: dict[str, set[str]] = {}
@@ -115,7 +99,7 @@ def test_table_run_keeps_metadata_columns_in_assignments(tmp_path: Path) -> None
     assert result.exit_code == 0, result.stderr
     header = (out / "runs" / "k3" / "assignments.csv").read_text(encoding="utf-8").splitlines()[0]
     assert header == "doc_id,source,title,cluster,cluster_name,distance,date,copies,channel"
-    manifest = json.loads((out / "runs" / "k3" / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(out / "runs" / "k3")
     assert any("guessed text column 'body'" in note for note in manifest["input"]["notes"])
 
 

@@ -14,11 +14,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from typer.testing import CliRunner
 
-from pilewise.cli import app, main
+from helpers import invoke
+from pilewise.cli import main
 
-runner = CliRunner()
 SRC = str(Path(__file__).resolve().parents[1] / "src")
 
 
@@ -43,7 +42,7 @@ def one_error_line(stderr: str) -> str:
 
 def run_cli(*args: str) -> tuple[int, str, str]:
     """Through typer's test runner."""
-    result = runner.invoke(app, list(args))
+    result = invoke(*args)
     return result.exit_code, result.stdout, result.stderr
 
 

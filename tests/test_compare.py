@@ -11,9 +11,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
-from typer.testing import CliRunner
 
-from pilewise.cli import app
+from helpers import invoke, read_clusters, write_topic_folder
 from pilewise.describe.compare import (
     MOVED_LISTED,
     READINGS_A,
@@ -282,14 +281,12 @@ def test_moved_documents_are_capped_in_the_document_with_the_total_recorded() ->
 
 @pytest.fixture(scope="module")
 def site(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    from conftest import write_topic_folder
-
     base = tmp_path_factory.mktemp("compare")
     folder = base / "notes"
     write_topic_folder(folder)
     out = base / "site"
     for k in ("3", "5"):
-        result = CliRunner().invoke(app, ["run", str(folder), "--k", k, "--out", str(out), "--quiet"])
+        result = invoke("run", str(folder), "--k", k, "--out", str(out), "--quiet")
         assert result.exit_code == 0, result.output
     return out
 
@@ -297,7 +294,7 @@ def site(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def _read_run(folder: Path) -> tuple[dict[str, int], dict[int, str]]:
     with (folder / "assignments.csv").open(encoding="utf-8", newline="") as handle:
         labels = {row["doc_id"]: int(row["cluster"]) for row in csv.DictReader(handle)}
-    clusters = json.loads((folder / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(folder)
     return labels, {c["id"]: c["headline"] for c in clusters["clusters"]}
 
 

@@ -6,8 +6,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+import scipy.sparse as sp
 
+import pilewise.describe.summaries as describe
+from helpers import write_topic_folder
 from pilewise.describe.stats import chi_square_2x2
+from pilewise.describe.summaries import NearestDigest
 from pilewise.options import RunOptions
 from pilewise.pipeline import compute_run
 from pilewise.progress import Reporter
@@ -16,8 +20,6 @@ from pilewise.vectors.tfidf import with_phrases
 
 @pytest.fixture(scope="module")
 def result(tmp_path_factory: pytest.TempPathFactory):  # type: ignore[no-untyped-def]
-    from conftest import write_topic_folder
-
     folder = tmp_path_factory.mktemp("describe") / "notes"
     write_topic_folder(folder, per_topic=15)
     # three exact copies of one garden note: clustered once, counted three times
@@ -100,3 +102,40 @@ def test_same_folder_path_is_accepted(tmp_path: Path) -> None:
     from pilewise.options import validate
 
     validate(RunOptions(source=tmp_path, k=2, out=Path("pilewise-site")))
+
+
+# The bounded nearest-first lists of describe.summaries (used by both paths; here since the stage split)
+
+
+def test_digest_keeps_exactly_the_nearest_rows_of_every_key() -> None:
+    # checked against a full sort of all rows (ties by row number), fed in blocks of 1,000
+    rng = np.random.default_rng(3)
+    n, keys = 20_000, 6
+    labels = rng.integers(0, keys, n)
+    distances = np.round(rng.random(n), 3)  # rounded: many ties, broken by row
+    digest = NearestDigest(7)
+    for begin in range(0, n, 1_000):
+        rows = np.arange(begin, begin + 1_000)
+        digest.update(rows, labels[rows], distances[rows])
+        assert digest.largest_held() <= 7
+    for key in range(keys):
+        members = np.flatnonzero(labels == key)
+        expected = members[np.lexsort((members, distances[members]))][:7]
+        rows, dist = digest.nearest(key)
+        assert rows.tolist() == expected.tolist()
+        assert dist.tolist() == distances[expected].tolist()
+    assert digest.nearest(keys)[0].size == 0
+
+
+def test_term_holders_are_the_nearest_members_holding_each_term() -> None:
+    rng = np.random.default_rng(4)
+    counts = sp.random(3_000, 40, density=0.1, format="csr", random_state=4, data_rvs=lambda m: np.ones(m))
+    labels = rng.integers(0, 3, 3_000)
+    distances = rng.random(3_000)
+    pairs = [(0, 5), (1, 5), (2, 17), (1, 39)]
+    holders = describe.term_holders(counts, labels, distances, pairs, cap=4)
+    dense = counts.toarray() > 0
+    for key, (c, column) in enumerate(pairs):
+        members = np.flatnonzero((labels == c) & dense[:, column])
+        expected = members[np.argsort(distances[members], kind="stable")][:4]
+        assert holders.nearest(key)[0].tolist() == expected.tolist()

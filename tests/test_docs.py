@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-import json
 import re
 from pathlib import Path
 
 import typer
 
+from helpers import read_clusters, read_manifest
 from pilewise.cli import app
 from pilewise.output.exports import EXPORT_FILES
 
@@ -45,11 +45,11 @@ def test_every_clusters_json_key_is_documented(topic_folder: Path, tmp_path: Pat
 
     outcome = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "site", quiet=True))
     outputs = _doc("outputs.md")
-    clusters = json.loads((outcome.run_folder / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(outcome.run_folder)
     keys = set(clusters["quality"]) | set(clusters["clusters"][0]) | set(clusters["clusters"][0]["terms"])
     for key in sorted(keys):
         assert re.search(rf"`[\w.]*{re.escape(key)}`", outputs), key
-    manifest = json.loads((outcome.run_folder / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(outcome.run_folder)
     manifest_keys = set(manifest) | set(manifest["input"]) | set(manifest["vectors"]) | set(manifest["timings_seconds"])
     for key in sorted(manifest_keys):
         assert f"`{key}`" in outputs, key

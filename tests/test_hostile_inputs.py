@@ -9,14 +9,12 @@ from pathlib import Path
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from typer.testing import CliRunner
 
-from pilewise.cli import app
+from helpers import invoke, read_assignments, read_ingest_report
 from pilewise.errors import PilewiseError
 from pilewise.ingest.reading import ReadLimits, read_source
 from pilewise.ingest.tables import ColumnChoice
 
-runner = CliRunner()
 TOPICS = ["soil compost seedling mulch watering", "chain saddle pedal spoke brake", "oven flour dough whisk butter"]
 
 
@@ -125,10 +123,10 @@ def test_every_file_found_is_a_document_or_a_report_line(hostile: Path) -> None:
 
 @pytest.mark.parametrize("mode", ["memory", "stream"])
 def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Path, tmp_path: Path, mode: str) -> None:
-    result = runner.invoke(app, ["run", str(hostile), "--k", "3", "--out", str(tmp_path / "site"), "--mode", mode])
+    result = invoke("run", str(hostile), "--k", "3", "--out", str(tmp_path / "site"), "--mode", mode)
     assert result.exit_code == 0, result.stderr
-    report = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "ingest-report.csv").open(encoding="utf-8")))
-    assignments = list(csv.DictReader((tmp_path / "site" / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
+    report = read_ingest_report(tmp_path / "site" / "runs" / "k3")
+    assignments = read_assignments(tmp_path / "site" / "runs" / "k3")
     skipped = [r for r in report if r["status"] == "skipped"]
     summary = [line for line in result.stderr.splitlines() if "documents in 3 clusters" in line][0]
     assert summary.startswith(f"{len(assignments):,} documents")
@@ -141,8 +139,8 @@ def test_a_run_on_the_hostile_folder_finishes_with_a_truthful_report(hostile: Pa
 def test_a_folder_where_every_document_is_identical(tmp_path: Path) -> None:
     for i in range(5):
         (tmp_path / f"copy-{i}.txt").write_text("the same auto-reply text", encoding="utf-8")
-    result = runner.invoke(app, ["run", str(tmp_path), "--k", "2", "--out", str(tmp_path.parent / "out-same"),
-                                 "--quiet"])
+    result = invoke("run", str(tmp_path), "--k", "2", "--out", str(tmp_path.parent / "out-same"),
+                    "--quiet")
     assert result.exit_code == 1
     assert result.stderr.strip() == (
         "pilewise: error: found 1 distinct document(s); clustering needs at least 3, so add documents or point "
@@ -165,6 +163,7 @@ def test_random_bytes_never_crash_a_reader(tmp_path: Path, payload: bytes, suffi
     assert ingested.documents or ingested.entries
 
 
+@pytest.mark.slow
 def test_ctrl_c_prints_one_line_and_leaves_the_previous_run_intact(tmp_path: Path) -> None:
     import signal
     import subprocess
@@ -175,7 +174,7 @@ def test_ctrl_c_prints_one_line_and_leaves_the_previous_run_intact(tmp_path: Pat
     folder.mkdir()
     _good_files(folder, n=3000)
     out = tmp_path / "site"
-    first = runner.invoke(app, ["run", str(folder), "--k", "3", "--out", str(out), "--quiet", "--resamples", "1"])
+    first = invoke("run", str(folder), "--k", "3", "--out", str(out), "--quiet", "--resamples", "1")
     assert first.exit_code == 0, first.stderr
     before = (out / "runs" / "k3" / "clusters.json").read_bytes()
     process = subprocess.Popen(
@@ -210,10 +209,10 @@ def test_near_duplicates_are_clustered_once_and_every_copy_is_assigned(tmp_path:
     for i in range(8):
         (folder / f"auto-{i}.txt").write_text(template.format(n=40000 + 17 * i, d=3 + i), encoding="utf-8")
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(folder), "--k", "4", "--out", str(out)])
+    result = invoke("run", str(folder), "--k", "4", "--out", str(out))
     assert result.exit_code == 0, result.stderr
     assert "7 near-duplicate texts joined their groups" in result.stderr
-    rows = list(csv.DictReader((out / "runs" / "k4" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k4")
     assert len(rows) == 38
     auto = [r for r in rows if r["doc_id"].startswith("auto-")]
     assert {r["cluster"] for r in auto} == {auto[0]["cluster"]} and {r["copies"] for r in auto} == {"8"}

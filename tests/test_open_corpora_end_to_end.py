@@ -3,14 +3,12 @@
 from __future__ import annotations
 
 import csv
-import json
 from pathlib import Path
 
 import pytest
 from sklearn.metrics import normalized_mutual_info_score
-from typer.testing import CliRunner
 
-from pilewise.cli import app
+from helpers import invoke, read_assignments, read_clusters
 
 open_sets = pytest.importorskip("open_sets")
 
@@ -44,13 +42,13 @@ def test_two_newsgroups_are_recovered_through_the_cli(tmp_path: Path) -> None:
     table = tmp_path / "newsgroups.csv"
     truth = _as_table(collection, table)
     out = tmp_path / "site"
-    result = CliRunner().invoke(app, ["run", str(table), "--k", "2", "--out", str(out), "--quiet"])
+    result = invoke("run", str(table), "--k", "2", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.stderr
-    rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k2")
     assert len(rows) == 200
     nmi = normalized_mutual_info_score([truth[r["doc_id"]] for r in rows], [r["cluster"] for r in rows])
     assert nmi >= 0.6
-    clusters = json.loads((out / "runs" / "k2" / "clusters.json").read_text(encoding="utf-8"))["clusters"]
+    clusters = read_clusters(out / "runs" / "k2")["clusters"]
     top_terms = {t["term"] for c in clusters for t in c["terms"]["chi2"][:15]}
     assert top_terms & {"space", "nasa", "orbit", "launch", "moon"}
     assert top_terms & {"god", "atheism", "atheists", "religion", "believe", "bible"}
@@ -65,10 +63,10 @@ def test_reuters_sample_runs_end_to_end(tmp_path: Path) -> None:
     table = tmp_path / "reuters.csv"
     truth = _as_table(collection, table)
     out = tmp_path / "site"
-    result = CliRunner().invoke(app, ["run", str(table), "--k", "2", "--out", str(out), "--quiet"])
+    result = invoke("run", str(table), "--k", "2", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.stderr
-    clusters = json.loads((out / "runs" / "k2" / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(out / "runs" / "k2")
     assert sum(c["size"] for c in clusters["clusters"]) == 70
     assert all(c["headline"] and c["terms"]["chi2"] for c in clusters["clusters"])
-    rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k2")
     assert normalized_mutual_info_score([truth[r["doc_id"]] for r in rows], [r["cluster"] for r in rows]) >= 0.5

@@ -19,10 +19,9 @@ from urllib.parse import unquote
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
-from typer.testing import CliRunner
 
+from helpers import assert_one_line_error, invoke, read_assignments, read_clusters, read_csv, read_manifest
 from pilewise import pipeline
-from pilewise.cli import app
 from pilewise.csvcells import read_spreadsheet_cell, spreadsheet_cell
 from pilewise.describe.compare import compare_run_folders
 from pilewise.describe.names import find_old_names, read_names_csv
@@ -30,22 +29,10 @@ from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions
 from pilewise.output.outfolder import MARKER, name_lock, safe_name
 
-runner = CliRunner()
 SRC = str(Path(__file__).resolve().parents[1] / "src")
 # OWASP "CSV Injection" guidance: cells starting with these are read as formulas by spreadsheets
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
-
-
-def invoke(*args: str):  # type: ignore[no-untyped-def]
-    return runner.invoke(app, list(args))
-
-
-def assert_one_line_error(result, expected: str) -> None:  # type: ignore[no-untyped-def]
-    assert result.exit_code == 1, result.output
-    lines = [line for line in result.stderr.splitlines() if line.startswith("pilewise: error")]
-    assert lines == [f"pilewise: error: {expected}"]
-    assert "Traceback" not in result.output + result.stderr
 
 
 def run_ok(*args: str) -> str:
@@ -125,7 +112,7 @@ def test_ids_titles_and_cells_starting_with_formula_signs_are_escaped_and_read_b
     # Python csv module docs: csv.reader gives the cells as written; none may start a formula (OWASP)
     for cell in csv_cells(run):
         assert not cell.startswith(FORMULA_STARTS) or PLAIN_NUMBER.fullmatch(cell), cell
-    rows = list(csv.DictReader((run / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(run)
     assert sorted(row["doc_id"] for row in rows) == sorted("'" + i for i in ids)
     assert sorted(row["title"] for row in rows) == sorted("'" + t for t in titles)
     assert sorted(row["note"] for row in rows) == sorted("'" + n for n in notes)
@@ -134,7 +121,7 @@ def test_ids_titles_and_cells_starting_with_formula_signs_are_escaped_and_read_b
     comparison = compare_run_folders(run, run)
     assert comparison.shared == 30 and comparison.only_a == 0
     # a name a person gives that starts with a formula sign survives names.csv both ways
-    names = list(csv.DictReader((run / "names.csv").open(encoding="utf-8")))
+    names = read_csv(run / "names.csv")
     for row in names:
         row["name"], row["note"] = f"-group {row['cluster']}", "=checked"
     with (run / "names.csv").open("w", encoding="utf-8", newline="") as handle:
@@ -145,10 +132,10 @@ def test_ids_titles_and_cells_starting_with_formula_signs_are_escaped_and_read_b
                                                   for r in names}
     run_ok(*args, "--name", "second", "--seed", "2")
     second = out / "runs" / "second"
-    clusters = json.loads((second / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(second)
     assert clusters["names_from_run"] == "first"  # members matched on the unescaped ids
     assert {c["name"] for c in clusters["clusters"]} == {f"-group {r['cluster']}" for r in names}
-    written = list(csv.DictReader((second / "names.csv").open(encoding="utf-8")))
+    written = read_csv(second / "names.csv")
     assert all(row["name"].startswith("'-group ") and row["note"] == "'=checked" for row in written)
     assert sorted(read_names_csv(second / "names.csv").values()) == sorted(read_names_csv(run / "names.csv").values())
 
@@ -277,7 +264,7 @@ def test_a_site_written_before_the_marker_existed_is_still_pilewise_s(tmp_path: 
         marker.unlink()
     run_ok(str(topic_folder), "--k", "3", "--out", str(out), "--seed", "4")
     assert (out / MARKER).is_file() and (out / "runs" / "k3" / MARKER).is_file()
-    seed = json.loads((out / "runs" / "k3" / "manifest.json").read_text(encoding="utf-8"))["seed"]
+    seed = read_manifest(out / "runs" / "k3")["seed"]
     assert seed == 4  # replaced by the new run
 
 
@@ -410,7 +397,7 @@ def damage(run: Path, how: str) -> str:
 
 
 def name_every_cluster(run: Path) -> None:
-    rows = list(csv.DictReader((run / "names.csv").open(encoding="utf-8")))
+    rows = read_csv(run / "names.csv")
     for row in rows:
         row["name"] = f"group {row['cluster']}"
     with (run / "names.csv").open("w", encoding="utf-8", newline="") as handle:
@@ -430,7 +417,7 @@ def test_a_damaged_earlier_run_is_reported_and_skipped(tmp_path: Path, topic_fol
     warnings = [line for line in stderr.splitlines() if line.startswith("pilewise: warning:")]
     assert any(f"runs/k3/{damaged}" in line or f"{out / 'runs' / 'k3' / damaged}" in line for line in warnings), \
         stderr
-    clusters = json.loads((out / "runs" / "k4" / "clusters.json").read_text(encoding="utf-8"))
+    clusters = read_clusters(out / "runs" / "k4")
     assert clusters["names_from_run"] == ""  # nothing carried from the damaged run
     assert find_old_names(out / "runs", source=str(topic_folder), fingerprint="") is None
     root = (out / "index.html").read_text(encoding="utf-8")
@@ -469,7 +456,7 @@ def test_e_mail_addresses_in_ids_are_redacted_on_pages_and_kept_in_assignments(t
     pages = page_text(out / "runs" / "k3") + (out / "index.html").read_text(encoding="utf-8")
     assert "@example.com" not in pages and "7946" not in pages
     assert "[e-mail]" in pages
-    rows = list(csv.DictReader((out / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k3")
     assert sorted(row["doc_id"] for row in rows) == sorted(ids)  # exports keep the user's ids
     # and the comparison page shows the moved documents' ids redacted as well
     run_ok(str(table), "--k", "4", "--out", str(out), "--id-column", "id", "--title-column", "title",

@@ -7,16 +7,11 @@ from pathlib import Path
 
 import pytest
 
+from helpers import read
 from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import first_line_title
-from pilewise.ingest.reading import ReadLimits, html_to_text, read_source, strip_mail_quotes
+from pilewise.ingest.reading import html_to_text, strip_mail_quotes
 from pilewise.ingest.tables import ColumnChoice
-
-LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
-
-
-def read(folder: Path, columns: ColumnChoice = ColumnChoice(), limits: ReadLimits = LIMITS):  # noqa: B008
-    return read_source(folder, columns, limits)
 
 
 def test_html_keeps_visible_text_and_takes_the_title_tag() -> None:

@@ -11,20 +11,13 @@ from pathlib import Path
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from typer.testing import CliRunner
 
-from pilewise.cli import app
-from pilewise.ingest.reading import ReadLimits, read_source, stream_source
+from helpers import LIMITS, invoke, read, read_assignments, read_ingest_report
+from pilewise.ingest.reading import ReadLimits, stream_source
 from pilewise.ingest.tables import ColumnChoice
 
-runner = CliRunner()
-LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
 TOPICS = ["soil compost seedling mulch watering spade", "chain saddle pedal spoke brake gear",
           "oven flour dough whisk butter saucepan"]
-
-
-def read(source: Path, columns: ColumnChoice = ColumnChoice(), limits: ReadLimits = LIMITS):  # noqa: B008
-    return read_source(source, columns, limits)
 
 
 def _message(subject: str, plain: str | None = None, html: str | None = None) -> EmailMessage:
@@ -237,11 +230,11 @@ def test_a_run_over_tables_with_the_same_ids_gives_unique_ids(tmp_path: Path, mo
     for month in range(3):
         _id_table(source / f"2024-0{month + 1}.csv", [str(i) for i in range(1, 13)], month)
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(source), "--k", "3", "--out", str(out), "--mode", mode, "--quiet"])
+    result = invoke("run", str(source), "--k", "3", "--out", str(out), "--mode", mode, "--quiet")
     assert result.exit_code == 0, result.stderr
-    rows = list(csv.DictReader((out / "runs" / "k3" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k3")
     assert len(rows) == 36 and len({r["doc_id"] for r in rows}) == 36
-    report = list(csv.DictReader((out / "runs" / "k3" / "ingest-report.csv").open(encoding="utf-8")))
+    report = read_ingest_report(out / "runs" / "k3")
     assert [r["source"] for r in report if r["reason"] == "repeated id"] == ["2024-02.csv", "2024-03.csv"]
 
 
@@ -277,13 +270,13 @@ def test_a_file_name_that_is_not_utf8_runs_end_to_end(tmp_path: Path) -> None:
     os.write(handle, b"oven flour dough whisk in the cafe")
     os.close(handle)
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(source), "--k", "2", "--out", str(out), "--quiet"])
+    result = invoke("run", str(source), "--k", "2", "--out", str(out), "--quiet")
     assert result.exit_code == 0, result.stderr
     # Python codecs docs: "backslashreplace" writes an undecodable byte as \xNN
     shown = "caf\\xe9.txt"
-    rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k2")
     assert shown in {r["doc_id"] for r in rows}
-    report = list(csv.DictReader((out / "runs" / "k2" / "ingest-report.csv").open(encoding="utf-8")))
+    report = read_ingest_report(out / "runs" / "k2")
     assert {(r["source"], r["reason"]) for r in report if r["status"] == "note"} >= {(shown, "file name")}
 
 
@@ -305,13 +298,13 @@ def test_max_file_mb_skips_whole_files_but_not_tables_read_row_by_row(tmp_path: 
     for name in ("big.csv", "big.jsonl", "big.mbox", "big.txt", "big.json"):
         assert (source / name).stat().st_size > limit
     out = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(source), "--k", "2", "--out", str(out), "--quiet",
-                                 "--max-file-mb", "0.001"])
+    result = invoke("run", str(source), "--k", "2", "--out", str(out), "--quiet",
+                    "--max-file-mb", "0.001")
     assert result.exit_code == 0, result.stderr
-    report = list(csv.DictReader((out / "runs" / "k2" / "ingest-report.csv").open(encoding="utf-8")))
+    report = read_ingest_report(out / "runs" / "k2")
     too_large = sorted(r["source"] for r in report if r["reason"] == "too large")
     assert too_large == ["big.json", "big.txt"]
-    rows = list(csv.DictReader((out / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    rows = read_assignments(out / "runs" / "k2")
     counts: dict[str, int] = {}
     for row in rows:
         counts[row["source"].split("#")[0]] = counts.get(row["source"].split("#")[0], 0) + 1

@@ -8,6 +8,7 @@ from pathlib import Path
 import pytest
 from bs4 import BeautifulSoup
 
+from helpers import read_manifest
 from pilewise.options import RunOptions
 from pilewise.pipeline import run_collection
 
@@ -90,10 +91,9 @@ def test_same_input_and_seed_give_the_same_files(topic_folder: Path, tmp_path: P
     differing = [f for f in files_a if (first.run_folder / f).read_bytes() != (second.run_folder / f).read_bytes()]
     # Only the manifest may differ, and only in its measured stage timings and the output path.
     assert [str(f) for f in differing] in ([], ["manifest.json"])
-    import json
 
     def stable(run: Path) -> dict[str, object]:
-        manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+        manifest = read_manifest(run)
         manifest.pop("timings_seconds")
         manifest["parameters"].pop("out")
         return manifest

@@ -1,10 +1,9 @@
-"""The streaming path: hashed counts, bounded digests, agreement with the in-memory path, progress."""
+"""The streaming path: hashed counts, bounded digests in a run, agreement with the in-memory path, progress."""
 
 from __future__ import annotations
 
 import csv
 import io
-import json
 from pathlib import Path
 
 import numpy as np
@@ -12,10 +11,9 @@ import pytest
 import scipy.sparse as sp
 from sklearn.feature_extraction.text import HashingVectorizer
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
-from typer.testing import CliRunner
 
 import pilewise.describe.summaries as describe
-from pilewise.cli import app
+from helpers import invoke, read_assignments, read_clusters, read_manifest
 from pilewise.describe.summaries import NearestDigest
 from pilewise.progress import Reporter, progress_line
 from pilewise.vectors.streaming import HASH_BUCKETS, column_names, hashed_counts
@@ -47,40 +45,6 @@ def test_column_names_are_the_most_frequent_word_of_each_column() -> None:
     assert sorted(names) == sorted(words)  # no collision among these few words: every word names its column
     parcel = matrix[:, columns[names.index("parcel")]].toarray().ravel()
     assert parcel.tolist() == [2, 0, 0]
-
-
-def test_digest_keeps_exactly_the_nearest_rows_of_every_key() -> None:
-    # checked against a full sort of all rows (ties by row number), fed in blocks of 1,000
-    rng = np.random.default_rng(3)
-    n, keys = 20_000, 6
-    labels = rng.integers(0, keys, n)
-    distances = np.round(rng.random(n), 3)  # rounded: many ties, broken by row
-    digest = NearestDigest(7)
-    for begin in range(0, n, 1_000):
-        rows = np.arange(begin, begin + 1_000)
-        digest.update(rows, labels[rows], distances[rows])
-        assert digest.largest_held() <= 7
-    for key in range(keys):
-        members = np.flatnonzero(labels == key)
-        expected = members[np.lexsort((members, distances[members]))][:7]
-        rows, dist = digest.nearest(key)
-        assert rows.tolist() == expected.tolist()
-        assert dist.tolist() == distances[expected].tolist()
-    assert digest.nearest(keys)[0].size == 0
-
-
-def test_term_holders_are_the_nearest_members_holding_each_term() -> None:
-    rng = np.random.default_rng(4)
-    counts = sp.random(3_000, 40, density=0.1, format="csr", random_state=4, data_rvs=lambda m: np.ones(m))
-    labels = rng.integers(0, 3, 3_000)
-    distances = rng.random(3_000)
-    pairs = [(0, 5), (1, 5), (2, 17), (1, 39)]
-    holders = describe.term_holders(counts, labels, distances, pairs, cap=4)
-    dense = counts.toarray() > 0
-    for key, (c, column) in enumerate(pairs):
-        members = np.flatnonzero((labels == c) & dense[:, column])
-        expected = members[np.argsort(distances[members], kind="stable")][:4]
-        assert holders.nearest(key)[0].tolist() == expected.tolist()
 
 
 def planted_table(path: Path, n_docs: int, seed: int) -> dict[str, int]:
@@ -121,10 +85,11 @@ def planted_table(path: Path, n_docs: int, seed: int) -> dict[str, int]:
 
 
 def _assignments(run: Path) -> dict[str, str]:
-    with (run / "assignments.csv").open(encoding="utf-8") as handle:
-        return {row["doc_id"]: row["cluster"] for row in csv.DictReader(handle)}
+    return {row["doc_id"]: row["cluster"] for row in read_assignments(run)}
 
 
+# Two 6,000-row runs (about 16 s on 2 shared cores): every test that takes this fixture is marked slow,
+# so that -m "not slow" never builds it.
 @pytest.fixture(scope="module")
 def planted(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, dict[str, int], dict[str, dict[str, str]]]:
     folder = tmp_path_factory.mktemp("planted")
@@ -133,13 +98,14 @@ def planted(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, dict[str, i
     found = {}
     for mode in ("memory", "stream"):
         out = folder / f"site-{mode}"
-        result = CliRunner().invoke(app, ["run", str(table), "--k", "8", "--mode", mode, "--out", str(out),
-                                          "--quiet", "--resamples", "5"])
+        result = invoke("run", str(table), "--k", "8", "--mode", mode, "--out", str(out),
+                        "--quiet", "--resamples", "5")
         assert result.exit_code == 0, result.stderr
         found[mode] = _assignments(out / "runs" / "k8")
     return folder, truth, found
 
 
+@pytest.mark.slow
 def test_streaming_and_in_memory_modes_agree(planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]]) -> None:
     _, truth, found = planted
     ids = sorted(truth)
@@ -157,13 +123,14 @@ ARI_FLOOR = 0.75
 NMI_FLOOR = 0.8
 
 
+@pytest.mark.slow
 def test_streaming_run_writes_the_same_outputs(planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]]) -> None:
     folder, _, _ = planted
     run = folder / "site-stream" / "runs" / "k8"
-    manifest = json.loads((run / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(run)
     assert manifest["vectors"]["streamed"] is True
     assert manifest["vectors"]["hashed_columns"] == HASH_BUCKETS
-    clusters = json.loads((run / "clusters.json").read_text(encoding="utf-8"))["clusters"]
+    clusters = read_clusters(run)["clusters"]
     assert sum(c["size"] for c in clusters) == 6_000
     for cluster in clusters:
         assert cluster["terms"]["chi2"] and all(t["term"].endswith("x") for t in cluster["terms"]["chi2"])
@@ -172,6 +139,7 @@ def test_streaming_run_writes_the_same_outputs(planted: tuple[Path, dict[str, in
     assert not list((folder / "site-stream").glob(".work-*"))  # the scratch folder is gone
 
 
+@pytest.mark.slow
 def test_describing_respects_small_digest_bounds(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
     tmp_path: Path,
@@ -190,12 +158,12 @@ def test_describing_respects_small_digest_bounds(
 
     monkeypatch.setattr(NearestDigest, "update", checked)
     out = tmp_path / "site"
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
-                                      "--out", str(out), "--quiet", "--resamples", "2"])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                    "--out", str(out), "--quiet", "--resamples", "2")
     assert result.exit_code == 0, result.stderr
     assert len(seen) == 2 * 12  # 6,000 rows in blocks of 500, for the nearest members and for the term holders
     assert all(held <= cap for cap, held in seen) and {cap for cap, _ in seen} == {2, 3}
-    clusters = json.loads((out / "runs" / "k8" / "clusters.json").read_text(encoding="utf-8"))["clusters"]
+    clusters = read_clusters(out / "runs" / "k8")["clusters"]
     for cluster in clusters:
         assert len(cluster["nearest"]) == 2
         lines_per_term: dict[str, int] = {}
@@ -204,15 +172,16 @@ def test_describing_respects_small_digest_bounds(
         assert lines_per_term and max(lines_per_term.values()) <= 3
 
 
+@pytest.mark.slow
 def test_streaming_refuses_what_it_cannot_do(planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]],
                                              tmp_path: Path) -> None:
     folder, _, _ = planted
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "auto", "--mode", "stream",
-                                      "--out", str(tmp_path / "site")])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "auto", "--mode", "stream",
+                    "--out", str(tmp_path / "site"))
     assert result.exit_code == 1
     assert result.stderr.startswith("pilewise: error: streaming mode clusters with mini-batch k-means")
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "3", "--mode", "fast",
-                                      "--out", str(tmp_path / "site")])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "3", "--mode", "fast",
+                    "--out", str(tmp_path / "site"))
     assert result.exit_code == 1
     assert "--mode 'fast' is not known; use one of: auto, memory, stream" in result.stderr
 
@@ -248,6 +217,7 @@ def test_hashed_matrix_is_sparse_and_integer() -> None:
     assert sp.isspmatrix_csr(matrix) and matrix.dtype == np.int32 and matrix.shape == (3, HASH_BUCKETS)
 
 
+@pytest.mark.slow
 def test_a_streamed_run_shows_progress_on_a_terminal_and_nothing_when_quiet(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
     tmp_path: Path,
@@ -275,6 +245,7 @@ def test_a_streamed_run_shows_progress_on_a_terminal_and_nothing_when_quiet(
             assert "6,000 documents" in shown and "<" in shown  # counts, and tqdm's elapsed<left estimate
 
 
+@pytest.mark.slow
 def test_auto_mode_streams_above_the_size_threshold(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], monkeypatch: pytest.MonkeyPatch,
     tmp_path: Path,
@@ -286,21 +257,22 @@ def test_auto_mode_streams_above_the_size_threshold(
     for threshold, streamed in ((size + 1, False), (size, True)):
         monkeypatch.setattr(pipeline, "STREAM_ABOVE_BYTES", threshold)
         out = tmp_path / f"site-{threshold}"
-        result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--out", str(out),
-                                          "--quiet", "--resamples", "2"])
+        result = invoke("run", str(folder / "planted.csv"), "--k", "8", "--out", str(out),
+                        "--quiet", "--resamples", "2")
         assert result.exit_code == 0, result.stderr
-        manifest = json.loads((out / "runs" / "k8" / "manifest.json").read_text(encoding="utf-8"))
+        manifest = read_manifest(out / "runs" / "k8")
         assert manifest["vectors"].get("streamed", False) is streamed
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("options", [["--lsa-components", "0"], ["--stem"], ["--no-redact"], ["--workers", "1"]])
 def test_streaming_runs_with_other_settings(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], tmp_path: Path, options: list[str]
 ) -> None:
     folder, truth, _ = planted
     out = tmp_path / "site"
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
-                                      "--out", str(out), "--quiet", "--resamples", "2", *options])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                    "--out", str(out), "--quiet", "--resamples", "2", *options)
     assert result.exit_code == 0, result.stderr
     found = _assignments(out / "runs" / "k8")
     ids = sorted(truth)
@@ -308,6 +280,7 @@ def test_streaming_runs_with_other_settings(
     assert normalized_mutual_info_score([truth[i] for i in ids], [found[i] for i in ids]) >= 0.6
 
 
+@pytest.mark.slow
 def test_a_killed_runs_scratch_folder_is_removed_but_a_live_ones_is_kept(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], tmp_path: Path
 ) -> None:
@@ -320,20 +293,21 @@ def test_a_killed_runs_scratch_folder_is_removed_but_a_live_ones_is_kept(
     for scratch in (dead, live):
         scratch.mkdir(parents=True)
         (scratch / "documents.jsonl").write_text("{}\n", encoding="utf-8")
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
-                                      "--out", str(out), "--quiet", "--resamples", "2"])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                    "--out", str(out), "--quiet", "--resamples", "2")
     assert result.exit_code == 0, result.stderr
     assert not dead.exists() and live.exists()
     assert sorted(p.name for p in out.glob(".work-*")) == [live.name]  # this run's own folder is gone too
 
 
+@pytest.mark.slow
 def test_streaming_stops_at_max_documents_with_one_line(
     planted: tuple[Path, dict[str, int], dict[str, dict[str, str]]], tmp_path: Path
 ) -> None:
     folder, _, _ = planted
     out = tmp_path / "site"
-    result = CliRunner().invoke(app, ["run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
-                                      "--out", str(out), "--quiet", "--max-documents", "100"])
+    result = invoke("run", str(folder / "planted.csv"), "--k", "8", "--mode", "stream",
+                    "--out", str(out), "--quiet", "--max-documents", "100")
     assert result.exit_code == 1
     assert result.stderr.strip().splitlines()[-1] == (
         "pilewise: error: found more than --max-documents 100 documents; raise --max-documents or point SOURCE "

@@ -11,20 +11,11 @@ import json
 from pathlib import Path
 
 import pytest
-from typer.testing import CliRunner
 
-from pilewise.cli import app
+from helpers import invoke, read, read_assignments, read_manifest
 from pilewise.errors import PilewiseError
-from pilewise.ingest.reading import ReadLimits, read_source
 from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Ingested
-
-LIMITS = ReadLimits(max_file_bytes=1_000_000, max_doc_chars=10_000)
-runner = CliRunner()
-
-
-def read(source: Path, columns: ColumnChoice = ColumnChoice()) -> Ingested:  # noqa: B008
-    return read_source(source, columns, LIMITS)
 
 
 def notes_of(ingested: Ingested, reason: str) -> list[str]:
@@ -367,20 +358,20 @@ def test_a_semicolon_csv_runs_end_to_end(tmp_path: Path) -> None:
     table = tmp_path / "export.csv"
     table.write_bytes("".join(out).encode("utf-8-sig"))
     site = tmp_path / "site"
-    result = runner.invoke(app, ["run", str(table), "--k", "2", "--text-column", "body", "--id-column", "ref",
-                                 "--out", str(site), "--quiet"])
+    result = invoke("run", str(table), "--k", "2", "--text-column", "body", "--id-column", "ref",
+                    "--out", str(site), "--quiet")
     assert result.exit_code == 0, result.stderr
-    assignments = list(csv.DictReader((site / "runs" / "k2" / "assignments.csv").open(encoding="utf-8")))
+    assignments = read_assignments(site / "runs" / "k2")
     assert sorted(row["doc_id"] for row in assignments) == sorted(ref for ref, _, _ in rows)
     assert {row["city"] for row in assignments} == {"Köln", "Bonn"}
-    manifest = json.loads((site / "runs" / "k2" / "manifest.json").read_text(encoding="utf-8"))
+    manifest = read_manifest(site / "runs" / "k2")
     assert "export.csv: separator ';' (sniffed)" in manifest["input"]["notes"]
 
 
 def test_repeated_columns_through_the_cli_are_one_line(tmp_path: Path) -> None:
     table = tmp_path / "x.csv"
     table.write_text("id,text,text\n1,soil,water\n2,oven,flour\n3,chain,pedal\n", encoding="utf-8")
-    result = runner.invoke(app, ["run", str(table), "--k", "2", "--out", str(tmp_path / "site")])
+    result = invoke("run", str(table), "--k", "2", "--out", str(tmp_path / "site"))
     assert result.exit_code == 1
     lines = [line for line in result.stderr.splitlines() if line.startswith("pilewise: error")]
     assert lines == ["pilewise: error: column 'text' appears twice in x.csv; rename one of them in the file so "
