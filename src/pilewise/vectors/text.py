@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import re
 from collections import Counter
+from collections.abc import Iterable
 from pathlib import Path
 
 from nltk.stem.snowball import SnowballStemmer
@@ -94,6 +95,19 @@ class Analyzer:
                 if stemming:
                     self._surface_counts.setdefault(str(term), Counter())[word] += 1
         return out
+
+    def words(self, text: str) -> list[str]:
+        """The lower-cased words of `text` as `terms` reads them, before possessives, stop words and stemming."""
+        return self._findall(text.lower())
+
+    def count_surfaces(self, words: Iterable[str], counts: Iterable[int]) -> None:
+        """Record `counts` occurrences of each word, as `terms` does per occurrence (for `surface`)."""
+        if self._stemmer is None:
+            return
+        for word, count in zip(words, counts, strict=True):
+            term = self.normalize(word)
+            if term is not None and count:
+                self._surface_counts.setdefault(term, Counter())[word] += int(count)
 
     def tokens(self, text: str) -> list[str]:
         """The lower-cased words of `text`, before stop words and stemming."""

@@ -101,71 +101,148 @@ def with_phrases(terms: list[str]) -> list[str]:
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
+PAIR_BLOCK_TEXTS = 20_000  # texts whose adjacent pairs are sorted at once (bounds the temporaries)
+
+
 def count_terms(
     texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
     Returns the word count matrix (texts x words), the words, the pair count matrix (texts x pairs) and
-    the pairs as (first word id, second word id) rows. Pairs are counted as 64-bit codes in numpy, which
-    keeps a large collection's millions of distinct pairs out of Python dictionaries. Pairs with a word in
-    fewer than `min_df` documents are left out: a pair is never in more documents than either of its
-    words. Documents are counted with `copies` (documents per text; default one), as `document_frequency`.
+    the pairs as (first word id, second word id) rows. Words get ids in order of first occurrence, as
+    `Analyzer.terms` would give them one by one; each distinct lower-cased word is normalized once
+    (word -> column, or none for a stop word), so a token costs one dictionary lookup. Pairs are counted
+    as 64-bit codes in numpy, which keeps a large collection's millions of distinct pairs out of Python
+    dictionaries. Pairs with a word in fewer than `min_df` documents are left out: a pair is never in more
+    documents than either of its words. Documents are counted with `copies` (documents per text; default
+    one), as `document_frequency`.
     """
-    vocabulary: defaultdict[str, int] = defaultdict(itertools.count().__next__)
-    ids = array("i")
-    indptr = array("q", [0])
-    id_of = vocabulary.__getitem__
-    for text in texts:
-        ids.extend(map(id_of, analyzer.terms(text)))
-        indptr.append(len(ids))
-    n_texts, n_words = len(indptr) - 1, max(len(vocabulary), 1)
-    word_ids = np.frombuffer(ids, dtype=np.int32) if len(ids) else np.zeros(0, dtype=np.int32)
-    bounds = np.frombuffer(indptr, dtype=np.int64)
-    # the matrix gets its own copy of the ids: sum_duplicates sorts them in place, and the pairs need text order
+    word_ids, bounds, terms = _term_ids(texts, analyzer)
+    n_texts, n_words = bounds.size - 1, max(len(terms), 1)
     words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
                           shape=(n_texts, n_words))
     words.sum_duplicates()
-    # pairs of adjacent kept words inside one text, already in text order: build the CSR matrix directly
-    lengths = np.diff(bounds)
-    starts_of_text = np.zeros(word_ids.size, dtype=bool)
-    starts_of_text[bounds[1:-1][lengths[1:] > 0]] = True  # first word of every text but the first
     weight = np.ones(n_texts) if copies is None else np.asarray(copies, dtype=np.float64)
     frequent = document_frequency(words, weight) >= min_df
-    inside = ~starts_of_text[1:] & frequent[word_ids[:-1]] & frequent[word_ids[1:]]
-    codes = word_ids[:-1][inside].astype(np.int64) * n_words + word_ids[1:][inside]
-    text_of_pair = np.repeat(np.arange(n_texts, dtype=np.int32), lengths)[:-1][inside]
-    del inside, starts_of_text, frequent, word_ids, ids
-    # distinct pairs, and each pair's number of texts: keep only those that can pass min_df
-    pair_codes, pair_ids = np.unique(codes, return_inverse=True)
-    del codes
-    pair_ids = pair_ids.astype(np.int32)
-    first_in_text = np.ones(pair_ids.size, dtype=bool)
-    if pair_ids.size > 1:  # a pair counts once per text: compare with the previous occurrence in the same text
-        order = np.lexsort((pair_ids, text_of_pair))
-        same = (text_of_pair[order][1:] == text_of_pair[order][:-1]) & (pair_ids[order][1:] == pair_ids[order][:-1])
-        first_in_text[order[1:][same]] = False
-        del order, same
-    pair_df = np.bincount(pair_ids[first_in_text], weights=weight[text_of_pair[first_in_text]],
-                          minlength=pair_codes.size)
-    del first_in_text
+    # distinct (pair, text) entries with their counts, block by block of texts, sorted by pair code; each
+    # block's distinct pairs with their documents, so that no search runs over every entry
+    blocks: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []
+    block_codes, block_df = [], []
+    per_block = max(1, min(PAIR_BLOCK_TEXTS, (2**62) // (n_words * n_words)))  # keys fit in int64
+    for begin in range(0, n_texts, per_block):
+        stop = min(begin + per_block, n_texts)
+        ids = word_ids[bounds[begin] : bounds[stop]]
+        text = np.repeat(np.arange(stop - begin, dtype=np.int64), np.diff(bounds[begin : stop + 1]))
+        inside = (text[1:] == text[:-1]) & frequent[ids[:-1]] & frequent[ids[1:]]
+        keyed = (ids[:-1][inside].astype(np.int64) * n_words + ids[1:][inside]) * (stop - begin) + text[1:][inside]
+        del text, inside
+        distinct, counts = _sorted_unique(keyed)
+        del keyed
+        code, text = np.divmod(distinct, stop - begin)
+        new_code = np.empty(code.size, dtype=bool)
+        new_code[:1] = True
+        np.not_equal(code[1:], code[:-1], out=new_code[1:])
+        starts = np.flatnonzero(new_code)
+        local = np.cumsum(new_code, dtype=np.int64) - 1  # entry -> its pair's place among the block's pairs
+        text += begin
+        blocks.append((text, local, counts.astype(np.int32), starts))
+        block_codes.append(code[starts])
+        block_df.append(np.add.reduceat(weight[text], starts) if starts.size else np.zeros(0))
+    del word_ids
+    # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
+    codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
+    pair_codes, _ = _sorted_unique(codes.copy())
+    block_ids = [np.searchsorted(pair_codes, c) for c in block_codes]
+    pair_df = np.bincount(np.concatenate(block_ids), weights=np.concatenate(block_df), minlength=pair_codes.size) \
+        if block_ids else np.zeros(0)
+    del codes, block_codes, block_df
     wanted = pair_df >= min_df
-    keep = wanted[pair_ids]
-    renumber = np.cumsum(wanted) - 1
+    renumber = (np.cumsum(wanted) - 1).astype(np.int32)
     pair_codes = pair_codes[wanted]
-    pair_ids = renumber[pair_ids[keep]].astype(np.int32)
-    text_of_pair = text_of_pair[keep]
-    del keep, renumber, wanted, pair_df
-    pair_indptr = np.concatenate([[0], np.cumsum(np.bincount(text_of_pair, minlength=n_texts))])
-    del text_of_pair
-    pairs = sp.csr_matrix((np.ones(pair_ids.size, dtype=np.int32), pair_ids, pair_indptr),
-                          shape=(n_texts, pair_codes.size))
-    del pair_ids
-    pairs.sum_duplicates()
-    terms = [""] * len(vocabulary)
-    for term, i in vocabulary.items():
-        terms[i] = term
+    rows, columns, data = [], [], []
+    for (text, local, counts, _), ids in zip(blocks, block_ids, strict=True):
+        pair_of_entry = ids[local]
+        keep = wanted[pair_of_entry]
+        rows.append(text[keep])
+        columns.append(renumber[pair_of_entry[keep]])
+        data.append(counts[keep])
+    del blocks, block_ids
+    pairs = sp.csr_matrix(
+        sp.coo_matrix((np.concatenate(data) if data else np.zeros(0, dtype=np.int32),
+                       (np.concatenate(rows) if rows else np.zeros(0, dtype=np.int64),
+                        np.concatenate(columns) if columns else np.zeros(0, dtype=np.int32))),
+                      shape=(n_texts, pair_codes.size))
+    )
+    pairs.sum_duplicates()  # one entry per (text, pair) already; this sorts each row's pairs
     return words, terms, pairs, np.column_stack([pair_codes // n_words, pair_codes % n_words])
+
+
+def _sorted_unique(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct values in order (and how often each occurs), sorting `values` in place.
+
+    `np.unique` without return options hashes on numpy 2.3+, measured several times slower than a sort on
+    millions of 64-bit codes with many distinct values.
+    """
+    values.sort()
+    first = np.empty(values.size + 1, dtype=bool)
+    first[0] = first[-1] = True
+    np.not_equal(values[1:], values[:-1], out=first[1:-1])
+    starts = np.flatnonzero(first)
+    distinct = values[starts[:-1]]
+    return distinct, np.diff(starts)
+
+
+def _term_ids(texts: Iterable[str], analyzer: Analyzer) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Every text's term ids in order (int32), the texts' bounds in them (int64), and the terms by id.
+
+    Words are numbered by first occurrence while reading, then turned into terms batch by batch through
+    one array (word id -> term id, -1 for a stop word); a term's id is its first occurrence among the
+    kept words, as numbering `Analyzer.terms` output one by one would give.
+    """
+    word_of: defaultdict[str, int] = defaultdict(itertools.count().__next__)
+    word_id = word_of.__getitem__
+    lower_words = analyzer.words
+    term_id: dict[str, int] = {}
+    term_of_word = np.zeros(0, dtype=np.int32)
+    seen = np.zeros(0, dtype=np.int64)  # occurrences of every word (surface forms of stems)
+    kept_parts: list[np.ndarray] = []
+    bounds = [np.zeros(1, dtype=np.int64)]
+    raw = array("i")
+    lengths = array("q")
+    kept_total = 0
+
+    def flush() -> None:
+        nonlocal term_of_word, seen, kept_total
+        names = list(itertools.islice(word_of, term_of_word.size, None))
+        added = np.fromiter(
+            (term_id.setdefault(t, len(term_id)) if (t := analyzer.normalize(w)) is not None else -1 for w in names),
+            dtype=np.int32, count=len(names))
+        term_of_word = np.concatenate([term_of_word, added])
+        ids = term_of_word[np.frombuffer(raw, dtype=np.int32)] if len(raw) else np.zeros(0, dtype=np.int32)
+        seen = np.concatenate([seen, np.zeros(len(names), dtype=np.int64)])
+        seen += np.bincount(np.frombuffer(raw, dtype=np.int32), minlength=seen.size) if len(raw) else 0
+        kept = ids >= 0
+        kept_before = np.concatenate([[0], np.cumsum(kept)])  # kept words before each raw position
+        ends = np.cumsum(np.frombuffer(lengths, dtype=np.int64)) if len(lengths) else np.zeros(0, dtype=np.int64)
+        bounds.append(kept_total + kept_before[ends])
+        kept_parts.append(ids[kept])
+        kept_total += int(kept_before[-1])
+        del raw[:], lengths[:]
+
+    for text in texts:
+        found = lower_words(text)
+        raw.extend(map(word_id, found))
+        lengths.append(len(found))
+        if len(lengths) >= PAIR_BLOCK_TEXTS:
+            flush()
+    flush()
+    analyzer.count_surfaces(word_of, seen.tolist())
+    terms = [""] * len(term_id)
+    for term, i in term_id.items():
+        terms[i] = term
+    ids = np.concatenate(kept_parts) if kept_parts else np.zeros(0, dtype=np.int32)
+    return ids, np.concatenate(bounds), terms
 
 
 def vectorize(
