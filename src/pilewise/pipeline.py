@@ -294,7 +294,8 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             texts = stripped.texts
             reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
                                            stripped.lines_kept))
-        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed) \
+        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed,
+                                     workers=options.workers or default_workers()) \
             if options.near_duplicate < 1.0 else None
         if near is not None and near.representative.size < len(texts):
             collection = merge_near_duplicates(collection, near)
@@ -312,7 +313,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         vectors = vectorize(
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
-            copies=collection.copies,
+            copies=collection.copies, workers=options.workers or default_workers(),
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
                     redacted, fingerprint(ingested.documents))

@@ -7,9 +7,10 @@ from __future__ import annotations
 
 import itertools
 import math
+import multiprocessing
 from array import array
 from collections import defaultdict
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -105,7 +106,7 @@ PAIR_BLOCK_TEXTS = 20_000  # texts whose adjacent pairs are sorted at once (boun
 
 
 def count_terms(
-    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None
+    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None, workers: int = 1
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
@@ -116,9 +117,10 @@ def count_terms(
     as 64-bit codes in numpy, which keeps a large collection's millions of distinct pairs out of Python
     dictionaries. Pairs with a word in fewer than `min_df` documents are left out: a pair is never in more
     documents than either of its words. Documents are counted with `copies` (documents per text; default
-    one), as `document_frequency`.
+    one), as `document_frequency`. `workers` > 1 tokenizes a large sequence of texts in that many forked
+    processes (the result is the same).
     """
-    word_ids, bounds, terms = _term_ids(texts, analyzer)
+    word_ids, bounds, terms = _term_ids(texts, analyzer, workers)
     n_texts, n_words = bounds.size - 1, max(len(terms), 1)
     words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
                           shape=(n_texts, n_words))
@@ -193,56 +195,99 @@ def _sorted_unique(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return distinct, np.diff(starts)
 
 
-def _term_ids(texts: Iterable[str], analyzer: Analyzer) -> tuple[np.ndarray, np.ndarray, list[str]]:
+def _term_ids(
+    texts: Iterable[str], analyzer: Analyzer, workers: int = 1
+) -> tuple[np.ndarray, np.ndarray, list[str]]:
     """Every text's term ids in order (int32), the texts' bounds in them (int64), and the terms by id.
 
-    Words are numbered by first occurrence while reading, then turned into terms batch by batch through
-    one array (word id -> term id, -1 for a stop word); a term's id is its first occurrence among the
-    kept words, as numbering `Analyzer.terms` output one by one would give.
+    Texts are read in chunks, each giving its words numbered locally by first occurrence (in worker
+    processes when `workers` > 1 and `texts` is a large sequence); chunks are taken in order, so the
+    words' global numbers follow first occurrence over all texts. Words then become terms through one
+    array (word id -> term id, -1 for a stop word); a term's id is its first occurrence among the kept
+    words, as numbering `Analyzer.terms` output one by one would give.
     """
     word_of: defaultdict[str, int] = defaultdict(itertools.count().__next__)
     word_id = word_of.__getitem__
-    lower_words = analyzer.words
     term_id: dict[str, int] = {}
     term_of_word = np.zeros(0, dtype=np.int32)
     seen = np.zeros(0, dtype=np.int64)  # occurrences of every word (surface forms of stems)
     kept_parts: list[np.ndarray] = []
     bounds = [np.zeros(1, dtype=np.int64)]
-    raw = array("i")
-    lengths = array("q")
     kept_total = 0
 
-    def flush() -> None:
+    def take(chunk: tuple[list[str], np.ndarray, np.ndarray]) -> None:
         nonlocal term_of_word, seen, kept_total
-        names = list(itertools.islice(word_of, term_of_word.size, None))
+        local_words, local_ids, lengths = chunk
+        known = term_of_word.size
+        ids_of_local = np.fromiter(map(word_id, local_words), dtype=np.int32, count=len(local_words))
+        raw = ids_of_local[local_ids] if local_ids.size else np.zeros(0, dtype=np.int32)
+        names = list(itertools.islice(word_of, known, None))
         added = np.fromiter(
             (term_id.setdefault(t, len(term_id)) if (t := analyzer.normalize(w)) is not None else -1 for w in names),
             dtype=np.int32, count=len(names))
         term_of_word = np.concatenate([term_of_word, added])
-        ids = term_of_word[np.frombuffer(raw, dtype=np.int32)] if len(raw) else np.zeros(0, dtype=np.int32)
         seen = np.concatenate([seen, np.zeros(len(names), dtype=np.int64)])
-        seen += np.bincount(np.frombuffer(raw, dtype=np.int32), minlength=seen.size) if len(raw) else 0
+        seen += np.bincount(raw, minlength=seen.size)
+        ids = term_of_word[raw]
         kept = ids >= 0
         kept_before = np.concatenate([[0], np.cumsum(kept)])  # kept words before each raw position
-        ends = np.cumsum(np.frombuffer(lengths, dtype=np.int64)) if len(lengths) else np.zeros(0, dtype=np.int64)
-        bounds.append(kept_total + kept_before[ends])
+        bounds.append(kept_total + kept_before[np.cumsum(lengths)])
         kept_parts.append(ids[kept])
         kept_total += int(kept_before[-1])
-        del raw[:], lengths[:]
 
-    for text in texts:
-        found = lower_words(text)
-        raw.extend(map(word_id, found))
-        lengths.append(len(found))
-        if len(lengths) >= PAIR_BLOCK_TEXTS:
-            flush()
-    flush()
+    for chunk in _word_chunks(texts, analyzer, workers):
+        take(chunk)
     analyzer.count_surfaces(word_of, seen.tolist())
     terms = [""] * len(term_id)
     for term, i in term_id.items():
         terms[i] = term
     ids = np.concatenate(kept_parts) if kept_parts else np.zeros(0, dtype=np.int32)
     return ids, np.concatenate(bounds), terms
+
+
+PARALLEL_MIN_TEXTS = 40_000  # fewer texts are tokenized in this process (a pool costs more than it saves)
+_shared: tuple[Sequence[str], Analyzer] | None = None  # what forked workers read (set before the fork)
+
+
+def _word_chunks(
+    texts: Iterable[str], analyzer: Analyzer, workers: int
+) -> Iterator[tuple[list[str], np.ndarray, np.ndarray]]:
+    """`_chunk_words` of consecutive chunks of PAIR_BLOCK_TEXTS texts, in order."""
+    global _shared
+    if workers > 1 and isinstance(texts, Sequence) and len(texts) >= PARALLEL_MIN_TEXTS \
+            and "fork" in multiprocessing.get_all_start_methods():
+        ranges = [(b, min(b + PAIR_BLOCK_TEXTS, len(texts))) for b in range(0, len(texts), PAIR_BLOCK_TEXTS)]
+        _shared = (texts, analyzer)  # forked workers see it without pickling the texts
+        try:
+            with multiprocessing.get_context("fork").Pool(min(workers, len(ranges))) as pool:
+                yield from pool.imap(_words_of_range, ranges)
+        finally:
+            _shared = None
+        return
+    iterator = iter(texts)
+    while chunk := list(itertools.islice(iterator, PAIR_BLOCK_TEXTS)):
+        yield _chunk_words(chunk, analyzer)
+
+
+def _words_of_range(bounds: tuple[int, int]) -> tuple[list[str], np.ndarray, np.ndarray]:
+    assert _shared is not None
+    texts, analyzer = _shared
+    return _chunk_words(texts[bounds[0] : bounds[1]], analyzer)
+
+
+def _chunk_words(texts: Iterable[str], analyzer: Analyzer) -> tuple[list[str], np.ndarray, np.ndarray]:
+    """The chunk's distinct lower-cased words in order of first occurrence, every token as an index into
+    them (int32), and the number of tokens of every text (int64); a token costs one dictionary lookup."""
+    local: defaultdict[str, int] = defaultdict(itertools.count().__next__)
+    local_id = local.__getitem__
+    lower_words = analyzer.words
+    raw = array("i")
+    lengths = array("q")
+    for text in texts:
+        found = lower_words(text)
+        raw.extend(map(local_id, found))
+        lengths.append(len(found))
+    return list(local), np.frombuffer(raw, dtype=np.int32), np.frombuffer(lengths, dtype=np.int64)
 
 
 def vectorize(
@@ -252,6 +297,7 @@ def vectorize(
     progress: Callable[[str], None] | None = None,
     track: Callable[[Iterable[str]], Iterable[str]] | None = None,
     copies: np.ndarray | None = None,
+    workers: int = 1,
 ) -> Vectorized:
     """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA.
 
@@ -259,7 +305,7 @@ def vectorize(
     stands for (exact copies, near-duplicate group members; default one). Every figure that counts
     documents counts them all: min_df, max_df and the idf are those of the full list of documents,
     as scikit-learn's TfidfVectorizer(sublinear_tf=True) would compute them on it (docs/method.md,
-    "Counting copies").
+    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`).
     """
     n = len(texts)
     weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
@@ -268,7 +314,9 @@ def vectorize(
     n_documents = float(weight.sum())
     min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
     max_df: float | int = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
-    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer, min_df, weight)
+    parallel = workers > 1 and n >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a progress bar
+    words, word_terms, pairs, pair_words = count_terms(
+        track(texts) if track and not parallel else texts, analyzer, min_df, weight, workers=workers)
     df_words, df_pairs = document_frequency(words, weight), document_frequency(pairs, weight)
     ceiling = max_df * n_documents
     keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
