@@ -39,6 +39,7 @@ from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
     Boilerplate,
     NearDuplicates,
+    distinct_key,
     find_boilerplate,
     near_duplicate_groups,
     strip_texts,
@@ -545,7 +546,7 @@ def collect_distinct(documents: Sequence[Document]) -> Collection:
     text_of_doc = np.empty(len(documents), dtype=np.int64)
     first: list[int] = []
     for i, doc in enumerate(documents):
-        key = " ".join(doc.text.split())
+        key = distinct_key(doc.text)
         t = index_of.setdefault(key, len(first))
         if t == len(first):
             first.append(i)

@@ -67,6 +67,13 @@ class NearDuplicates:
     threshold: float
 
 
+def distinct_key(text: str) -> str:
+    """What makes two texts exact duplicates: the same words after collapsing every run of whitespace.
+
+    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest)."""
+    return " ".join(text.split())
+
+
 def near_duplicate_groups(
     texts: Sequence[str],
     *,

@@ -64,6 +64,29 @@ def default_min_df(n_texts: int) -> int:
     return max(2, math.ceil(n_texts / 20_000))
 
 
+def term_limits(settings: VectorSettings, n_documents: float) -> tuple[int, float]:
+    """(min_df, max_df) for `n_documents` documents: the size-dependent min_df unless given; max_df 1.0 when the
+    given share would keep no term that passes min_df. Both preparation paths use it."""
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
+    max_df = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    return min_df, max_df
+
+
+def no_terms_left(min_df: int, max_df: float) -> PilewiseError:
+    """The user error when min_df and max_df leave no term to cluster on."""
+    return PilewiseError(
+        f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
+        f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
+    )
+
+
+def lsa_size(settings: VectorSettings, n_rows: int, n_terms: int) -> int:
+    """LSA dimensions: the setting, at most a tenth of the data's smaller side (at least 10) and below both
+    sides; small collections cluster better in fewer dimensions (measured in docs/vectorizing.md), and
+    collections of 1,000+ texts and terms keep the full setting. Below 2, no LSA is done."""
+    return min(settings.lsa_components, max(10, min(n_rows, n_terms) // 10), n_terms - 1, n_rows - 1)
+
+
 def tfidf_weights(counts: sp.spmatrix, *, sublinear: bool = True) -> sp.csr_matrix:
     """L2-normalized TF-IDF rows: tf = 1 + ln(count) when sublinear, idf = ln((1 + n) / (1 + df)) + 1."""
     return sp.csr_matrix(TfidfTransformer(sublinear_tf=sublinear).fit_transform(counts))
@@ -142,15 +165,18 @@ def count_terms(
         distinct, counts = _sorted_unique(keyed)
         del keyed
         code, text = np.divmod(distinct, stop - begin)
+        del distinct
         new_code = np.empty(code.size, dtype=bool)
         new_code[:1] = True
         np.not_equal(code[1:], code[:-1], out=new_code[1:])
         starts = np.flatnonzero(new_code)
-        local = np.cumsum(new_code, dtype=np.int64) - 1  # entry -> its pair's place among the block's pairs
-        text += begin
-        blocks.append((text, local, counts.astype(np.int32), starts))
         block_codes.append(code[starts])
-        block_df.append(np.add.reduceat(weight[text], starts) if starts.size else np.zeros(0))
+        del code
+        local = (np.cumsum(new_code, dtype=np.int64) - 1).astype(np.int32)  # entry -> its pair among the block's
+        del new_code
+        block_df.append(np.add.reduceat(weight[text + begin], starts) if starts.size else np.zeros(0))
+        blocks.append((text.astype(np.int32), local, counts.astype(np.int32), np.array([begin, stop])))
+        del text, counts, starts
     del word_ids
     # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
     codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
@@ -162,21 +188,19 @@ def count_terms(
     wanted = pair_df >= min_df
     renumber = (np.cumsum(wanted) - 1).astype(np.int32)
     pair_codes = pair_codes[wanted]
-    rows, columns, data = [], [], []
-    for (text, local, counts, _), ids in zip(blocks, block_ids, strict=True):
-        pair_of_entry = ids[local]
-        keep = wanted[pair_of_entry]
-        rows.append(text[keep])
-        columns.append(renumber[pair_of_entry[keep]])
-        data.append(counts[keep])
-    del blocks, block_ids
-    pairs = sp.csr_matrix(
-        sp.coo_matrix((np.concatenate(data) if data else np.zeros(0, dtype=np.int32),
-                       (np.concatenate(rows) if rows else np.zeros(0, dtype=np.int64),
-                        np.concatenate(columns) if columns else np.zeros(0, dtype=np.int32))),
-                      shape=(n_texts, pair_codes.size))
-    )
-    pairs.sum_duplicates()  # one entry per (text, pair) already; this sorts each row's pairs
+    # each block's kept entries are sorted by pair, then text: a CSC matrix as it stands, turned into rows
+    parts = []
+    while blocks:
+        (text, local, counts, (begin, stop)), ids = blocks.pop(0), block_ids.pop(0)
+        column = renumber[ids[local]]
+        keep = wanted[ids[local]]
+        column, text, counts = column[keep], text[keep], counts[keep]
+        indptr = np.concatenate([[0], np.cumsum(np.bincount(column, minlength=pair_codes.size))])
+        parts.append(sp.csc_matrix((counts, text, indptr), shape=(stop - begin, pair_codes.size)).tocsr())
+        del text, local, counts, column, keep
+    pairs = sp.csr_matrix(sp.vstack(parts, format="csr")) if parts else sp.csr_matrix((n_texts, pair_codes.size),
+                                                                                      dtype=np.int32)
+    pairs.sort_indices()
     return words, terms, pairs, np.column_stack([pair_codes // n_words, pair_codes % n_words])
 
 
@@ -312,8 +336,7 @@ def vectorize(
     if weight.shape != (n,) or np.any(weight < 1):
         raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
     n_documents = float(weight.sum())
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
-    max_df: float | int = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    min_df, max_df = term_limits(settings, n_documents)
     parallel = workers > 1 and n >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a progress bar
     words, word_terms, pairs, pair_words = count_terms(
         track(texts) if track and not parallel else texts, analyzer, min_df, weight, workers=workers)
@@ -325,10 +348,7 @@ def vectorize(
     if keep_pairs.size > MAX_PHRASES:
         keep_pairs = np.sort(keep_pairs[np.lexsort((keep_pairs, -df_pairs[keep_pairs]))][:MAX_PHRASES])
     if keep_words.size == 0:
-        raise PilewiseError(
-            f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
-            f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
-        )
+        raise no_terms_left(min_df, max_df)
     phrase_terms = [f"{word_terms[a]} {word_terms[b]}" for a, b in pair_words[keep_pairs]]
     all_terms = [word_terms[i] for i in keep_words] + phrase_terms
     order = np.argsort(np.array(all_terms, dtype=object), kind="stable")  # alphabetical, as before
@@ -354,9 +374,7 @@ def vectorize(
         "texts_without_terms": empty_rows,
         "bigrams_in_space": settings.bigrams_in_space,
     }
-    # a tenth of the data's smaller side, at least 10: small collections cluster better in fewer dimensions
-    # (measured in docs/vectorizing.md); collections of 1,000+ texts and terms keep the full setting
-    components = min(settings.lsa_components, max(10, min(n, tfidf.shape[1]) // 10), tfidf.shape[1] - 1, n - 1)
+    components = lsa_size(settings, n, tfidf.shape[1])
     space: np.ndarray | sp.csr_matrix
     if settings.lsa_components > 0 and components >= 2:
         svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
