@@ -52,3 +52,26 @@ def test_shingle_hashes_in_workers_equal_one_process(monkeypatch: pytest.MonkeyP
     monkeypatch.setattr(dedup, "_RANGE_TEXTS", 50)
     hashes2, offsets2 = dedup.shingle_hashes(texts, workers=2)
     assert np.array_equal(hashes, hashes2) and np.array_equal(offsets, offsets2)
+
+
+def test_spans_equal_nltk_span_tokenize() -> None:
+    # Analyzer.spans uses `re.finditer` with nltk's pattern; nltk's RegexpTokenizer.span_tokenize (nltk docs,
+    # nltk.tokenize.regexp) gives the same spans of the lower-cased text where no combining mark occurs
+    from nltk.tokenize import RegexpTokenizer
+
+    from pilewise.vectors.text import TOKEN_PATTERN
+
+    text = "Re-potted the Monstera; it's fine — don't panic! Café naïve e-mail log-in 42 x y-z O'Neil -- a'b"
+    analyzer = Analyzer(stop_words=frozenset(), stem=False)
+    expected = [span for span in RegexpTokenizer(TOKEN_PATTERN).span_tokenize(text.lower())
+                if analyzer.normalize(text.lower()[span[0]:span[1]]) is not None]
+    assert [(start, end) for start, end, _ in analyzer.spans(text)] == expected
+
+
+def test_spans_give_the_counted_terms_with_combining_marks() -> None:
+    # "İ" lower-cases to "i" + U+0307 (Python str.lower, Unicode SpecialCasing); nltk 3.10's tokenizer keeps
+    # the mark inside the word while `re` (which counting uses) splits there: the marked words must be the
+    # counted ones
+    analyzer = Analyzer(stop_words=frozenset(), stem=False)
+    text = "İstanbul parcel naïve"
+    assert [term for _, _, term in analyzer.spans(text)] == analyzer.terms(text)
