@@ -146,7 +146,9 @@ NearDuplicate = Annotated[float, typer.Option("--near-duplicate", help="Jaccard 
 MaxDocuments = Annotated[int, typer.Option("--max-documents", help="Refuse collections with more documents.")]
 Mode = Annotated[str, typer.Option(
     "--mode", help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
-Workers = Annotated[int, typer.Option("--workers", help="Tokenizing processes when streaming; 0 = one per core.")]
+Workers = Annotated[int, typer.Option(
+    "--workers", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
+)]
 KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
 
 

@@ -81,7 +81,7 @@ class RunOptions:
     redact: bool = True
     near_duplicate: float = 0.8
     mode: str = "auto"  # memory, stream, or auto: stream above STREAM_ABOVE_BYTES of input
-    workers: int = 0  # tokenizing processes when streaming; 0: one per core
+    workers: int = 0  # tokenizing processes (streaming; memory mode above 40,000 texts); 0: one per core
     quiet: bool = False
     extra: dict[str, str] = field(default_factory=dict)
 

@@ -32,6 +32,7 @@ from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
     Boilerplate,
     NearDuplicates,
+    distinct_key,
     find_boilerplate,
     near_duplicate_groups,
     strip_texts,
@@ -270,7 +271,8 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             texts = stripped.texts
             reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
                                            stripped.lines_kept))
-        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed) \
+        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed,
+                                     workers=options.workers or default_workers()) \
             if options.near_duplicate < 1.0 else None
         if near is not None and near.representative.size < len(texts):
             collection = merge_near_duplicates(collection, near)
@@ -288,7 +290,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         vectors = vectorize(
             texts, analyzer, settings, progress=reporter.say,
             track=lambda items: reporter.track(items, total=len(texts), label="counting terms"),
-            copies=collection.copies,
+            copies=collection.copies, workers=options.workers or default_workers(),
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
                     redacted, fingerprint(ingested.documents))
@@ -446,7 +448,7 @@ def collect_distinct(documents: Sequence[Document]) -> Collection:
     text_of_doc = np.empty(len(documents), dtype=np.int64)
     first: list[int] = []
     for i, doc in enumerate(documents):
-        key = " ".join(doc.text.split())
+        key = distinct_key(doc.text)
         t = index_of.setdefault(key, len(first))
         if t == len(first):
             first.append(i)

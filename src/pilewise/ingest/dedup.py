@@ -17,10 +17,11 @@ from __future__ import annotations
 import hashlib
 import itertools
 import math
+import multiprocessing
 import re
 from array import array
 from collections import Counter
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -66,12 +67,20 @@ class NearDuplicates:
     threshold: float
 
 
+def distinct_key(text: str) -> str:
+    """What makes two texts exact duplicates: the same words after collapsing every run of whitespace.
+
+    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest)."""
+    return " ".join(text.split())
+
+
 def near_duplicate_groups(
     texts: Sequence[str],
     *,
     threshold: float = NEAR_DUPLICATE_THRESHOLD,
     seed: int = 0,
     num_perm: int = NUM_PERM,
+    workers: int = 1,
 ) -> NearDuplicates:
     """Group texts whose word 5-shingle sets have a resemblance of at least `threshold`.
 
@@ -116,6 +125,8 @@ def near_duplicate_groups(
     num_perm : int, default 128
         MinHash functions per signature. The standard error of a MinHash estimate of a resemblance J
         is sqrt(J (1 - J) / num_perm), 0.035 at J = 0.8 with 128.
+    workers : int, default 1
+        Processes that hash shingles of a large collection (forked; the groups are the same).
 
     Returns
     -------
@@ -140,7 +151,7 @@ def near_duplicate_groups(
     if n == 0:
         empty = np.zeros(0, dtype=np.int64)
         return NearDuplicates(empty, empty.copy(), empty.copy(), float(threshold))
-    hashes, offsets = shingle_hashes(texts)
+    hashes, offsets = shingle_hashes(texts, workers)
     signatures = minhash_signatures(hashes, offsets, num_perm=num_perm, seed=seed)
     bands, rows = lsh_bands(num_perm, threshold)
     codes = _candidate_codes(signatures, bands, rows)
@@ -174,7 +185,7 @@ def near_duplicate_groups(
                           float(threshold))
 
 
-def shingle_hashes(texts: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
+def shingle_hashes(texts: Sequence[str], workers: int = 1) -> tuple[np.ndarray, np.ndarray]:
     """Each text's shingles as 64-bit hashes (see `near_duplicate_groups` for what the shingles are).
 
     Words are hashed once each with BLAKE2b; a shingle's hash is a position-weighted sum of its word
@@ -189,19 +200,57 @@ def shingle_hashes(texts: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
     offsets : ndarray of int64, shape (n_texts + 1,)
         Text i's shingles are ``hashes[offsets[i]:offsets[i + 1]]``; every text has at least one.
     """
-    vocabulary = _Vocabulary()
     parts: list[np.ndarray] = []
     counts: list[np.ndarray] = []
-    # In batches, so that the per-word temporaries stay small next to the result.
-    for first in range(0, len(texts), _BATCH_TEXTS):
-        batch = [texts[i] for i in range(first, min(first + _BATCH_TEXTS, len(texts)))]
-        hashes, windows = _batch_shingles(batch, vocabulary)
+    for hashes, windows in _shingle_ranges(texts, workers):
         parts.append(hashes)
         counts.append(windows)
     offsets = np.zeros(len(texts) + 1, dtype=np.int64)
     if parts:
         np.cumsum(np.concatenate(counts), out=offsets[1:])
     return (np.concatenate(parts) if parts else np.zeros(0, dtype=np.uint64)), offsets
+
+
+_PARALLEL_MIN_TEXTS = 40_000  # fewer texts are shingled in this process (a pool costs more than it saves)
+_RANGE_TEXTS = 4 * _BATCH_TEXTS  # texts per worker task
+_shared_texts: Sequence[str] | None = None  # what forked workers read (set before the fork)
+
+
+def _shingle_ranges(texts: Sequence[str], workers: int) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+    """`_range_shingles` of consecutive ranges of texts, in order; in forked worker processes when asked and
+    worth it. A shingle's hash depends only on its words, so every split gives the same hashes."""
+    global _shared_texts
+    ranges = [(b, min(b + _RANGE_TEXTS, len(texts))) for b in range(0, len(texts), _RANGE_TEXTS)]
+    if workers > 1 and len(texts) >= _PARALLEL_MIN_TEXTS and "fork" in multiprocessing.get_all_start_methods():
+        _shared_texts = texts
+        try:
+            with multiprocessing.get_context("fork").Pool(min(workers, len(ranges))) as pool:
+                yield from pool.imap(_shared_range, ranges)
+        finally:
+            _shared_texts = None
+        return
+    vocabulary = _Vocabulary()
+    for bounds in ranges:
+        yield _range_shingles(texts, bounds, vocabulary)
+
+
+def _shared_range(bounds: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    assert _shared_texts is not None
+    return _range_shingles(_shared_texts, bounds, _Vocabulary())
+
+
+def _range_shingles(
+    texts: Sequence[str], bounds: tuple[int, int], vocabulary: _Vocabulary
+) -> tuple[np.ndarray, np.ndarray]:
+    """Shingle hashes of texts[begin:end] and their number per text, in batches, so that the per-word
+    temporaries stay small next to the result."""
+    parts, counts = [], []
+    for first in range(bounds[0], bounds[1], _BATCH_TEXTS):
+        hashes, windows = _batch_shingles([texts[i] for i in range(first, min(first + _BATCH_TEXTS, bounds[1]))],
+                                          vocabulary)
+        parts.append(hashes)
+        counts.append(windows)
+    return np.concatenate(parts), np.concatenate(counts)
 
 
 def _batch_shingles(texts: Sequence[str], vocabulary: _Vocabulary) -> tuple[np.ndarray, np.ndarray]:

@@ -31,13 +31,21 @@ from sklearn.preprocessing import normalize
 from sklearn.utils import murmurhash3_32
 
 from pilewise.errors import PilewiseError
-from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, find_boilerplate, strip_boilerplate
+from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, distinct_key, find_boilerplate, strip_boilerplate
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.shelf import DocumentShelf, shelf_record
 from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer
-from pilewise.vectors.tfidf import Vectorized, VectorSettings, default_min_df, smooth_idf, tfidf_rows
+from pilewise.vectors.tfidf import (
+    Vectorized,
+    VectorSettings,
+    lsa_size,
+    no_terms_left,
+    smooth_idf,
+    term_limits,
+    tfidf_rows,
+)
 
 HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
 CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step
@@ -189,7 +197,7 @@ def process_chunk(
         documents = [redact_document(doc, redacted) for doc in documents]
     lines = [shelf_record(doc) for doc in documents]
     fingerprint = b"".join(map(fingerprint_record, documents))
-    keys = [hashlib.blake2b(" ".join(doc.text.split()).encode("utf-8", "surrogatepass"), digest_size=16).digest()
+    keys = [hashlib.blake2b(distinct_key(doc.text).encode("utf-8", "surrogatepass"), digest_size=16).digest()
             for doc in documents]
     texts = [doc.text for doc in documents]
     if boilerplate.lines:
@@ -306,14 +314,10 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporte
     copies = np.asarray(tally.copies, dtype=np.int64)
     n_documents = float(copies.sum())  # figures that count documents count copies (docs/method.md)
     all_df = document_frequency_of_blocks(tally.blocks, copies)
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
-    max_df = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    min_df, max_df = term_limits(settings, n_documents)
     kept = np.flatnonzero((all_df >= min_df) & (all_df <= max_df * n_documents))
     if kept.size < 2:
-        raise PilewiseError(
-            f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
-            f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
-        )
+        raise no_terms_left(min_df, max_df)
     names = column_names(tally.words, kept)
     order = np.argsort(np.array(names, dtype=object), kind="stable")  # alphabetical, as in memory mode
     terms = tuple(names[i] for i in order)
@@ -324,7 +328,7 @@ def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporte
     counts = _kept_counts(tally.blocks, column_of, kept.size, n)
     reporter.say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
     idf = smooth_idf(df, n_documents)
-    components = min(settings.lsa_components, max(10, min(n, len(terms)) // 10), len(terms) - 1, n - 1)
+    components = lsa_size(settings, n, len(terms))
     facts: dict[str, float | int | str | bool] = {
         "min_df": min_df, "max_df": float(max_df), "terms": len(terms), "phrases": 0, "phrases_within_df": 0,
         "space_terms": len(terms), "texts_without_terms": int(np.sum(np.diff(counts.indptr) == 0)),

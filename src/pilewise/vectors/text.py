@@ -8,10 +8,9 @@ from __future__ import annotations
 
 import re
 from collections import Counter
+from collections.abc import Iterable
 from pathlib import Path
 
-from nltk.stem.snowball import SnowballStemmer
-from nltk.tokenize import RegexpTokenizer
 from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
 
 from pilewise.errors import PilewiseError
@@ -48,12 +47,18 @@ class Analyzer:
     def __init__(self, *, stop_words: frozenset[str], stem: bool) -> None:
         self.stop_words = stop_words
         self.stem = stem
-        self._tokenizer = RegexpTokenizer(TOKEN_PATTERN)
-        # nltk (3.9+) wraps its patterns in a timed guard against catastrophic backtracking, which
-        # triples the cost of tokenizing a large collection. The same pattern compiled by `re` gives the
-        # same tokens (tested) and cannot backtrack catastrophically, so bulk tokenizing uses it.
-        self._findall = re.compile(TOKEN_PATTERN).findall
-        self._stemmer = SnowballStemmer("english") if stem else None
+        # nltk's RegexpTokenizer (3.9+) wraps its patterns in a timed guard against catastrophic
+        # backtracking, which triples the cost of tokenizing a large collection. The same pattern compiled
+        # by `re` gives the same tokens and spans (tested) and cannot backtrack catastrophically, so
+        # tokenizing uses it, and nltk (about 0.3 s to import) is imported only for stemming.
+        pattern = re.compile(TOKEN_PATTERN)
+        self._findall = pattern.findall
+        self._finditer = pattern.finditer
+        self._stemmer = None
+        if stem:
+            from nltk.stem.snowball import SnowballStemmer
+
+            self._stemmer = SnowballStemmer("english")
         self._cache: dict[str, str | None] = {}
         self._surface_counts: dict[str, Counter[str]] = {}
 
@@ -95,18 +100,33 @@ class Analyzer:
                     self._surface_counts.setdefault(str(term), Counter())[word] += 1
         return out
 
+    def words(self, text: str) -> list[str]:
+        """The lower-cased words of `text` as `terms` reads them, before possessives, stop words and stemming."""
+        return self._findall(text.lower())
+
+    def count_surfaces(self, words: Iterable[str], counts: Iterable[int]) -> None:
+        """Record `counts` occurrences of each word, as `terms` does per occurrence (for `surface`)."""
+        if self._stemmer is None:
+            return
+        for word, count in zip(words, counts, strict=True):
+            term = self.normalize(word)
+            if term is not None and count:
+                self._surface_counts.setdefault(term, Counter())[word] += int(count)
+
     def tokens(self, text: str) -> list[str]:
         """The lower-cased words of `text`, before stop words and stemming."""
         return list(self._findall(text.lower()))
 
     def spans(self, text: str) -> list[tuple[int, int, str]]:
         """(start, end, term) of every kept word of `text`, for marking and keyword-in-context lines."""
-        lowered = text.lower()
-        out = []
-        for start, end in self._tokenizer.span_tokenize(lowered):
-            term = self.normalize(lowered[start:end])
+        out: list[tuple[int, int, str]] = []
+        cache = self._cache
+        for match in self._finditer(text.lower()):
+            term = cache.get(match.group(), _MISSING)
+            if term is _MISSING:
+                term = self.normalize(match.group())
             if term is not None:
-                out.append((start, end, term))
+                out.append((match.start(), match.end(), term))  # type: ignore[arg-type]
         return out
 
     def surface(self, term: str) -> str:

@@ -7,9 +7,10 @@ from __future__ import annotations
 
 import itertools
 import math
+import multiprocessing
 from array import array
 from collections import defaultdict
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -63,6 +64,29 @@ def default_min_df(n_texts: int) -> int:
     return max(2, math.ceil(n_texts / 20_000))
 
 
+def term_limits(settings: VectorSettings, n_documents: float) -> tuple[int, float]:
+    """(min_df, max_df) for `n_documents` documents: the size-dependent min_df unless given; max_df 1.0 when the
+    given share would keep no term that passes min_df. Both preparation paths use it."""
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
+    max_df = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
+    return min_df, max_df
+
+
+def no_terms_left(min_df: int, max_df: float) -> PilewiseError:
+    """The user error when min_df and max_df leave no term to cluster on."""
+    return PilewiseError(
+        f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
+        f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
+    )
+
+
+def lsa_size(settings: VectorSettings, n_rows: int, n_terms: int) -> int:
+    """LSA dimensions: the setting, at most a tenth of the data's smaller side (at least 10) and below both
+    sides; small collections cluster better in fewer dimensions (measured in docs/vectorizing.md), and
+    collections of 1,000+ texts and terms keep the full setting. Below 2, no LSA is done."""
+    return min(settings.lsa_components, max(10, min(n_rows, n_terms) // 10), n_terms - 1, n_rows - 1)
+
+
 def tfidf_weights(counts: sp.spmatrix, *, sublinear: bool = True) -> sp.csr_matrix:
     """L2-normalized TF-IDF rows: tf = 1 + ln(count) when sublinear, idf = ln((1 + n) / (1 + df)) + 1."""
     return sp.csr_matrix(TfidfTransformer(sublinear_tf=sublinear).fit_transform(counts))
@@ -101,71 +125,193 @@ def with_phrases(terms: list[str]) -> list[str]:
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
+PAIR_BLOCK_TEXTS = 20_000  # texts whose adjacent pairs are sorted at once (bounds the temporaries)
+
+
 def count_terms(
-    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None
+    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None, workers: int = 1
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
     Returns the word count matrix (texts x words), the words, the pair count matrix (texts x pairs) and
-    the pairs as (first word id, second word id) rows. Pairs are counted as 64-bit codes in numpy, which
-    keeps a large collection's millions of distinct pairs out of Python dictionaries. Pairs with a word in
-    fewer than `min_df` documents are left out: a pair is never in more documents than either of its
-    words. Documents are counted with `copies` (documents per text; default one), as `document_frequency`.
+    the pairs as (first word id, second word id) rows. Words get ids in order of first occurrence, as
+    `Analyzer.terms` would give them one by one; each distinct lower-cased word is normalized once
+    (word -> column, or none for a stop word), so a token costs one dictionary lookup. Pairs are counted
+    as 64-bit codes in numpy, which keeps a large collection's millions of distinct pairs out of Python
+    dictionaries. Pairs with a word in fewer than `min_df` documents are left out: a pair is never in more
+    documents than either of its words. Documents are counted with `copies` (documents per text; default
+    one), as `document_frequency`. `workers` > 1 tokenizes a large sequence of texts in that many forked
+    processes (the result is the same).
     """
-    vocabulary: defaultdict[str, int] = defaultdict(itertools.count().__next__)
-    ids = array("i")
-    indptr = array("q", [0])
-    id_of = vocabulary.__getitem__
-    for text in texts:
-        ids.extend(map(id_of, analyzer.terms(text)))
-        indptr.append(len(ids))
-    n_texts, n_words = len(indptr) - 1, max(len(vocabulary), 1)
-    word_ids = np.frombuffer(ids, dtype=np.int32) if len(ids) else np.zeros(0, dtype=np.int32)
-    bounds = np.frombuffer(indptr, dtype=np.int64)
-    # the matrix gets its own copy of the ids: sum_duplicates sorts them in place, and the pairs need text order
+    word_ids, bounds, terms = _term_ids(texts, analyzer, workers)
+    n_texts, n_words = bounds.size - 1, max(len(terms), 1)
     words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
                           shape=(n_texts, n_words))
     words.sum_duplicates()
-    # pairs of adjacent kept words inside one text, already in text order: build the CSR matrix directly
-    lengths = np.diff(bounds)
-    starts_of_text = np.zeros(word_ids.size, dtype=bool)
-    starts_of_text[bounds[1:-1][lengths[1:] > 0]] = True  # first word of every text but the first
     weight = np.ones(n_texts) if copies is None else np.asarray(copies, dtype=np.float64)
     frequent = document_frequency(words, weight) >= min_df
-    inside = ~starts_of_text[1:] & frequent[word_ids[:-1]] & frequent[word_ids[1:]]
-    codes = word_ids[:-1][inside].astype(np.int64) * n_words + word_ids[1:][inside]
-    text_of_pair = np.repeat(np.arange(n_texts, dtype=np.int32), lengths)[:-1][inside]
-    del inside, starts_of_text, frequent, word_ids, ids
-    # distinct pairs, and each pair's number of texts: keep only those that can pass min_df
-    pair_codes, pair_ids = np.unique(codes, return_inverse=True)
-    del codes
-    pair_ids = pair_ids.astype(np.int32)
-    first_in_text = np.ones(pair_ids.size, dtype=bool)
-    if pair_ids.size > 1:  # a pair counts once per text: compare with the previous occurrence in the same text
-        order = np.lexsort((pair_ids, text_of_pair))
-        same = (text_of_pair[order][1:] == text_of_pair[order][:-1]) & (pair_ids[order][1:] == pair_ids[order][:-1])
-        first_in_text[order[1:][same]] = False
-        del order, same
-    pair_df = np.bincount(pair_ids[first_in_text], weights=weight[text_of_pair[first_in_text]],
-                          minlength=pair_codes.size)
-    del first_in_text
+    # distinct (pair, text) entries with their counts, block by block of texts, sorted by pair code; each
+    # block's distinct pairs with their documents, so that no search runs over every entry
+    blocks: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []
+    block_codes, block_df = [], []
+    per_block = max(1, min(PAIR_BLOCK_TEXTS, (2**62) // (n_words * n_words)))  # keys fit in int64
+    for begin in range(0, n_texts, per_block):
+        stop = min(begin + per_block, n_texts)
+        ids = word_ids[bounds[begin] : bounds[stop]]
+        text = np.repeat(np.arange(stop - begin, dtype=np.int64), np.diff(bounds[begin : stop + 1]))
+        inside = (text[1:] == text[:-1]) & frequent[ids[:-1]] & frequent[ids[1:]]
+        keyed = (ids[:-1][inside].astype(np.int64) * n_words + ids[1:][inside]) * (stop - begin) + text[1:][inside]
+        del text, inside
+        distinct, counts = _sorted_unique(keyed)
+        del keyed
+        code, text = np.divmod(distinct, stop - begin)
+        del distinct
+        new_code = np.empty(code.size, dtype=bool)
+        new_code[:1] = True
+        np.not_equal(code[1:], code[:-1], out=new_code[1:])
+        starts = np.flatnonzero(new_code)
+        block_codes.append(code[starts])
+        del code
+        local = (np.cumsum(new_code, dtype=np.int64) - 1).astype(np.int32)  # entry -> its pair among the block's
+        del new_code
+        block_df.append(np.add.reduceat(weight[text + begin], starts) if starts.size else np.zeros(0))
+        blocks.append((text.astype(np.int32), local, counts.astype(np.int32), np.array([begin, stop])))
+        del text, counts, starts
+    del word_ids
+    # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
+    codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
+    pair_codes, _ = _sorted_unique(codes.copy())
+    block_ids = [np.searchsorted(pair_codes, c) for c in block_codes]
+    pair_df = np.bincount(np.concatenate(block_ids), weights=np.concatenate(block_df), minlength=pair_codes.size) \
+        if block_ids else np.zeros(0)
+    del codes, block_codes, block_df
     wanted = pair_df >= min_df
-    keep = wanted[pair_ids]
-    renumber = np.cumsum(wanted) - 1
+    renumber = (np.cumsum(wanted) - 1).astype(np.int32)
     pair_codes = pair_codes[wanted]
-    pair_ids = renumber[pair_ids[keep]].astype(np.int32)
-    text_of_pair = text_of_pair[keep]
-    del keep, renumber, wanted, pair_df
-    pair_indptr = np.concatenate([[0], np.cumsum(np.bincount(text_of_pair, minlength=n_texts))])
-    del text_of_pair
-    pairs = sp.csr_matrix((np.ones(pair_ids.size, dtype=np.int32), pair_ids, pair_indptr),
-                          shape=(n_texts, pair_codes.size))
-    del pair_ids
-    pairs.sum_duplicates()
-    terms = [""] * len(vocabulary)
-    for term, i in vocabulary.items():
-        terms[i] = term
+    # each block's kept entries are sorted by pair, then text: a CSC matrix as it stands, turned into rows
+    parts = []
+    while blocks:
+        (text, local, counts, (begin, stop)), ids = blocks.pop(0), block_ids.pop(0)
+        column = renumber[ids[local]]
+        keep = wanted[ids[local]]
+        column, text, counts = column[keep], text[keep], counts[keep]
+        indptr = np.concatenate([[0], np.cumsum(np.bincount(column, minlength=pair_codes.size))])
+        parts.append(sp.csc_matrix((counts, text, indptr), shape=(stop - begin, pair_codes.size)).tocsr())
+        del text, local, counts, column, keep
+    pairs = sp.csr_matrix(sp.vstack(parts, format="csr")) if parts else sp.csr_matrix((n_texts, pair_codes.size),
+                                                                                      dtype=np.int32)
+    pairs.sort_indices()
     return words, terms, pairs, np.column_stack([pair_codes // n_words, pair_codes % n_words])
+
+
+def _sorted_unique(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct values in order (and how often each occurs), sorting `values` in place.
+
+    `np.unique` without return options hashes on numpy 2.3+, measured several times slower than a sort on
+    millions of 64-bit codes with many distinct values.
+    """
+    values.sort()
+    first = np.empty(values.size + 1, dtype=bool)
+    first[0] = first[-1] = True
+    np.not_equal(values[1:], values[:-1], out=first[1:-1])
+    starts = np.flatnonzero(first)
+    distinct = values[starts[:-1]]
+    return distinct, np.diff(starts)
+
+
+def _term_ids(
+    texts: Iterable[str], analyzer: Analyzer, workers: int = 1
+) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Every text's term ids in order (int32), the texts' bounds in them (int64), and the terms by id.
+
+    Texts are read in chunks, each giving its words numbered locally by first occurrence (in worker
+    processes when `workers` > 1 and `texts` is a large sequence); chunks are taken in order, so the
+    words' global numbers follow first occurrence over all texts. Words then become terms through one
+    array (word id -> term id, -1 for a stop word); a term's id is its first occurrence among the kept
+    words, as numbering `Analyzer.terms` output one by one would give.
+    """
+    word_of: defaultdict[str, int] = defaultdict(itertools.count().__next__)
+    word_id = word_of.__getitem__
+    term_id: dict[str, int] = {}
+    term_of_word = np.zeros(0, dtype=np.int32)
+    seen = np.zeros(0, dtype=np.int64)  # occurrences of every word (surface forms of stems)
+    kept_parts: list[np.ndarray] = []
+    bounds = [np.zeros(1, dtype=np.int64)]
+    kept_total = 0
+
+    def take(chunk: tuple[list[str], np.ndarray, np.ndarray]) -> None:
+        nonlocal term_of_word, seen, kept_total
+        local_words, local_ids, lengths = chunk
+        known = term_of_word.size
+        ids_of_local = np.fromiter(map(word_id, local_words), dtype=np.int32, count=len(local_words))
+        raw = ids_of_local[local_ids] if local_ids.size else np.zeros(0, dtype=np.int32)
+        names = list(itertools.islice(word_of, known, None))
+        added = np.fromiter(
+            (term_id.setdefault(t, len(term_id)) if (t := analyzer.normalize(w)) is not None else -1 for w in names),
+            dtype=np.int32, count=len(names))
+        term_of_word = np.concatenate([term_of_word, added])
+        seen = np.concatenate([seen, np.zeros(len(names), dtype=np.int64)])
+        seen += np.bincount(raw, minlength=seen.size)
+        ids = term_of_word[raw]
+        kept = ids >= 0
+        kept_before = np.concatenate([[0], np.cumsum(kept)])  # kept words before each raw position
+        bounds.append(kept_total + kept_before[np.cumsum(lengths)])
+        kept_parts.append(ids[kept])
+        kept_total += int(kept_before[-1])
+
+    for chunk in _word_chunks(texts, analyzer, workers):
+        take(chunk)
+    analyzer.count_surfaces(word_of, seen.tolist())
+    terms = [""] * len(term_id)
+    for term, i in term_id.items():
+        terms[i] = term
+    ids = np.concatenate(kept_parts) if kept_parts else np.zeros(0, dtype=np.int32)
+    return ids, np.concatenate(bounds), terms
+
+
+PARALLEL_MIN_TEXTS = 40_000  # fewer texts are tokenized in this process (a pool costs more than it saves)
+_shared: tuple[Sequence[str], Analyzer] | None = None  # what forked workers read (set before the fork)
+
+
+def _word_chunks(
+    texts: Iterable[str], analyzer: Analyzer, workers: int
+) -> Iterator[tuple[list[str], np.ndarray, np.ndarray]]:
+    """`_chunk_words` of consecutive chunks of PAIR_BLOCK_TEXTS texts, in order."""
+    global _shared
+    if workers > 1 and isinstance(texts, Sequence) and len(texts) >= PARALLEL_MIN_TEXTS \
+            and "fork" in multiprocessing.get_all_start_methods():
+        ranges = [(b, min(b + PAIR_BLOCK_TEXTS, len(texts))) for b in range(0, len(texts), PAIR_BLOCK_TEXTS)]
+        _shared = (texts, analyzer)  # forked workers see it without pickling the texts
+        try:
+            with multiprocessing.get_context("fork").Pool(min(workers, len(ranges))) as pool:
+                yield from pool.imap(_words_of_range, ranges)
+        finally:
+            _shared = None
+        return
+    iterator = iter(texts)
+    while chunk := list(itertools.islice(iterator, PAIR_BLOCK_TEXTS)):
+        yield _chunk_words(chunk, analyzer)
+
+
+def _words_of_range(bounds: tuple[int, int]) -> tuple[list[str], np.ndarray, np.ndarray]:
+    assert _shared is not None
+    texts, analyzer = _shared
+    return _chunk_words(texts[bounds[0] : bounds[1]], analyzer)
+
+
+def _chunk_words(texts: Iterable[str], analyzer: Analyzer) -> tuple[list[str], np.ndarray, np.ndarray]:
+    """The chunk's distinct lower-cased words in order of first occurrence, every token as an index into
+    them (int32), and the number of tokens of every text (int64); a token costs one dictionary lookup."""
+    local: defaultdict[str, int] = defaultdict(itertools.count().__next__)
+    local_id = local.__getitem__
+    lower_words = analyzer.words
+    raw = array("i")
+    lengths = array("q")
+    for text in texts:
+        found = lower_words(text)
+        raw.extend(map(local_id, found))
+        lengths.append(len(found))
+    return list(local), np.frombuffer(raw, dtype=np.int32), np.frombuffer(lengths, dtype=np.int64)
 
 
 def vectorize(
@@ -175,6 +321,7 @@ def vectorize(
     progress: Callable[[str], None] | None = None,
     track: Callable[[Iterable[str]], Iterable[str]] | None = None,
     copies: np.ndarray | None = None,
+    workers: int = 1,
 ) -> Vectorized:
     """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA.
 
@@ -182,16 +329,17 @@ def vectorize(
     stands for (exact copies, near-duplicate group members; default one). Every figure that counts
     documents counts them all: min_df, max_df and the idf are those of the full list of documents,
     as scikit-learn's TfidfVectorizer(sublinear_tf=True) would compute them on it (docs/method.md,
-    "Counting copies").
+    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`).
     """
     n = len(texts)
     weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
     if weight.shape != (n,) or np.any(weight < 1):
         raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
     n_documents = float(weight.sum())
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
-    max_df: float | int = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
-    words, word_terms, pairs, pair_words = count_terms(track(texts) if track else texts, analyzer, min_df, weight)
+    min_df, max_df = term_limits(settings, n_documents)
+    parallel = workers > 1 and n >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a progress bar
+    words, word_terms, pairs, pair_words = count_terms(
+        track(texts) if track and not parallel else texts, analyzer, min_df, weight, workers=workers)
     df_words, df_pairs = document_frequency(words, weight), document_frequency(pairs, weight)
     ceiling = max_df * n_documents
     keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
@@ -200,10 +348,7 @@ def vectorize(
     if keep_pairs.size > MAX_PHRASES:
         keep_pairs = np.sort(keep_pairs[np.lexsort((keep_pairs, -df_pairs[keep_pairs]))][:MAX_PHRASES])
     if keep_words.size == 0:
-        raise PilewiseError(
-            f"no terms are left after removing stop words and terms in fewer than {min_df} documents "
-            f"or more than {max_df:g} of them; lower --min-df or raise --max-df"
-        )
+        raise no_terms_left(min_df, max_df)
     phrase_terms = [f"{word_terms[a]} {word_terms[b]}" for a, b in pair_words[keep_pairs]]
     all_terms = [word_terms[i] for i in keep_words] + phrase_terms
     order = np.argsort(np.array(all_terms, dtype=object), kind="stable")  # alphabetical, as before
@@ -229,9 +374,7 @@ def vectorize(
         "texts_without_terms": empty_rows,
         "bigrams_in_space": settings.bigrams_in_space,
     }
-    # a tenth of the data's smaller side, at least 10: small collections cluster better in fewer dimensions
-    # (measured in docs/vectorizing.md); collections of 1,000+ texts and terms keep the full setting
-    components = min(settings.lsa_components, max(10, min(n, tfidf.shape[1]) // 10), tfidf.shape[1] - 1, n - 1)
+    components = lsa_size(settings, n, tfidf.shape[1])
     space: np.ndarray | sp.csr_matrix
     if settings.lsa_components > 0 and components >= 2:
         svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
