@@ -243,6 +243,8 @@ def _earlier_run(runs: Path, names: bytes, assignments: str, documents: int) -> 
     folder.mkdir(parents=True)
     manifest = {"input": {"fingerprint": "same", "documents": documents}, "parameters": {"source": "notes"}}
     (folder / "manifest.json").write_text(json.dumps(manifest), encoding="utf-8")
+    # read_run needs clusters.json too; without it the folder is a damaged run the root index lists
+    (folder / "clusters.json").write_text(json.dumps({"k": 2, "clusters": []}), encoding="utf-8")
     (folder / "names.csv").write_bytes(names)
     (folder / "assignments.csv").write_text(assignments, encoding="utf-8", newline="")
     return folder
@@ -290,16 +292,16 @@ def test_csv_files_the_csv_module_refuses_are_skipped_with_their_reason(tmp_path
     runs = tmp_path / "assignments" / "runs"
     _earlier_run(runs, NAMED, f"doc_id,cluster\n{'x' * (limit + 1)},0\n", 1)
     assert earlier_run_problems(runs) == [
-        f"runs/first/assignments.csv is skipped for carrying names over: cannot read it "
+        f"runs/first/assignments.csv is skipped for carrying names over: it cannot be read "
         f"(field larger than field limit ({limit}))"]
     assert find_old_names(runs, source="notes", fingerprint="same") is None
 
 
-def test_rows_without_a_cluster_number_are_not_members_but_are_counted(tmp_path: Path) -> None:
-    # a short row and a row whose cluster is not a number join no cluster; the row count still matches
-    # the manifest's 5 documents, so the run is used
+def test_rows_without_a_cluster_number_make_the_run_skipped_with_their_line(tmp_path: Path) -> None:
+    # pilewise writes a cluster number on every row of assignments.csv; a short row or a row whose cluster
+    # is not a number means the file was edited or cut, so the run is not used for carrying names over
     runs = tmp_path / "runs"
     _earlier_run(runs, NAMED, ASSIGNED + "d\ne,x\n", 5)
-    assert earlier_run_problems(runs) == []
-    old = find_old_names(runs, source="notes", fingerprint="other")  # found by the same source path
-    assert old == OldNames("first", {0: ("Garden", "")}, {0: frozenset({"a", "b"}), 1: frozenset({"c"})})
+    assert earlier_run_problems(runs) == [
+        "runs/first/assignments.csv is skipped for carrying names over: it has no cluster number on line 5"]
+    assert find_old_names(runs, source="notes", fingerprint="other") is None
