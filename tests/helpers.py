@@ -58,7 +58,7 @@ runner = CliRunner()
 
 def invoke(*args: str) -> Result:
     """`pilewise ARGS...` through typer's test runner (stdout and stderr kept apart)."""
-    return runner.invoke(app, list(args))
+    return runner.invoke(app, list(args), prog_name="pilewise")
 
 
 def assert_one_line_error(result: Result, expected: str) -> None:

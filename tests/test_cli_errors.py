@@ -69,7 +69,7 @@ def test_unknown_option(invoke, small_folder: Path) -> None:  # type: ignore[no-
 def test_missing_argument(invoke) -> None:  # type: ignore[no-untyped-def]
     status, _, stderr = invoke("run")
     assert status == 1
-    assert one_error_line(stderr) == "pilewise: error: Missing argument 'source'; see 'pilewise run --help'"
+    assert one_error_line(stderr) == "pilewise: error: Missing argument 'SOURCE'; see 'pilewise run --help'"
 
 
 @BOTH

@@ -10,8 +10,9 @@ from pathlib import Path
 from typing import Annotated, Any, TypeVar
 
 import typer
-from typer.core import TyperGroup
+from typer.core import TyperCommand, TyperGroup
 
+import pilewise
 from pilewise.clustering.sweep import parse_k_range
 from pilewise.errors import PilewiseError
 from pilewise.options import RunOptions, validate
@@ -53,6 +54,22 @@ class OneLineErrors(TyperGroup):
         sys.exit(status if isinstance(status, int) else 0)
 
 
+class PlainUsage(TyperCommand):
+    """A command whose usage line names its arguments in capitals, as most command-line tools do.
+
+    typer writes a required argument as ``{source}``; ``pilewise run [OPTIONS] SOURCE`` is what a reader
+    of other tools' help expects.
+    """
+
+    def collect_usage_pieces(self, ctx: Any) -> list[str]:
+        pieces = [self.options_metavar] if self.options_metavar else []
+        for param in self.get_params(ctx):
+            if param.param_type_name == "argument":
+                name = (param.metavar or param.name or "").upper()
+                pieces.append(name if param.required else f"[{name}]")
+        return pieces
+
+
 def usage_error_line(err: Any, commands: Sequence[str], args: Sequence[str]) -> str:
     """Click's message as pilewise's one error line, pointing at the help of the command concerned.
 
@@ -76,10 +93,29 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Cluster a pile of unlabeled text and describe every cluster with evidence, as a static site.",
     pretty_exceptions_enable=False,
+    # plain help: flags without a "<bool>" value and no box drawing, readable in any terminal or pager
+    rich_markup_mode=None,
+    context_settings={"help_option_names": ["-h", "--help"]},
 )
 
-OutOption = Annotated[Path, typer.Option("--out", help="Site folder; each run goes to OUT/runs/NAME.")]
-SeedOption = Annotated[int, typer.Option("--seed", help="Seed for every random step; same seed, same files.")]
+
+def _print_version(given: bool) -> None:
+    if given:
+        typer.echo(f"pilewise {pilewise.__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: Annotated[bool, typer.Option(
+        "--version", callback=_print_version, is_eager=True, help="Print the version and exit.")] = False,
+) -> None:
+    """Cluster a pile of unlabeled text and describe every cluster with evidence, as a static site."""
+
+OutOption = Annotated[Path, typer.Option(
+    "--out", metavar="OUT", help="Site folder; each run goes to OUT/runs/NAME.")]
+SeedOption = Annotated[int, typer.Option(
+    "--seed", metavar="N", help="Seed for every random step; same seed, same files.")]
 QuietOption = Annotated[bool, typer.Option("--quiet", help="Print only the result and errors.")]
 
 
@@ -111,45 +147,56 @@ def _print_outcome(outcome: RunOutcome, *, quiet: bool) -> None:
             f"{outcome.skipped:,} files or rows skipped (see ingest-report.csv)",
             err=True,
         )
-    typer.echo(str(outcome.index_page))
+    typer.echo(str(outcome.index_page.resolve()))
 
 
-SourceArg = Annotated[Path, typer.Argument(help="A folder (read recursively) or one table file.")]
-NameOption = Annotated[str, typer.Option("--name", help="Folder name; default from the method and k.")]
-TextColumn = Annotated[str | None, typer.Option("--text-column", help="Table column holding the text.")]
-TitleColumn = Annotated[str | None, typer.Option("--title-column", help="Table column holding titles.")]
-IdColumn = Annotated[str | None, typer.Option("--id-column", help="Table column holding document ids.")]
-DateColumn = Annotated[str | None, typer.Option("--date-column", help="Table column holding dates.")]
+SourceArg = Annotated[Path, typer.Argument(
+    metavar="SOURCE", help="A folder (read recursively) or one table file.", show_default=False)]
+NameOption = Annotated[str, typer.Option("--name", metavar="NAME", help="Folder name; default from the method and k.")]
+TextColumn = Annotated[str | None, typer.Option(
+    "--text-column", metavar="COLUMN", help="Table column holding the text.")]
+TitleColumn = Annotated[str | None, typer.Option(
+    "--title-column", metavar="COLUMN", help="Table column holding titles.")]
+IdColumn = Annotated[str | None, typer.Option(
+    "--id-column", metavar="COLUMN", help="Table column holding document ids.")]
+DateColumn = Annotated[str | None, typer.Option("--date-column", metavar="COLUMN", help="Table column holding dates.")]
 Delimiter = Annotated[str | None, typer.Option(
-    "--delimiter", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
+    "--delimiter", metavar="CHAR", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
 Encoding = Annotated[str | None, typer.Option(
-    "--encoding", help="Text encoding of every file, e.g. cp1252; default: detected.")]
+    "--encoding", metavar="NAME", help="Text encoding of every file, e.g. cp1252; default: detected.")]
 RecordsKey = Annotated[str | None, typer.Option(
-    "--records-key", help="Key of a JSON object that holds the list of records; default: found.")]
+    "--records-key", metavar="KEY", help="Key of a JSON object that holds the list of records; default: found.")]
 FollowLinks = Annotated[bool, typer.Option(
     "--follow-links", help="Also read links whose target lies outside SOURCE.")]
 Boilerplate = Annotated[bool, typer.Option(
     "--boilerplate/--keep-boilerplate", help="Remove lines repeated across many texts before vectorizing.")]
-StopWords = Annotated[Path | None, typer.Option("--stop-words", help="Extra stop words, one per line.")]
+StopWords = Annotated[Path | None, typer.Option("--stop-words", metavar="FILE", help="Extra stop words, one per line.")]
 Stem = Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")]
 PhrasesInSpace = Annotated[bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases.")]
-LsaComponents = Annotated[int, typer.Option("--lsa-components", help="LSA dimensions; 0 turns LSA off.")]
-MinDf = Annotated[int | None, typer.Option("--min-df", help="Drop terms in fewer documents; default by size.")]
-MaxDf = Annotated[float, typer.Option("--max-df", help="Drop terms in a larger share of documents.")]
-Method = Annotated[str, typer.Option("--method", help="kmeans, or ward (a tree cut at k).")]
-Resamples = Annotated[int, typer.Option("--resamples", help="Bootstrap resamples for cluster stability.")]
+LsaComponents = Annotated[int, typer.Option("--lsa-components", metavar="N", help="LSA dimensions; 0 turns LSA off.")]
+MinDf = Annotated[int | None, typer.Option(
+    "--min-df", metavar="N", help="Drop terms in fewer documents; default by size.")]
+MaxDf = Annotated[float, typer.Option("--max-df", metavar="SHARE", help="Drop terms in a larger share of documents.")]
+Method = Annotated[str, typer.Option("--method", metavar="kmeans|ward", help="kmeans, or ward (a tree cut at k).")]
+Resamples = Annotated[int, typer.Option("--resamples", metavar="N", help="Bootstrap resamples for cluster stability.")]
 MaxFileMb = Annotated[float, typer.Option(
-    "--max-file-mb", help="Skip text, HTML, mail and .json files larger than this; tables and mailboxes stream.")]
-MaxDocChars = Annotated[int, typer.Option("--max-doc-chars", help="Truncate longer documents (and say so).")]
+    "--max-file-mb", metavar="MB",
+    help="Skip text, HTML, mail and .json files larger than this; tables and mailboxes stream.")]
+MaxDocChars = Annotated[int, typer.Option(
+    "--max-doc-chars", metavar="N", help="Truncate longer documents (and say so).")]
 Redact = Annotated[bool, typer.Option("--redact/--no-redact", help="Hide e-mails, phones, cards, IBANs, IPs.")]
-NearDuplicate = Annotated[float, typer.Option("--near-duplicate", help="Jaccard at which texts group; 1 = off.")]
-MaxDocuments = Annotated[int, typer.Option("--max-documents", help="Refuse collections with more documents.")]
+NearDuplicate = Annotated[float, typer.Option(
+    "--near-duplicate", metavar="JACCARD", help="Jaccard at which texts group; 1 = off.")]
+MaxDocuments = Annotated[int, typer.Option(
+    "--max-documents", metavar="N", help="Refuse collections with more documents.")]
 Mode = Annotated[str, typer.Option(
-    "--mode", help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
+    "--mode", metavar="memory|stream|auto",
+    help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
 Workers = Annotated[int, typer.Option(
-    "--workers", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
+    "--workers", metavar="N", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
 )]
-KRange = Annotated[str, typer.Option("--k-range", help="Range of k for the levels view and --k auto, LOW:HIGH.")]
+KRange = Annotated[str, typer.Option(
+    "--k-range", metavar="LOW:HIGH", help="Range of k for the levels view and --k auto.")]
 
 
 def parse_k(text: str) -> tuple[int, bool]:
@@ -204,11 +251,13 @@ def _run_options(params: dict[str, Any], *, k: str | None, k_range: tuple[str, s
     return options
 
 
-@app.command()
+@app.command(cls=PlainUsage, short_help="Cluster SOURCE; write a run's site and exports to OUT/runs/NAME/.")
 @user_errors
 def run(
     source: SourceArg,
-    k: Annotated[str, typer.Option("--k", help="Number of clusters (2 <= k < distinct documents), or auto.")],
+    k: Annotated[str | None, typer.Option(
+        "--k", metavar="K|auto", show_default=False,
+        help="Number of clusters (2 <= k < distinct documents), or auto; without --k: auto.")] = None,
     out: OutOption = Path("pilewise-site"),
     seed: SeedOption = 0,
     name: NameOption = "",
@@ -239,16 +288,18 @@ def run(
     workers: Workers = 0,
     quiet: QuietOption = False,
 ) -> None:
-    """Cluster SOURCE into K clusters (or the k the figures favour) and write the run's site and exports."""
+    """Cluster SOURCE into K clusters (or the k the figures favour) and write OUT/runs/NAME/: site and exports."""
     options = _run_options(locals(), k=k, k_range=(k_range, "--k-range"))
+    if k is None and not options.quiet:
+        typer.echo(f"no --k given: choosing k between {options.k_min} and {options.k_max} (--k auto)", err=True)
     _print_outcome(run_collection(options), quiet=options.quiet)
 
 
-@app.command()
+@app.command(cls=PlainUsage, short_help="Score a range of k on SOURCE and recommend one (OUT/sweeps/NAME/).")
 @user_errors
 def sweep(
     source: SourceArg,
-    k: Annotated[str, typer.Option("--k", help="Range of cluster counts, LOW:HIGH.")] = "2:20",
+    k: Annotated[str, typer.Option("--k", metavar="LOW:HIGH", help="Range of cluster counts.")] = "2:20",
     out: OutOption = Path("pilewise-site"),
     seed: SeedOption = 0,
     name: NameOption = "",
@@ -275,30 +326,33 @@ def sweep(
     near_duplicate: NearDuplicate = 0.8,
     quiet: QuietOption = False,
 ) -> None:
-    """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability) and recommend one."""
+    """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability), recommend one,
+    and write OUT/sweeps/NAME/."""
     outcome = sweep_collection(_run_options(locals(), k=None, k_range=(k, "--k")))
     typer.echo(f"recommended {outcome.reason}", err=True)
-    typer.echo(str(outcome.page))
+    typer.echo(str(outcome.page.resolve()))
 
 
-@app.command()
+@app.command(cls=PlainUsage, short_help="Compare two runs: kept, split and merged clusters, moved documents.")
 @user_errors
 def compare(
-    run_a: Annotated[Path, typer.Argument(help="The first run's folder, e.g. pilewise-site/runs/k5.")],
-    run_b: Annotated[Path, typer.Argument(help="The second run's folder, e.g. pilewise-site/runs/k10.")],
+    run_a: Annotated[Path, typer.Argument(metavar="RUN_A", help="The first run's folder, e.g. pilewise-site/runs/k5.")],
+    run_b: Annotated[Path, typer.Argument(
+        metavar="RUN_B", help="The second run's folder, e.g. pilewise-site/runs/k10.")],
     out: Annotated[
-        Path | None, typer.Option("--out", help="Site folder for the comparison; default: the runs' site folder.")
+        Path | None, typer.Option(
+            "--out", metavar="OUT", help="Site folder for the comparison; default: the runs' site folder.")
     ] = None,
 ) -> None:
     """Compare two runs: agreement figures, which clusters were kept, split or merged, which documents moved."""
-    typer.echo(str(compare_runs(run_a, run_b, out)))
+    typer.echo(str(compare_runs(run_a, run_b, out).resolve()))
 
 
-@app.command()
+@app.command(cls=PlainUsage, short_help="Write the invented demo collection and cluster it.")
 @user_errors
 def demo(
     out: OutOption = Path("pilewise-site"),
-    k: Annotated[int, typer.Option("--k", help="Number of clusters.")] = 10,
+    k: Annotated[int, typer.Option("--k", metavar="K", help="Number of clusters.")] = 10,
     seed: SeedOption = 0,
     quiet: QuietOption = False,
 ) -> None:
