@@ -159,6 +159,8 @@ TitleColumn = Annotated[str | None, typer.Option(
     "--title-column", metavar="COLUMN", help="Table column holding titles.")]
 IdColumn = Annotated[str | None, typer.Option(
     "--id-column", metavar="COLUMN", help="Table column holding document ids.")]
+Period = Annotated[str, typer.Option(
+    "--period", metavar="day|week|month|auto", help="Periods of the trend counts; auto: from the span of the dates.")]
 DateColumn = Annotated[str | None, typer.Option("--date-column", metavar="COLUMN", help="Table column holding dates.")]
 Delimiter = Annotated[str | None, typer.Option(
     "--delimiter", metavar="CHAR", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
@@ -267,6 +269,7 @@ def run(
     title_column: TitleColumn = None,
     id_column: IdColumn = None,
     date_column: DateColumn = None,
+    period: Period = "auto",
     delimiter: Delimiter = None,
     encoding: Encoding = None,
     records_key: RecordsKey = None,

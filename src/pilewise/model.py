@@ -16,6 +16,7 @@ if TYPE_CHECKING:  # stage types for annotations only: model stays importable by
     from pilewise.describe.names import Naming
     from pilewise.describe.profiles import ClusterProfile, MetadataAnalysis
     from pilewise.describe.rules import RuleSet
+    from pilewise.describe.trends import Trends
     from pilewise.ingest.dedup import Boilerplate
     from pilewise.options import RunOptions
     from pilewise.vectors.text import Analyzer
@@ -172,3 +173,4 @@ class RunResult:
     metadata: MetadataAnalysis | None
     fingerprint: str
     timings: dict[str, float]
+    trends: Trends | None = None  # None: no document has a readable date

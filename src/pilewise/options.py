@@ -25,6 +25,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 
 METHODS = ("kmeans", "ward")
 MODES = ("auto", "memory", "stream")
+PERIODS = ("auto", "day", "week", "month")
 # --mode auto streams when the files to read hold at least this many bytes (about 250,000 short
 # texts; the in-memory path measured 956 MB for 100,000 texts of 20-120 words, docs/performance.md)
 STREAM_ABOVE_BYTES = 100 * 1024 * 1024
@@ -61,6 +62,7 @@ class RunOptions:
     title_column: str | None = None
     id_column: str | None = None
     date_column: str | None = None
+    period: str = "auto"  # trend periods: day, week, month, or auto (from the span of the dates)
     delimiter: str | None = None  # table separator; None: sniffed
     encoding: str | None = None  # forced text encoding; None: detected
     records_key: str | None = None  # key of a JSON object holding the list of records; None: found
@@ -147,6 +149,7 @@ CHECKS: tuple[Check, ...] = (
           lambda o: f"--encoding {o.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, latin-1, shift_jis"),
     _choice_check("method", METHODS, "--method"),
     _choice_check("mode", MODES, "--mode"),
+    _choice_check("period", PERIODS, "--period"),
     Check(lambda o: not 2 <= o.k_min < o.k_max <= LIMITS["k"][1],
           lambda o: f"k range {o.k_min}:{o.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}"),
     Check(lambda o: not _safe_name(o.run_name()),

@@ -27,6 +27,7 @@ from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_
 from pilewise.describe.rules import explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import describe_clusters
+from pilewise.describe.trends import Trends, cluster_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
@@ -403,6 +404,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
+        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period)
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
@@ -423,8 +425,16 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         redacted=prepared.redacted,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
-        fingerprint=prepared.fingerprint, timings=reporter.timings,
+        fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends,
     )
+
+
+def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str) -> Trends | None:
+    """Counts per period and trend readings of every cluster, when any document carries a date."""
+    dates = [doc.date for doc in documents]
+    if not any(dates):
+        return None
+    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period)
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

@@ -182,6 +182,36 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         "silhouette": _round(cluster.silhouette),
         "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
                       "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
+        "trend": _trend_record(result, cluster.cluster_id),
+    }
+
+
+def _trend_record(result: RunResult, c: int) -> dict[str, Any] | None:
+    """Counts per period and the reading of the cluster's trend; None when no document has a date."""
+    if result.trends is None:
+        return None
+    trend = result.trends.clusters[c]
+    return {
+        "reading": trend.reading,
+        "evidence": trend.evidence,
+        "test": "Cochran-Armitage trend in the share of each period's dated documents",
+        "z": _round(trend.z, 4), "p_value": _round(trend.p_value, 6), "q_value": _round(trend.q_value, 6),
+        "dated": trend.dated, "latest_share": _round(trend.latest_share, 4),
+        "periods": [{"start": p.start, "count": p.count, "share": _round(p.share, 4)} for p in trend.periods],
+    }
+
+
+def trends_document(result: RunResult) -> dict[str, Any] | None:
+    """The periods of the run's trend readings and how many documents carried a date."""
+    trends = result.trends
+    if trends is None:
+        return None
+    return {
+        "period": trends.period, "period_chosen_by": trends.period_chosen_by,
+        "starts": list(trends.starts), "totals": list(trends.totals),
+        "dated": trends.dated, "undated": trends.undated, "unreadable": trends.unreadable,
+        "adjustment": "Benjamini-Hochberg across the tested clusters",
+        "first": list(trends.first()),
     }
 
 
@@ -258,6 +288,7 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
                   "fidelity_macro_f1": _round(result.rules.fidelity_macro_f1, 4),
                   "folds": result.rules.folds, "features": result.rules.features,
                   "rows": int(min(result.collection.copies.size, RULES_ROWS))},
+        "trends": trends_document(result),
         "names_from_run": result.naming.source_run,
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],

@@ -1,0 +1,205 @@
+"""Themes over time: every cluster's documents counted per period, and a tested reading of its trend.
+
+The reading of a cluster compares its share of each period's dated documents across periods with the
+Cochran-Armitage test for trend in proportions (Armitage 1955; Agresti, *Categorical Data Analysis*,
+section on trend tests), with the period's position as score. The p-values of all tested clusters are
+adjusted together by the Benjamini-Hochberg procedure (Benjamini and Hochberg 1995; scipy's
+`false_discovery_control`), so that "rising" on a run of 20 clusters is not just the luck of 20 tests.
+docs/method.md, "Themes over time", states the rules and thresholds.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+PERIODS = ("day", "week", "month")
+MIN_DATED = 10  # fewer dated members than this: "too few" (common practice: a trend needs some counts)
+MIN_PERIODS = 3  # a trend needs at least three periods holding documents
+SIGNIFICANCE = 0.05  # on the Benjamini-Hochberg adjusted p-value (the false discovery rate)
+NEW_SHARE = 0.75  # "new": at least this share of the cluster's dated documents in the latest quarter ...
+NEW_BACKGROUND = 0.5  # ... while the collection holds at most this share of its dated documents there
+
+
+@dataclass(frozen=True)
+class PeriodCount:
+    """A cluster's documents in one period, and their share of that period's dated documents."""
+
+    start: str  # ISO date of the period's first day
+    count: int
+    share: float
+
+
+@dataclass(frozen=True)
+class ClusterTrend:
+    """The trend reading of one cluster, with the statistic behind it."""
+
+    reading: str  # "new", "rising", "falling", "steady" or "too few"
+    periods: tuple[PeriodCount, ...]
+    dated: int  # members with a readable date
+    latest_share: float  # share of the dated members in the latest quarter of the periods
+    z: float | None  # Cochran-Armitage statistic; positive when the share grows
+    p_value: float | None
+    q_value: float | None  # Benjamini-Hochberg adjusted p-value across the tested clusters
+
+    @property
+    def evidence(self) -> str:
+        """One line saying why the reading was given."""
+        if self.reading == "too few":
+            return f"{self.dated} dated documents: too few to read a trend"
+        tested = f"Cochran-Armitage z = {self.z:+.2f}, adjusted p = {self.q_value:.3g}" if self.z is not None else ""
+        if self.reading == "new":
+            return f"{self.latest_share:.0%} of its dated documents fall in the latest quarter of the span; {tested}"
+        return tested
+
+
+@dataclass(frozen=True)
+class Trends:
+    """Counts per period for the collection and every cluster."""
+
+    period: str  # "day", "week" or "month"
+    period_chosen_by: str  # "span" or "--period"
+    starts: tuple[str, ...]
+    totals: tuple[int, ...]  # dated documents of the collection per period
+    clusters: tuple[ClusterTrend, ...]
+    dated: int
+    undated: int  # documents without a date
+    unreadable: int  # documents whose date could not be read
+
+    def first(self) -> tuple[int, ...]:
+        """Cluster ids to list first: new, then rising (strongest first)."""
+        order = {"new": 0, "rising": 1}
+        chosen = [c for c, t in enumerate(self.clusters) if t.reading in order]
+        return tuple(sorted(chosen, key=lambda c: (order[self.clusters[c].reading], -(self.clusters[c].z or 0.0))))
+
+
+def parse_dates(values: Sequence[str]) -> tuple[np.ndarray, int, int]:
+    """Days (numpy datetime64[D], NaT where missing) of ISO 8601 or other common date strings.
+
+    Returns the days, the number of empty values and the number of values that could not be read.
+    Time zones are converted to UTC before the day is taken.
+    """
+    raw = pd.Series(list(values), dtype="string").str.strip()
+    empty = raw.isna() | (raw == "")
+    parsed = pd.to_datetime(raw.where(~empty), errors="coerce", utc=True, format="ISO8601")
+    retry = parsed.isna() & ~empty
+    if retry.any():  # 03/01/2026, "1 Mar 2026", ...: pandas' element-wise parser (month first when ambiguous)
+        parsed[retry] = pd.to_datetime(raw[retry], errors="coerce", utc=True, format="mixed")
+    days = parsed.dt.tz_localize(None).to_numpy(dtype="datetime64[D]")
+    unreadable = int((parsed.isna() & ~empty).sum())
+    return days, int(empty.sum()), unreadable
+
+
+def choose_period(first: np.datetime64, last: np.datetime64) -> str:
+    """Days up to two months of span, weeks up to about 14 months, months above: roughly 8 to 60 periods."""
+    span = int((last - first).astype(int))
+    if span <= 62:
+        return "day"
+    if span <= 7 * 60:
+        return "week"
+    return "month"
+
+
+def period_starts(days: np.ndarray, period: str) -> np.ndarray:
+    """The first day of each day's period (ISO weeks start on Monday; months on their first day)."""
+    if period == "day":
+        return days
+    if period == "week":
+        # 1970-01-01 was a Thursday: days since the epoch + 3 count from a Monday
+        offset = (days.astype("datetime64[D]").astype(np.int64) + 3) % 7
+        return days - offset.astype("timedelta64[D]")
+    return days.astype("datetime64[M]").astype("datetime64[D]")
+
+
+def _all_starts(first: np.datetime64, last: np.datetime64, period: str) -> np.ndarray:
+    """Every period start from the first to the last, empty periods included."""
+    if period == "month":
+        return np.arange(first.astype("datetime64[M]"), last.astype("datetime64[M]") + 1).astype("datetime64[D]")
+    step = 7 if period == "week" else 1
+    return np.arange(first, last + 1, step, dtype="datetime64[D]")
+
+
+def cochran_armitage(counts: np.ndarray, totals: np.ndarray, scores: np.ndarray | None = None) -> tuple[float, float]:
+    """The Cochran-Armitage test for a linear trend in proportions: (z, two-sided p).
+
+    ``counts[i]`` of ``totals[i]`` are "successes" in ordered group i with score ``scores[i]``
+    (default 0, 1, 2, ...). T = sum s_i (x_i - n_i p) and Var T = p (1 - p) (sum n_i s_i^2 - (sum n_i s_i)^2 / N),
+    with p the pooled proportion (Armitage 1955; Agresti, Categorical Data Analysis). z is 0 and p 1 when
+    the variance is 0 (every group all successes or none, or one group only).
+    """
+    x = np.asarray(counts, dtype=float)
+    n = np.asarray(totals, dtype=float)
+    s = np.arange(x.size, dtype=float) if scores is None else np.asarray(scores, dtype=float)
+    total = n.sum()
+    if total <= 0:
+        return 0.0, 1.0
+    pooled = x.sum() / total
+    statistic = float((s * (x - n * pooled)).sum())
+    variance = pooled * (1 - pooled) * float((n * s * s).sum() - (n * s).sum() ** 2 / total)
+    if variance <= 0:
+        return 0.0, 1.0
+    z = statistic / math.sqrt(variance)
+    return z, float(2 * stats.norm.sf(abs(z)))
+
+
+def adjust_p_values(p_values: Sequence[float]) -> np.ndarray:
+    """Benjamini-Hochberg adjusted p-values (scipy.stats.false_discovery_control)."""
+    if not p_values:
+        return np.zeros(0)
+    return np.asarray(stats.false_discovery_control(np.asarray(p_values, dtype=float), method="bh"))
+
+
+def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None) -> Trends | None:
+    """Counts per period and a trend reading for each of the k clusters; None when no date can be read.
+
+    ``dates[i]`` and ``labels[i]`` belong to document i (every copy of a text counts, as everywhere).
+    """
+    days, undated, unreadable = parse_dates(dates)
+    known = ~np.isnat(days)
+    if not known.any():
+        return None
+    chosen_by = "--period" if period else "span"
+    period = period or choose_period(days[known].min(), days[known].max())
+    starts_of_docs = period_starts(days[known], period)
+    starts = _all_starts(starts_of_docs.min(), starts_of_docs.max(), period)
+    position = np.searchsorted(starts, starts_of_docs)
+    cluster_of = np.asarray(labels)[known]
+    table = np.zeros((k, starts.size), dtype=np.int64)
+    np.add.at(table, (cluster_of, position), 1)
+    totals = table.sum(axis=0)
+    latest = slice(starts.size - max(1, math.ceil(starts.size / 4)), None)
+    background = totals[latest].sum() / max(1, totals.sum())
+    tests: dict[int, tuple[float, float]] = {}
+    for c in range(k):
+        if table[c].sum() >= MIN_DATED and np.count_nonzero(totals) >= MIN_PERIODS:
+            tests[c] = cochran_armitage(table[c], totals)
+    adjusted = dict(zip(tests, adjust_p_values([p for _, p in tests.values()]), strict=True))
+    clusters = []
+    for c in range(k):
+        dated = int(table[c].sum())
+        latest_share = float(table[c, latest].sum() / dated) if dated else 0.0
+        z, p = tests.get(c, (None, None))
+        q = float(adjusted[c]) if c in adjusted else None
+        clusters.append(ClusterTrend(
+            reading=_reading(z, q, latest_share, background, tested=c in tests),
+            periods=tuple(PeriodCount(str(start), int(count), float(count / total) if total else 0.0)
+                          for start, count, total in zip(starts, table[c], totals, strict=True)),
+            dated=dated, latest_share=latest_share, z=z, p_value=p, q_value=q,
+        ))
+    return Trends(period, chosen_by, tuple(str(s) for s in starts), tuple(int(t) for t in totals), tuple(clusters),
+                  dated=int(known.sum()), undated=undated, unreadable=unreadable)
+
+
+def _reading(z: float | None, q: float | None, latest_share: float, background: float, *, tested: bool) -> str:
+    if not tested or z is None or q is None:
+        return "too few"
+    if latest_share >= NEW_SHARE and background <= NEW_BACKGROUND:
+        return "new"
+    if q < SIGNIFICANCE:
+        return "rising" if z > 0 else "falling"
+    return "steady"
