@@ -257,6 +257,9 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "name_flag": naming.flag,
         "href": cluster_page_name(cluster.cluster_id),
         "headline": cluster.headline,
+        "headline_note": _headline_note(cluster, result),
+        "mixed": cluster.mixed,
+        "mixed_reason": cluster.mixed_reason,
         "size": cluster.size,
         "share": cluster.share,
         "bar": round(100 * cluster.share / largest, 1),
@@ -267,6 +270,17 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "stability_class": "stab-" + cluster.stability_reading.split(",")[0].replace(" ", "-"),
         "rule": result.rules.rules[cluster.cluster_id],
     }
+
+
+def _headline_note(cluster: ClusterSummary, result: RunResult) -> str:
+    """Where the headline comes from, in one sentence."""
+    if cluster.headline_source == "terms":
+        return "The headline lists top terms: no title or sentence of the nearest members carries them."
+    doc = result.collection.documents[cluster.headline_doc]
+    what = "the title" if cluster.headline_source == "title" else "a sentence"
+    doc_id = private_text(doc.doc_id) if result.options.redact else doc.doc_id  # ids may hold personal data
+    return (f"The headline is {what} of {doc_id}, the member among the nearest that carries most of "
+            "the cluster's terms.")
 
 
 def _member_row(
