@@ -26,7 +26,7 @@ from pilewise.describe.names import carry_names, earlier_run_problems, find_old_
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
-from pilewise.describe.summaries import describe_clusters
+from pilewise.describe.summaries import describe_clusters, level_terms
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
@@ -398,6 +398,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
         shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
+        levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
         profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
         doc_columns = metadata_columns(prepared.collection)
         # every document counts, copies too: a copy of a text may carry other cells than its first document

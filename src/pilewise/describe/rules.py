@@ -704,8 +704,22 @@ def rule_words(terms: Sequence[Sequence[Literal]], columns: _Columns) -> str:
     """The rule as one sentence: "Documents that mention "a" and "b" but not "c", whose channel is "chat"."."""
     if not terms:
         return ""
+    if len(terms) > 1:
+        common = [lit for lit in terms[0] if all(lit in term for term in terms[1:])]
+        rest = [[lit for lit in term if lit not in common] for term in terms]
+        if all(len(r) == 1 and _is_word(r[0], columns) for r in rest) and all(_is_word(c, columns) for c in common):
+            either = _joined([f'"{columns.shown[r[0][0]]}"' for r in rest], "or")
+            if not common:  # "a" or "b" or "c"
+                return f"Documents that mention {either}."
+            said = _joined([f'"{columns.shown[j]}"' for j, _ in common], "and")
+            return f"Documents that mention {said} and either {either}."
     clauses = [_clause(term, columns) for term in terms]
     return "Documents " + "; or documents ".join(clauses) + "."
+
+
+def _is_word(literal: Literal, columns: _Columns) -> bool:
+    """A "mentions" condition on a term (not a negation, not a table column)."""
+    return literal[1] and not columns.field[literal[0]]
 
 
 def _clause(term: Sequence[Literal], columns: _Columns) -> str:

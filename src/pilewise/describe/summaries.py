@@ -15,6 +15,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering.kmeans import Clustering, cluster_sums
+from pilewise.clustering.levels import Levels
 from pilewise.clustering.stability import StabilityResult
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
 from pilewise.describe.kwic import kwic_line
@@ -132,6 +133,43 @@ def describe_clusters(
             )
         )
     return tuple(summaries)
+
+
+LEVEL_TERMS = 5  # terms that describe a cluster of a coarser or finer cut
+
+
+def level_terms(
+    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS
+) -> dict[int, tuple[tuple[str, ...], ...]]:
+    """For every cut of `levels`, each cluster's `top` terms by chi-square (as in `describe_clusters`).
+
+    The cuts of one tree nest, so the document frequencies of the finest cut (one pass over the rows)
+    are summed into those of every coarser cut.
+    """
+    if not levels.cuts:
+        return {}
+    finest_k = max(levels.cuts)
+    finest = levels.cuts[finest_k]
+    df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
+    size_fine = np.bincount(finest, weights=weights, minlength=finest_k)
+    df_all = np.asarray(df_fine.sum(axis=0)).ravel()
+    total = float(weights.sum())
+    first_row = np.full(finest_k, -1)
+    first_row[finest[::-1]] = np.arange(finest.size)[::-1]  # a row of every fine cluster (the first)
+    out: dict[int, tuple[tuple[str, ...], ...]] = {}
+    for k, cut in sorted(levels.cuts.items()):
+        present = first_row >= 0
+        coarse_of_fine = np.zeros(finest_k, dtype=np.int64)
+        coarse_of_fine[present] = cut[first_row[present]]
+        merge = sp.csr_matrix((np.ones(finest_k), (coarse_of_fine, np.arange(finest_k))), shape=(k, finest_k))
+        df_k = sp.csr_matrix(merge @ df_fine)
+        sizes = merge @ size_fine
+        out[k] = tuple(
+            tuple(t.term for t in _chi2_terms(df_k[c].toarray().ravel(), df_all, float(sizes[c]), total, shown,
+                                              shown, top))
+            for c in range(k)
+        )
+    return out
 
 
 def mixed_reason(theme_terms: Sequence[TermScore], similarity: float, others_median: float | None) -> str:

@@ -59,7 +59,9 @@ def levels_document(result: RunResult) -> dict[str, Any]:
         "k_range": [levels.k_min, levels.k_max],
         "levels": [
             {"k": k, "clusters": [
-                {"id": c.cluster_id, "size": c.size, "headline": docs[first[c.exemplar_text]].title,
+                {"id": c.cluster_id, "size": c.size,
+                 "terms": list(levels.terms[k][c.cluster_id]) if k in levels.terms else [],
+                 "headline": docs[first[c.exemplar_text]].title,
                  "exemplar_doc_id": docs[first[c.exemplar_text]].doc_id, "run_clusters": list(c.run_clusters)}
                 for c in clusters]}
             for k, clusters in sorted(levels.clusters.items())
@@ -192,7 +194,8 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
 
 def _rule_record(result: RunResult, c: int) -> dict[str, Any]:
     rule = result.rules.rules[c]
-    return {"text": rule.rule_text, "precision": _round(rule.precision, 4), "coverage": _round(rule.coverage, 4),
+    return {"text": rule.rule_text, "words": rule.rule_words, "precision": _round(rule.precision, 4),
+            "coverage": _round(rule.coverage, 4),
             "no_rule_reason": rule.no_rule_reason}
 
 

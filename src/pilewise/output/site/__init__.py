@@ -176,18 +176,25 @@ def _render_levels(folder: Path, result: RunResult, env: Environment, common: di
     first = result.collection.first_doc_of_text
     (folder / "dendrogram.svg").write_text(levels.dendrogram, encoding="utf-8")
 
-    def headline(k: int, cluster: int) -> str:
-        return str(docs[first[levels.clusters[k][cluster].exemplar_text]].title)
+    def described(k: int, cluster: int) -> str:
+        """A cut's cluster by its terms (a coarse cluster is many documents: no one document stands for it)."""
+        terms = levels.terms.get(k, ())
+        if cluster < len(terms) and terms[cluster]:
+            return ", ".join(terms[cluster])
+        return str(docs[first[levels.clusters[k][cluster].exemplar_text]].title)  # no terms computed
 
+    names = {c.cluster_id: c.shown for c in result.naming.clusters}
     splits = [
-        {"k": s.k, "parent": s.parent, "parent_size": s.parent_size, "parent_headline": headline(s.k, s.parent),
-         "children": [{"id": c, "size": n, "headline": headline(s.k + 1, c)} for c, n in s.children]}
+        {"k": s.k, "parent": s.parent, "parent_size": s.parent_size, "parent_terms": described(s.k, s.parent),
+         "children": [{"id": c, "size": n, "terms": described(s.k + 1, c)} for c, n in s.children]}
         for s in levels.splits
     ]
     rows = [
         {"k": k, "sizes": ", ".join(f"{c.size:,}" for c in clusters),
-         "clusters": [{"id": c.cluster_id, "size": c.size, "headline": headline(k, c.cluster_id),
-                       "run_clusters": [{"id": r, "href": cluster_page_name(r)} for r in c.run_clusters]}
+         "clusters": [{"id": c.cluster_id, "size": c.size, "terms": described(k, c.cluster_id),
+                       "run_clusters": [{"id": r, "href": cluster_page_name(r), "name": names.get(r, ""),
+                                         "mixed": result.clusters[r].mixed}
+                                        for r in c.run_clusters]}
                       for c in clusters]}
         for k, clusters in sorted(levels.clusters.items())
     ]
