@@ -257,7 +257,8 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     return {
         "id": cluster.cluster_id,
         "name": naming.name,
-        "title": naming.name or cluster.headline,
+        # an unnamed mixed cluster's headline is one corner of it: the title says so
+        "title": naming.name or (f"(mixed) {cluster.headline}" if cluster.mixed else cluster.headline),
         "suggested": naming.suggested,
         "name_origin": naming.origin,
         "name_note": naming.note,
