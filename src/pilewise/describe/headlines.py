@@ -166,14 +166,23 @@ def _title_options(
     return options
 
 
+def without_title_line(text: str, title: str) -> str:
+    """The text without its first non-empty line when that line is the title (a title made from it)."""
+    head, _, rest = text.lstrip().partition("\n")
+    shown = title.rstrip("…")
+    same = " ".join(head.split()) == " ".join(title.split()) or (title.endswith("…") and head.startswith(shown))
+    return rest if same else text
+
+
 def _sentence_options(
-    candidates: Sequence[int], text_of: Callable[[int], str], weights: dict[str, float],
-    keys_of: Callable[[str], list[str]],
+    candidates: Sequence[int], title_of: Callable[[int], str], text_of: Callable[[int], str],
+    weights: dict[str, float], keys_of: Callable[[str], list[str]],
 ) -> list[_Option]:
     options = []
     low, high = SENTENCE_WORDS
     for doc_index in candidates:
-        for sentence in sentences(text_of(doc_index)[:SENTENCE_SCAN_CHARS]):
+        text = without_title_line(text_of(doc_index)[:SENTENCE_SCAN_CHARS], title_of(doc_index))
+        for sentence in sentences(text):
             words = sentence.split()
             if (not low <= len(words) <= high or title_problem(sentence) is not None
                     or plain_word_share(sentence) < PLAIN_WORDS_MIN):
@@ -222,7 +231,7 @@ def choose_headlines(
         titles = _title_options(group, title_of, weights, keys_of, templates)
         rank = {d: i for i, d in enumerate(group)}
         carrying = sorted((o for o in titles if o.score > 0), key=lambda o: (-o.score, rank[o.doc_index]))
-        said = sorted(_sentence_options(group, text_of, weights, keys_of), key=lambda o: -o.score)  # stable
+        said = sorted(_sentence_options(group, title_of, text_of, weights, keys_of), key=lambda o: -o.score)  # stable
         plain = [o for o in titles if o.score <= 0]
         fallback = _Option("terms: " + ", ".join(t.term for t in cluster_terms[:4]) if cluster_terms else "(no terms)",
                            "terms", -1, 0.0)
