@@ -38,7 +38,10 @@ _WORD = re.compile(r"\S+")
 _SENTENCE_END = re.compile(r"(?<=[.!?])\s+(?=[\"'(\[]?[A-Z0-9])")
 _PARAGRAPH = re.compile(r"\n\s*\n")
 _HEADING = re.compile(r"^(?=(?:\S+\s*){1,4}$)[^\Wa-z\d_][^a-z]*$")  # up to 4 words, upper case: "SEE ALSO"
-_LEAD = re.compile(r"^[^\w\"'(\[]+")  # bullets, dashes and stray punctuation before a sentence
+# bullets, dashes and stray punctuation before a sentence (an option's "-v" or "--help" is kept, and refused)
+_LEAD = re.compile(r"^(?:[^\w\"'(\[-]|-+(?=\s))+\s*")
+_OPTION = re.compile(r"^-{1,2}[\w?]")
+_RULER = re.compile(r"\s(?:-{2,}|={3,}|_{3,}|\*{3,}|~{3,})(?:\s.*)?$")  # a signature mark or ruled line
 _FIELD = re.compile(r"^[A-Z][\w-]*:(?:\s|$)")  # "Format: ...", "Upstream-Name: ..."
 _BROKEN_WORD = re.compile(r"([^\W\d_])[-‐]\n\s*(?=[a-z])")  # "clus-" at a line's end, "ters" on the next
 _PLAIN_WORD = re.compile(r"^[^\W\d_]+(?:['’-][^\W\d_]+)*$")
@@ -121,7 +124,7 @@ def sentences(text: str) -> list[str]:
     for paragraph in _PARAGRAPH.split(text):
         for unit in _units(paragraph):
             joined = " ".join(unit.split())
-            out.extend(t for t in (_LEAD.sub("", s) for s in _SENTENCE_END.split(joined)) if t)
+            out.extend(t for t in (_RULER.sub("", _LEAD.sub("", s)) for s in _SENTENCE_END.split(joined)) if t)
     return out
 
 
@@ -184,7 +187,7 @@ def _sentence_options(
         text = without_title_line(text_of(doc_index)[:SENTENCE_SCAN_CHARS], title_of(doc_index))
         for sentence in sentences(text):
             words = sentence.split()
-            if (not low <= len(words) <= high or title_problem(sentence) is not None
+            if (not low <= len(words) <= high or title_problem(sentence) is not None or _OPTION.match(sentence)
                     or plain_word_share(sentence) < PLAIN_WORDS_MIN):
                 continue
             score = carried_weight(sentence, weights, keys_of)
