@@ -40,6 +40,8 @@ _PARAGRAPH = re.compile(r"\n\s*\n")
 _HEADING = re.compile(r"^(?=(?:\S+\s*){1,4}$)[^\Wa-z\d_][^a-z]*$")  # up to 4 words, upper case: "SEE ALSO"
 # bullets, dashes and stray punctuation before a sentence (an option's "-v" or "--help" is kept, and refused)
 _LEAD = re.compile(r"^(?:[^\w\"'(\[-]|-+(?=\s))+\s*")
+_QUOTE_MARK = re.compile(r"^\s*(?:>\s?)+")
+_ATTRIBUTION = re.compile(r"\b(?:writes|wrote|said|schrieb|a écrit)\s*:\s*$", re.IGNORECASE)
 _OPTION = re.compile(r"^-{1,2}[\w?]")
 _RULER = re.compile(r"\s(?:-{2,}|={3,}|_{3,}|\*{3,}|~{3,})(?:\s.*)?$")  # a signature mark or ruled line
 _FIELD = re.compile(r"^[A-Z][\w-]*:(?:\s|$)")  # "Format: ...", "Upstream-Name: ..."
@@ -132,8 +134,11 @@ def _units(paragraph: str) -> list[str]:
     """The paragraph's lines grouped into runs, a heading or header-field line always alone."""
     units: list[list[str]] = [[]]
     for line in paragraph.splitlines():
+        line = _QUOTE_MARK.sub("", line)  # "> quoted text" of a reply reads as text
         stripped = line.strip()
-        if _HEADING.match(stripped) or _FIELD.match(stripped):
+        if _ATTRIBUTION.search(stripped):
+            units.append([])  # "In article <id>, someone writes:" says who, not what
+        elif _HEADING.match(stripped) or _FIELD.match(stripped):
             units.extend([[stripped], []])
         else:
             units[-1].append(line)
@@ -142,7 +147,7 @@ def _units(paragraph: str) -> list[str]:
 
 def plain_word_share(text: str) -> float:
     """Share of a text's white-space tokens that are words of letters (with inner hyphens or apostrophes)."""
-    tokens = [t.strip(".,:;!?\"'()[]") for t in text.split()]
+    tokens = [t.strip(".,:;!?\"'()") for t in text.split()]  # "[e-mail]", "<id>", ">quoted" are not words
     # one letter counts only as "a" or "I": "(c)" and "-v" are not words
     plain = sum(1 for t in tokens if _PLAIN_WORD.match(t) and (len(t) > 1 or t in ("a", "A", "I")))
     return plain / max(len(tokens), 1)
@@ -188,7 +193,7 @@ def _sentence_options(
         for sentence in sentences(text):
             words = sentence.split()
             if (not low <= len(words) <= high or title_problem(sentence) is not None or _OPTION.match(sentence)
-                    or plain_word_share(sentence) < PLAIN_WORDS_MIN):
+                    or plain_word_share(display_text(sentence)) < PLAIN_WORDS_MIN):
                 continue
             score = carried_weight(sentence, weights, keys_of)
             if sentence.upper() == sentence:
