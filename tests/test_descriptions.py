@@ -108,7 +108,7 @@ def test_sentences_keep_manual_headings_and_header_fields_apart_and_rejoin_broke
                                "Sort entries."]
     # Usenet and e-mail replies (RFC 3676 §4.5 quote marks): the attribution line goes, quote marks go
     assert sentences("In article <1@x.org>, Henry writes:\n> The globe is not round.\nIt is. -- Henry") == [
-        "The globe is not round. It is."]
+        "The globe is not round.", "It is."]
     assert sentences("Format: https://example.org/x\nUpstream-Name: foo\nFiles: *") == [
         "Format: https://example.org/x", "Upstream-Name: foo", "Files: *"]
 
