@@ -142,15 +142,19 @@ def test_rule_reproduces_the_decision_path_of_the_fitted_tree(
         ).fit(X, y, sample_weight=weights)
         paths = _best_paths(model, X, y, weights)
         assert rule.rule_text, rule.no_rule_reason  # every planted topic has a rule
-        assert rule.conditions == _labelled(paths, vocab)
+        # the rule shown is the paths' "or", simplified (tests/test_rule_simplify.py checks the simplifier
+        # on truth tables): it matches exactly the rows the paths match
+        tree_paths = _labelled(paths, vocab)
+        assert np.array_equal(_apply_by_hand(rule.conditions, rows), _apply_by_hand(tree_paths, rows))
+        assert sum(map(len, rule.conditions)) <= sum(map(len, tree_paths))
         assert rule.rule_text == _rule_text_of(rule.conditions)
         # each path's conditions select exactly the rows the tree sends to one leaf
         leaf_of_row = model.estimator_.apply(sp.csc_matrix(X[:, model.columns_]))
-        for path in rule.conditions:
+        for path in tree_paths:
             matched = _apply_by_hand((path,), rows)
             assert np.unique(leaf_of_row[matched]).size == 1
             assert np.array_equal(matched, leaf_of_row == leaf_of_row[matched][0])
-        multi_condition_paths += sum(len(p) > 1 for p in rule.conditions)
+        multi_condition_paths += sum(len(p) > 1 for p in tree_paths)
     assert multi_condition_paths > 0  # the check covers conjunctions, not only single words
 
 
@@ -196,7 +200,8 @@ def test_planted_cluster_defined_by_one_word_gets_that_rule_exactly() -> None:
     present, vocab = _matrix(docs)
     result = explain_clusters(present, labels, np.ones(len(docs)), vocab, k=3, seed=0)
     rule = result.rules[0]
-    assert rule == ClusterRule(0, 'mentions "alpha"', ((("alpha", True),),), 1.0, 1.0, "")
+    assert rule == ClusterRule(0, 'mentions "alpha"', ((("alpha", True),),), 1.0, 1.0, "",
+                               'Documents that mention "alpha".')
     assert result.whole_tree.children[0].condition == 'mentions "alpha"'
     assert result.whole_tree.children[1].condition == 'does not mention "alpha"'
     assert (result.whole_tree.children[0].majority, result.whole_tree.children[0].majority_share) == (0, 1.0)
@@ -235,7 +240,8 @@ def test_metadata_category_that_defines_a_cluster_becomes_the_rule() -> None:
     rng = np.random.default_rng(0)
     channel = ["chat" if label == 1 else str(rng.choice(["email", "phone", ""])) for label in labels]
     result = explain_clusters(present, labels, np.ones(len(docs)), vocab, k=3, seed=0, metadata={"channel": channel})
-    assert result.rules[1] == ClusterRule(1, 'channel is "chat"', ((("channel = chat", True),),), 1.0, 1.0, "")
+    assert result.rules[1] == ClusterRule(1, 'channel is "chat"', ((("channel = chat", True),),), 1.0, 1.0, "",
+                                          'Documents whose channel is "chat".')
     assert result.whole_tree.children[0].condition == 'channel is "chat"'
     assert result.whole_tree.children[1].condition == 'channel is not "chat"'
     assert result.features == len(vocab) + 3  # chat, email, phone; "" is missing, not a category

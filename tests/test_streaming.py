@@ -147,6 +147,7 @@ def test_describing_respects_small_digest_bounds(
     # a small memory budget for the summaries: 2 nearest members per cluster, 3 holders per cluster and term
     folder, _, _ = planted
     monkeypatch.setattr(describe, "NEAREST_SHOWN", 2)
+    monkeypatch.setattr(describe, "HEADLINE_CANDIDATES", 2)  # the nearest members the headline is chosen from
     monkeypatch.setattr(describe, "KWIC_HOLDERS_KEPT", 3)
     monkeypatch.setattr(describe, "ROW_BLOCK", 500)
     seen: list[tuple[int, int]] = []

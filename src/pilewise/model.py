@@ -118,6 +118,12 @@ class ClusterSummary:
     silhouette: float | None
     stability: float | None = None
     stability_reading: str = ""
+    headline_source: str = "title"  # "title", "sentence" (of a member's text) or "terms"
+    headline_doc: int = -1  # index of the document the headline comes from; -1 when from the terms
+    mixed: bool = False  # no common theme: see describe.summaries.mixed_reason
+    mixed_reason: str = ""
+    suggested_name: str = ""
+    name_terms: tuple[tuple[str, float], ...] = ()  # the suggested name's terms, each with its share of members
 
 
 @dataclass(frozen=True)

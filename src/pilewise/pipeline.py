@@ -22,11 +22,11 @@ from pilewise.clustering.quality import assess
 from pilewise.clustering.stability import bootstrap_stability, stability_rows
 from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair, compare_run_folders, comparison_document, site_comparisons
-from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names, suggested_name
+from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
-from pilewise.describe.summaries import describe_clusters
+from pilewise.describe.summaries import describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -399,6 +399,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                               k_max=k_max if tree is not None else k, run_k=k)
         shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
+        levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
         profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
         doc_columns = metadata_columns(prepared.collection)
         # every document counts, copies too: a copy of a text may carry other cells than its first document
@@ -410,7 +411,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     with reporter.stage("explaining"):
         rules = explain_run(prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns, k=k,
                             seed=options.seed)
-    suggestions = [suggested_name([t.term for t in c.chi2_terms]) for c in clusters]
+    suggestions = [c.suggested_name for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
     naming = carry_names(old_names, doc_ids, clustering.labels[prepared.collection.text_of_doc], space,

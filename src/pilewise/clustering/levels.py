@@ -1,4 +1,4 @@
-"""Cutting one tree at several levels: clusters, headlines and splits for a range of k.
+"""Cutting one tree at several levels: clusters, exemplars and splits for a range of k.
 
 A Ward run cuts its tree over the documents; a k-means run builds a small Ward tree over its own
 centroids (weighted by cluster sizes), so both get the same "how it splits" view.
@@ -6,7 +6,7 @@ centroids (weighted by cluster sizes), so both get the same "how it splits" view
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
@@ -20,7 +20,7 @@ DENDROGRAM_LEAVES = 30
 
 @dataclass(frozen=True)
 class LevelCluster:
-    """One cluster of one cut: its size, its headline document and the run's clusters it overlaps."""
+    """One cluster of one cut: its size, the text nearest its centroid and the run's clusters it overlaps."""
 
     cluster_id: int
     size: int
@@ -39,6 +39,8 @@ class Levels:
     clusters: dict[int, tuple[LevelCluster, ...]]
     splits: tuple[Split, ...]
     dendrogram: str  # SVG
+    # k -> per cluster of the cut, its distinguishing terms (filled by describe.summaries.level_terms)
+    terms: dict[int, tuple[tuple[str, ...], ...]] = field(default_factory=dict)
 
 
 def centroid_tree(clustering: Clustering, weights: np.ndarray) -> Tree:

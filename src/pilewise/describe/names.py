@@ -29,10 +29,15 @@ from pilewise.describe.runfolders import (
     read_names,
     read_run,
 )
+from pilewise.model import TermScore
 
 JACCARD_CARRY = 0.5  # a name carries over to the new cluster whose members overlap the old one's this much
 CENTROID_CARRY = 0.8  # cosine of centroids, for new clusters that hold mostly new documents
 SHARED_MIN = 0.5  # below this share of documents the old run also had, the centroid fallback is used
+# A suggested name uses only terms that occur in at least this share of the cluster's documents (weighted by
+# copies): a term found in 6% of a cluster names a corner of it, not the cluster. Our choice, see docs/method.md.
+NAME_MIN_SHARE = 0.2
+MIXED_NAME_TERMS = 2  # terms shown after "mixed:" for a cluster without a common theme
 
 
 @dataclass(frozen=True)
@@ -80,6 +85,46 @@ def suggested_name(terms: Sequence[str], count: int = 3) -> str:
         if len(chosen) == count:
             break
     return " / ".join(chosen)
+
+
+@dataclass(frozen=True)
+class SuggestedName:
+    """A suggested name and its terms, each with its document share in the cluster."""
+
+    text: str
+    terms: tuple[tuple[str, float], ...]
+
+
+def suggested_name_from(
+    terms: Sequence[TermScore], *, mixed: bool = False, count: int = 3, min_share: float = NAME_MIN_SHARE
+) -> SuggestedName:
+    """A name from the best distinguishing terms that occur in at least `min_share` of the members.
+
+    Terms are taken in the order given (chi-square, best first), skipping words already inside a chosen
+    phrase. A cluster without a common theme (`mixed`) gets "mixed: a, b" from at most two such terms, or
+    "(mixed)"; a cluster with no term that common gets "(no term in 20% of members)".
+    """
+    common = [t for t in terms if t.share_in >= min_share]
+    chosen = _distinct_terms(common, MIXED_NAME_TERMS if mixed else count)
+    pairs = tuple((t.term, round(t.share_in, 4)) for t in chosen)
+    if mixed:
+        return SuggestedName("mixed: " + ", ".join(t.term for t in chosen) if chosen else "(mixed)", pairs)
+    if not chosen:
+        return SuggestedName(f"(no term in {min_share:.0%} of members)", ())
+    return SuggestedName(" / ".join(t.term for t in chosen), pairs)
+
+
+def _distinct_terms(terms: Sequence[TermScore], count: int) -> list[TermScore]:
+    """The first `count` terms, skipping one whose words hold or are held by a chosen term's words."""
+    chosen: list[TermScore] = []
+    for term in terms:
+        words = set(term.term.split())
+        if any(words <= set(c.term.split()) or set(c.term.split()) <= words for c in chosen):
+            continue
+        chosen.append(term)
+        if len(chosen) == count:
+            break
+    return chosen
 
 
 def read_names_csv(path: Path) -> dict[int, tuple[str, str]]:

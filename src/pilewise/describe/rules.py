@@ -16,6 +16,7 @@ with the cluster labels, as in Craven & Shavlik 1996 for surrogate trees) is cro
 
 from __future__ import annotations
 
+import itertools
 import math
 import warnings
 from collections.abc import Mapping, Sequence
@@ -71,6 +72,8 @@ class ClusterRule:
         were too few texts to fold.
     no_rule_reason : str
         Why no rule is shown; "" when there is one.
+    rule_words : str
+        The rule as a sentence ("Documents that mention "refund" but not "delivery"."); "" when none.
     """
 
     cluster_id: int
@@ -79,6 +82,7 @@ class ClusterRule:
     precision: float | None
     coverage: float | None
     no_rule_reason: str
+    rule_words: str = ""
 
 
 @dataclass(frozen=True)
@@ -258,6 +262,8 @@ class _Columns:
     labels: tuple[str, ...]
     present_text: tuple[str, ...]
     absent_text: tuple[str, ...]
+    field: tuple[str, ...]  # the metadata field of a category column ("" for a term): one value per text
+    shown: tuple[str, ...]  # the term, or the category's value, as quoted in plain words
 
 
 @dataclass(frozen=True)
@@ -414,6 +420,8 @@ def _feature_matrix(
     labels = [str(t) for t in term_labels]
     present_text = [f'mentions "{t}"' for t in labels]
     absent_text = [f'does not mention "{t}"' for t in labels]
+    fields = [""] * len(labels)
+    shown = list(labels)
     blocks = [terms]
     for name, values in metadata.items():
         values_array = np.asarray([str(v) for v in values], dtype=object)
@@ -431,8 +439,10 @@ def _feature_matrix(
             labels.append(f"{name} = {kinds[i]}")
             present_text.append(f'{name} is "{kinds[i]}"')
             absent_text.append(f'{name} is not "{kinds[i]}"')
+            fields.append(name)
+            shown.append(str(kinds[i]))
     X = sp.csr_matrix(sp.hstack(blocks, format="csr", dtype=np.float32))
-    return X, _Columns(tuple(labels), tuple(present_text), tuple(absent_text))
+    return X, _Columns(tuple(labels), tuple(present_text), tuple(absent_text), tuple(fields), tuple(shown))
 
 
 def _column_presence(X: sp.csr_matrix) -> list[np.ndarray]:
@@ -464,7 +474,8 @@ def _cluster_rule(
         fn += float(w[~matched & truth].sum())
     precision = tp / (tp + fp) if tp + fp > 0 else None
     coverage = tp / (tp + fn)
-    text = _rule_text(paths, columns)
+    simple = simplify_paths([p.conditions for p in paths], exclusive_groups(columns.field))
+    text = rule_text(simple, columns)
     reason = ""
     if not paths:
         reason = f"no path of the depth-{model.max_depth} tree ends in a leaf where this cluster is the majority"
@@ -480,8 +491,8 @@ def _cluster_rule(
             reason = " and ".join(shortfalls) + f" (best rule: {text})"
     if reason:
         return ClusterRule(c, "", (), precision, coverage, reason)
-    conditions = tuple(tuple((columns.labels[j], is_present) for j, is_present in p.conditions) for p in paths)
-    return ClusterRule(c, text, conditions, precision, coverage, "")
+    conditions = tuple(tuple((columns.labels[j], is_present) for j, is_present in term) for term in simple)
+    return ClusterRule(c, text, conditions, precision, coverage, "", rule_words(simple, columns))
 
 
 def _leaf_paths(model: ChiSquareTreeClassifier, positive: object) -> list[_Path]:
@@ -529,14 +540,16 @@ def _matches(paths: Sequence[_Path], column_present: list[np.ndarray], n: int) -
     return matched
 
 
-def _rule_text(paths: Sequence[_Path], columns: _Columns) -> str:
-    """Conditions joined by "and", paths by "or"; a path of several conditions in parentheses when two."""
+def rule_text(terms: Sequence[Sequence[Literal]], columns: _Columns) -> str:
+    """Conditions joined by "and", terms by "or"; a term of several conditions in parentheses when two."""
     texts = [
-        " and ".join(columns.present_text[j] if present else columns.absent_text[j] for j, present in p.conditions)
-        for p in paths
+        " and ".join(columns.present_text[j] if present else columns.absent_text[j] for j, present in term)
+        for term in terms
     ]
-    if len(paths) > 1:
-        texts = [f"({t})" if len(p.conditions) > 1 else t for t, p in zip(texts, paths, strict=True)]
+    if len(terms) > 1:
+        texts = [f"({t})" if len(term) > 1 else t for t, term in zip(texts, terms, strict=True)]
+    if terms and not any(terms):
+        return "every document"
     return " or ".join(texts)
 
 
@@ -577,3 +590,157 @@ def explain_run(
     categorical = [c.column for c in metadata.categorical] if metadata is not None else []
     fields = {name: [columns[name][i] for i in rows] for name in categorical} or None
     return explain_clusters(present, labels[rows], weights[rows], shown, k=k, seed=seed, metadata=fields)
+
+
+Literal = tuple[int, bool]  # (column, present?)
+MAX_EXACT_VARIABLES = 8  # above this many columns in one rule, paths are only de-duplicated (2 paths of depth 3: 6)
+
+
+def exclusive_groups(fields: Sequence[str]) -> list[frozenset[int]]:
+    """Columns that cannot hold together: the category columns of one metadata field (a text has one value)."""
+    by_field: dict[str, set[int]] = {}
+    for column, name in enumerate(fields):
+        if name:
+            by_field.setdefault(name, set()).add(column)
+    return [frozenset(columns) for columns in by_field.values() if len(columns) > 1]
+
+
+def simplify_paths(
+    paths: Sequence[Sequence[Literal]], exclusive: Sequence[frozenset[int]] = ()
+) -> tuple[tuple[Literal, ...], ...]:
+    """The shortest "or" of "and"s that is true exactly where one of `paths` is, on every possible input.
+
+    Exact two-level minimization (Quine 1952, "The problem of simplifying truth functions"; McCluskey 1956):
+    every assignment of the columns the paths mention is enumerated; assignments in which two columns of
+    one `exclusive` group hold together cannot occur (two values of one field) and are "don't care". The
+    prime implicants are found by enumerating every conjunction of the columns, and the smallest cover
+    of the true assignments is chosen by trying covers of 1, 2, ... terms. Among covers of equal size,
+    fewer conditions win, then more positive conditions ("mentions" rather than "does not mention"),
+    then the earliest columns. This merges alternatives that differ in one condition ((A and x) or
+    (A and not x) -> A), drops conditions another implies (``field is "a"`` implies ``field is not "b"``),
+    and drops a path that another contains.
+
+    Parameters
+    ----------
+    paths : sequence of sequence of (int, bool)
+        Each path is a conjunction of (column, present?) conditions; the rule is their disjunction.
+    exclusive : sequence of frozenset of int
+        Groups of columns of which at most one is present in any row.
+
+    Returns
+    -------
+    tuple of tuple of (int, bool)
+        The simplified terms, positive conditions first within a term; terms in the order of the first
+        path each overlaps. () when the paths can never hold; ((),) when they always hold.
+    """
+    order: dict[int, int] = {}
+    for path in paths:
+        for column, _ in path:
+            order.setdefault(column, len(order))
+    columns = sorted(order, key=order.__getitem__)
+    if len(columns) > MAX_EXACT_VARIABLES:
+        return tuple(dict.fromkeys(tuple(p) for p in paths))
+    n = len(columns)
+    position = {c: i for i, c in enumerate(columns)}
+    groups = [[position[c] for c in g if c in position] for g in exclusive]
+    groups = [g for g in groups if len(g) > 1]
+
+    def possible(bits: int) -> bool:
+        return all(sum((bits >> i) & 1 for i in g) <= 1 for g in groups)
+
+    def holds(term: Sequence[Literal], bits: int) -> bool:
+        return all(bool((bits >> position[c]) & 1) == present for c, present in term)
+
+    on = [b for b in range(1 << n) if possible(b) and any(holds(p, b) for p in paths)]
+    off = [b for b in range(1 << n) if possible(b) and not any(holds(p, b) for p in paths)]
+    if not on:
+        return ()
+    if not off:
+        return ((),)
+    implicants = []
+    for code in itertools.product((None, True, False), repeat=n):
+        term = tuple((columns[i], v) for i, v in enumerate(code) if v is not None)
+        if not any(holds(term, b) for b in off):
+            covered = frozenset(b for b in on if holds(term, b))
+            if covered:
+                implicants.append((term, covered))
+    known = {frozenset(t) for t, _ in implicants}
+    # prime: dropping any one condition lets a false assignment in (any shorter implicant would be known)
+    primes = [(t, cov) for t, cov in implicants if not any(frozenset(t) - {lit} in known for lit in t)]
+    everything = frozenset(on)
+    for size in range(1, len(primes) + 1):
+        covers = [combo for combo in itertools.combinations(primes, size)
+                  if frozenset().union(*(cov for _, cov in combo)) == everything]
+        if covers:
+            best = min(covers, key=lambda combo: _cover_cost([t for t, _ in combo], order))
+            return _ordered([t for t, _ in best], paths, order, position)
+    raise AssertionError("the primes always cover the true assignments")  # pragma: no cover
+
+
+def _cover_cost(terms: Sequence[Sequence[Literal]], order: Mapping[int, int]) -> tuple[int, int, list[int]]:
+    """Fewer conditions, then fewer negations, then earlier columns."""
+    literals = [lit for term in terms for lit in term]
+    return (len(literals), sum(1 for _, present in literals if not present), sorted(order[c] for c, _ in literals))
+
+
+def _ordered(
+    terms: Sequence[Sequence[Literal]], paths: Sequence[Sequence[Literal]], order: Mapping[int, int],
+    position: Mapping[int, int],
+) -> tuple[tuple[Literal, ...], ...]:
+    """Positive conditions first in each term (then column order); terms by the first path each overlaps."""
+
+    def overlaps(term: Sequence[Literal], path: Sequence[Literal]) -> bool:
+        wanted = dict(term)
+        return all(wanted.get(c, present) == present for c, present in path)
+
+    def first_path(term: Sequence[Literal]) -> int:
+        return next((i for i, p in enumerate(paths) if overlaps(term, p)), len(paths))
+
+    tidy = [tuple(sorted(term, key=lambda lit: (not lit[1], order[lit[0]]))) for term in terms]
+    return tuple(sorted(tidy, key=lambda t: (first_path(t), [order[c] for c, _ in t])))
+
+
+def rule_words(terms: Sequence[Sequence[Literal]], columns: _Columns) -> str:
+    """The rule as one sentence: "Documents that mention "a" and "b" but not "c", whose channel is "chat"."."""
+    if not terms:
+        return ""
+    if len(terms) > 1:
+        common = [lit for lit in terms[0] if all(lit in term for term in terms[1:])]
+        rest = [[lit for lit in term if lit not in common] for term in terms]
+        if all(len(r) == 1 and _is_word(r[0], columns) for r in rest) and all(_is_word(c, columns) for c in common):
+            either = _joined([f'"{columns.shown[r[0][0]]}"' for r in rest], "or")
+            if not common:  # "a" or "b" or "c"
+                return f"Documents that mention {either}."
+            said = _joined([f'"{columns.shown[j]}"' for j, _ in common], "and")
+            return f"Documents that mention {said} and either {either}."
+    clauses = [_clause(term, columns) for term in terms]
+    return "Documents " + "; or documents ".join(clauses) + "."
+
+
+def _is_word(literal: Literal, columns: _Columns) -> bool:
+    """A "mentions" condition on a term (not a negation, not a table column)."""
+    return literal[1] and not columns.field[literal[0]]
+
+
+def _clause(term: Sequence[Literal], columns: _Columns) -> str:
+    """One term in words: what the documents mention and what their fields hold."""
+    if not term:
+        return "of any kind"
+    said = [f'"{columns.shown[j]}"' for j, present in term if present and not columns.field[j]]
+    unsaid = [f'"{columns.shown[j]}"' for j, present in term if not present and not columns.field[j]]
+    fields = [f'{columns.field[j]} is{"" if present else " not"} "{columns.shown[j]}"'
+              for j, present in term if columns.field[j]]
+    parts = []
+    if said:
+        parts.append("that mention " + _joined(said, "and") + (" but not " + _joined(unsaid, "or") if unsaid else ""))
+    elif unsaid:
+        parts.append("that mention neither " + _joined(unsaid, "nor") if len(unsaid) > 1
+                     else "that do not mention " + unsaid[0])
+    if fields:
+        parts.append("whose " + _joined(fields, "and"))
+    return ", ".join(parts)
+
+
+def _joined(items: Sequence[str], word: str) -> str:
+    """"a", "a and b", "a, b and c"."""
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + f" {word} " + items[-1]

@@ -1,8 +1,10 @@
 """Describing stage: what each cluster is, with evidence.
 
-Per cluster: size and share, the member nearest the centroid as headline plus the next four,
-discriminating terms by chi-square and by log-odds with an informative Dirichlet prior, and
-keyword-in-context lines for the top terms.
+Per cluster: size and share, the five members nearest the centroid, a headline (`describe.headlines`:
+the title or sentence of a near member that carries the cluster's terms), discriminating terms by
+chi-square and by log-odds with an informative Dirichlet prior, keyword-in-context lines for the top
+terms, a suggested name from terms common among the members, and a flag when the cluster has no
+common theme (`mixed_reason`).
 """
 
 from __future__ import annotations
@@ -13,8 +15,11 @@ import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering.kmeans import Clustering, cluster_sums
+from pilewise.clustering.levels import Levels
 from pilewise.clustering.stability import StabilityResult
+from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
 from pilewise.describe.kwic import kwic_line
+from pilewise.describe.names import suggested_name_from
 from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
 from pilewise.vectors.text import Analyzer
@@ -26,6 +31,12 @@ KWIC_LINES_PER_TERM = 5
 KWIC_HOLDERS_KEPT = 20  # members holding a top term kept per cluster and term, nearest first
 ROW_BLOCK = 65_536  # rows per block in passes over all rows
 PRIOR_MASS = 1000.0  # Dirichlet pseudo-counts in all; our choice, see docs/method.md
+THEME_TERMS = 30  # distinguishing terms searched for a common one (and for the name), whatever --top-terms
+# A cluster is mixed when none of its THEME_TERMS best chi-square terms occurs in this share of its members,
+# or when its members' mean cosine similarity to the centroid is below COHESION_RATIO times the median of
+# the other clusters'. Our choices, measured on open collections: see docs/method.md.
+THEME_MIN_SHARE = 0.25
+COHESION_RATIO = 0.5
 
 
 def describe_clusters(
@@ -55,7 +66,7 @@ def describe_clusters(
     prior = informative_prior(counts_all, PRIOR_MASS)
     shown = tuple(analyzer.surface(t) for t in vectors.terms)
     column_of = {key: i for i, key in enumerate(vectors.terms)}
-    digest = NearestDigest(NEAREST_SHOWN)
+    digest = NearestDigest(max(NEAREST_SHOWN, HEADLINE_CANDIDATES))
     for begin in range(0, labels.size, ROW_BLOCK):
         rows = np.arange(begin, min(begin + ROW_BLOCK, labels.size))
         digest.update(rows, labels[rows], clustering.distances[rows])
@@ -68,25 +79,35 @@ def describe_clusters(
         df_in = df_by_cluster[c].toarray().ravel()
         counts_in = counts_by_cluster[c].toarray().ravel()
         terms_of.append((
-            _chi2_terms(df_in, df_all, size, total, shown, vectors.terms, top_terms),
+            _chi2_terms(df_in, df_all, size, total, shown, vectors.terms, max(top_terms, THEME_TERMS)),
             _log_odds_terms(counts_in, counts_all - counts_in, prior, df_in, df_all, size, total, shown,
                             vectors.terms, top_terms),
         ))
     pairs = [(c, column_of[t.key]) for c, (chi2, _) in enumerate(terms_of) for t in chi2[:KWIC_TERMS]]
     holders = term_holders(vectors.counts, labels, clustering.distances, pairs, KWIC_HOLDERS_KEPT)
     key_of = {pair: i for i, pair in enumerate(pairs)}
+    near_docs = [[int(collection.first_doc_of_text[t]) for t in digest.nearest(c)[0]] for c in range(k)]
+    headlines = choose_headlines(
+        near_docs, [chi2 for chi2, _ in terms_of],
+        title_of=lambda d: collection.documents[d].title, text_of=lambda d: collection.documents[d].text,
+        keys_of=lambda text: [key for _, _, key in analyzer.spans(text)],
+    )
+    similarity = 1.0 - mean_distance
     summaries = []
     for c in range(k):
         size = float(sizes[c])
         near_rows, near_distances = digest.nearest(c)
         nearest = tuple(Neighbour(int(collection.first_doc_of_text[t]), float(d))
-                        for t, d in zip(near_rows, near_distances, strict=True))
-        chi2_terms, log_odds_terms = terms_of[c]
+                        for t, d in zip(near_rows[:NEAREST_SHOWN], near_distances[:NEAREST_SHOWN], strict=True))
+        theme_terms, log_odds_terms = terms_of[c]
+        chi2_terms = theme_terms[:top_terms]
+        others = np.delete(similarity, c)
+        reason = mixed_reason(theme_terms, float(similarity[c]), float(np.median(others)) if others.size else None)
+        name = suggested_name_from(theme_terms, mixed=bool(reason))
         kwic = _kwic_for(
             [(t, holders.nearest(key_of[c, column_of[t.key]])[0]) for t in chi2_terms[:KWIC_TERMS]],
             collection, analyzer,
         )
-        headline_doc = collection.documents[nearest[0].doc_index]
         silhouette = quality.per_cluster_silhouette[c] if c < len(quality.per_cluster_silhouette) else None
         summaries.append(
             ClusterSummary(
@@ -94,7 +115,7 @@ def describe_clusters(
                 size=int(round(size)),
                 share=size / total,
                 distinct_texts=int(members_per_cluster[c]),
-                headline=headline_doc.title,
+                headline=headlines[c].text,
                 nearest=nearest,
                 chi2_terms=chi2_terms,
                 log_odds_terms=log_odds_terms,
@@ -103,9 +124,72 @@ def describe_clusters(
                 silhouette=None if silhouette is None or np.isnan(silhouette) else float(silhouette),
                 stability=_stability_value(stability, c),
                 stability_reading=stability.clusters[c].reading if stability else "",
+                headline_source=headlines[c].source,
+                headline_doc=headlines[c].doc_index,
+                mixed=bool(reason),
+                mixed_reason=reason,
+                suggested_name=name.text,
+                name_terms=name.terms,
             )
         )
     return tuple(summaries)
+
+
+LEVEL_TERMS = 5  # terms that describe a cluster of a coarser or finer cut
+
+
+def level_terms(
+    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS
+) -> dict[int, tuple[tuple[str, ...], ...]]:
+    """For every cut of `levels`, each cluster's `top` terms by chi-square (as in `describe_clusters`).
+
+    The cuts of one tree nest, so the document frequencies of the finest cut (one pass over the rows)
+    are summed into those of every coarser cut.
+    """
+    if not levels.cuts:
+        return {}
+    finest_k = max(levels.cuts)
+    finest = levels.cuts[finest_k]
+    df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
+    size_fine = np.bincount(finest, weights=weights, minlength=finest_k)
+    df_all = np.asarray(df_fine.sum(axis=0)).ravel()
+    total = float(weights.sum())
+    first_row = np.full(finest_k, -1)
+    first_row[finest[::-1]] = np.arange(finest.size)[::-1]  # a row of every fine cluster (the first)
+    out: dict[int, tuple[tuple[str, ...], ...]] = {}
+    for k, cut in sorted(levels.cuts.items()):
+        present = first_row >= 0
+        coarse_of_fine = np.zeros(finest_k, dtype=np.int64)
+        coarse_of_fine[present] = cut[first_row[present]]
+        merge = sp.csr_matrix((np.ones(finest_k), (coarse_of_fine, np.arange(finest_k))), shape=(k, finest_k))
+        df_k = sp.csr_matrix(merge @ df_fine)
+        sizes = merge @ size_fine
+        out[k] = tuple(
+            tuple(t.term for t in _chi2_terms(df_k[c].toarray().ravel(), df_all, float(sizes[c]), total, shown,
+                                              shown, top))
+            for c in range(k)
+        )
+    return out
+
+
+def mixed_reason(theme_terms: Sequence[TermScore], similarity: float, others_median: float | None) -> str:
+    """Why a cluster has no common theme, in plain words; "" when it has one.
+
+    Two signs, either enough: none of the cluster's best distinguishing terms (`theme_terms`, chi-square)
+    occurs in THEME_MIN_SHARE of its members; or the members' mean cosine similarity to the centroid is
+    below COHESION_RATIO times the median of the other clusters' (`others_median`; None with one cluster).
+    """
+    reasons = []
+    top = max(theme_terms, key=lambda t: t.share_in, default=None)
+    if top is None:
+        reasons.append("no term is more common in it than outside")
+    elif top.share_in < THEME_MIN_SHARE:
+        reasons.append(f"no distinguishing term occurs in {THEME_MIN_SHARE:.0%} of its documents "
+                       f"(the most common, \"{top.term}\", in {top.share_in:.0%})")
+    if others_median is not None and others_median > 0 and similarity < COHESION_RATIO * others_median:
+        reasons.append(f"its documents' mean similarity to the centroid, {similarity:.2f}, is under "
+                       f"{COHESION_RATIO:g} times the other clusters' median ({others_median:.2f})")
+    return "; ".join(reasons)
 
 
 def cluster_term_totals(

@@ -59,7 +59,9 @@ def levels_document(result: RunResult) -> dict[str, Any]:
         "k_range": [levels.k_min, levels.k_max],
         "levels": [
             {"k": k, "clusters": [
-                {"id": c.cluster_id, "size": c.size, "headline": docs[first[c.exemplar_text]].title,
+                {"id": c.cluster_id, "size": c.size,
+                 "terms": list(levels.terms[k][c.cluster_id]) if k in levels.terms else [],
+                 "headline": docs[first[c.exemplar_text]].title,
                  "exemplar_doc_id": docs[first[c.exemplar_text]].doc_id, "run_clusters": list(c.run_clusters)}
                 for c in clusters]}
             for k, clusters in sorted(levels.clusters.items())
@@ -165,6 +167,11 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         "share": _round(cluster.share, 4),
         "distinct_texts": cluster.distinct_texts,
         "headline": cluster.headline,
+        "headline_source": cluster.headline_source,
+        "headline_doc_id": docs[cluster.headline_doc].doc_id if cluster.headline_doc >= 0 else "",
+        "mixed": cluster.mixed,
+        "mixed_reason": cluster.mixed_reason,
+        "name_terms": [{"term": t, "share_in": _round(share, 4)} for t, share in cluster.name_terms],
         "exemplar": {"doc_id": exemplar.doc_id, "title": exemplar.title,
                      "distance": _round(cluster.nearest[0].distance)},
         "nearest": [{"doc_id": docs[n.doc_index].doc_id, "title": docs[n.doc_index].title,
@@ -217,7 +224,8 @@ def trends_document(result: RunResult) -> dict[str, Any] | None:
 
 def _rule_record(result: RunResult, c: int) -> dict[str, Any]:
     rule = result.rules.rules[c]
-    return {"text": rule.rule_text, "precision": _round(rule.precision, 4), "coverage": _round(rule.coverage, 4),
+    return {"text": rule.rule_text, "words": rule.rule_words, "precision": _round(rule.precision, 4),
+            "coverage": _round(rule.coverage, 4),
             "no_rule_reason": rule.no_rule_reason}
 
 

@@ -176,18 +176,25 @@ def _render_levels(folder: Path, result: RunResult, env: Environment, common: di
     first = result.collection.first_doc_of_text
     (folder / "dendrogram.svg").write_text(levels.dendrogram, encoding="utf-8")
 
-    def headline(k: int, cluster: int) -> str:
-        return str(docs[first[levels.clusters[k][cluster].exemplar_text]].title)
+    def described(k: int, cluster: int) -> str:
+        """A cut's cluster by its terms (a coarse cluster is many documents: no one document stands for it)."""
+        terms = levels.terms.get(k, ())
+        if cluster < len(terms) and terms[cluster]:
+            return ", ".join(terms[cluster])
+        return str(docs[first[levels.clusters[k][cluster].exemplar_text]].title)  # no terms computed
 
+    names = {c.cluster_id: c.shown for c in result.naming.clusters}
     splits = [
-        {"k": s.k, "parent": s.parent, "parent_size": s.parent_size, "parent_headline": headline(s.k, s.parent),
-         "children": [{"id": c, "size": n, "headline": headline(s.k + 1, c)} for c, n in s.children]}
+        {"k": s.k, "parent": s.parent, "parent_size": s.parent_size, "parent_terms": described(s.k, s.parent),
+         "children": [{"id": c, "size": n, "terms": described(s.k + 1, c)} for c, n in s.children]}
         for s in levels.splits
     ]
     rows = [
         {"k": k, "sizes": ", ".join(f"{c.size:,}" for c in clusters),
-         "clusters": [{"id": c.cluster_id, "size": c.size, "headline": headline(k, c.cluster_id),
-                       "run_clusters": [{"id": r, "href": cluster_page_name(r)} for r in c.run_clusters]}
+         "clusters": [{"id": c.cluster_id, "size": c.size, "terms": described(k, c.cluster_id),
+                       "run_clusters": [{"id": r, "href": cluster_page_name(r), "name": names.get(r, ""),
+                                         "mixed": result.clusters[r].mixed}
+                                        for r in c.run_clusters]}
                       for c in clusters]}
         for k, clusters in sorted(levels.clusters.items())
     ]
@@ -250,13 +257,17 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     return {
         "id": cluster.cluster_id,
         "name": naming.name,
-        "title": naming.name or cluster.headline,
+        # an unnamed mixed cluster's headline is one corner of it: the title says so
+        "title": naming.name or (f"(mixed) {cluster.headline}" if cluster.mixed else cluster.headline),
         "suggested": naming.suggested,
         "name_origin": naming.origin,
         "name_note": naming.note,
         "name_flag": naming.flag,
         "href": cluster_page_name(cluster.cluster_id),
         "headline": cluster.headline,
+        "headline_note": _headline_note(cluster, result),
+        "mixed": cluster.mixed,
+        "mixed_reason": cluster.mixed_reason,
         "size": cluster.size,
         "share": cluster.share,
         "bar": round(100 * cluster.share / largest, 1),
@@ -267,6 +278,17 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "stability_class": "stab-" + cluster.stability_reading.split(",")[0].replace(" ", "-"),
         "rule": result.rules.rules[cluster.cluster_id],
     }
+
+
+def _headline_note(cluster: ClusterSummary, result: RunResult) -> str:
+    """Where the headline comes from, in one sentence."""
+    if cluster.headline_source == "terms":
+        return "The headline lists top terms: no title or sentence of the nearest members carries them."
+    doc = result.collection.documents[cluster.headline_doc]
+    what = "the title" if cluster.headline_source == "title" else "a sentence"
+    doc_id = private_text(doc.doc_id) if result.options.redact else doc.doc_id  # ids may hold personal data
+    return (f"The headline is {what} of {doc_id}, the member among the nearest that carries most of "
+            "the cluster's terms.")
 
 
 def _member_row(
