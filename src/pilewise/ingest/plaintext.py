@@ -91,9 +91,10 @@ def first_line_title(text: str) -> str:
 _OVERSTRIKE = re.compile(r"[^\x08\n]\x08")
 # A word broken at the end of a line: letters (maybe already holding hyphens), a hyphen (ASCII, U+2010
 # HYPHEN as groff writes it, or U+00AD SOFT HYPHEN), the line break with the next line's indentation, and
-# the rest of the word (one space after it is taken too: the line break comes there instead).
+# the rest of the word with punctuation glued to it (and one space after them: the line break comes there
+# instead).
 _BROKEN_WORD = re.compile(
-    r"(?<![\w\-\u2010])([^\W\d_]+(?:[\-\u2010][^\W\d_]+)*)([\-\u2010\u00ad])[^\S\n]*(\r?\n[^\S\n]*)([^\W\d_]+(?:-[^\W\d_]+)*)(?:[^\S\n](?=\S))?"
+    r"(?<![\w\u2010])([^\W\d_]+(?:[\-\u2010][^\W\d_]+)*)([\-\u2010\u00ad])[^\S\n]*(\r?\n[^\S\n]*)([^\W\d_]+(?:-[^\W\d_]+)*)([^\w\s]*)(?:[^\S\n](?=\S))?"
 )
 _INNER_HYPHEN = re.compile(r"(?<=[^\W\d_])[\u2010\u2011](?=[^\W\d_])")  # typeset hyphens inside a word
 
@@ -122,14 +123,16 @@ def clean_text(text: str) -> str:
 
 def _rejoined(m: re.Match[str], text: str) -> str:
     """The word broken at match `m` of `_BROKEN_WORD`, whole, then the line break that split it."""
-    first, hyphen, newline, second = m.groups()
+    first, hyphen, newline, second, glued = m.groups()
     typeset = hyphen != "-"
+    after_hyphen = m.start() > 0 and m.string[m.start() - 1] == "-"  # "--no-" then "wrap": an option's parts
     keep_hyphen = (
         not second[0].islower()
         or "-" in first
+        or (not typeset and after_hyphen)
         or (not typeset and f"{first}-{second}".lower() in text.lower())
     )
-    word = f"{first}-{second}" if keep_hyphen else first + second
+    word = (f"{first}-{second}" if keep_hyphen else first + second) + glued
     rest = text[m.end() : m.end() + 2]
     # a word that ended its line leaves no empty line behind (which would read as a paragraph break)
     return word if rest[:1] in ("", "\n") or rest == "\r\n" else word + newline
