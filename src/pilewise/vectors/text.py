@@ -25,6 +25,7 @@ TOKEN_PATTERN = r"[^\W\d_]+(?:['\-][^\W\d_]+)*"
 # "break" item, which `normalize` never keeps, so that a phrase is two kept words with only white space
 # (at most one line break) between them; see `joined_to_previous`.
 BREAK_PATTERN = r"[^\w\s]+|[\d_]+|\n[^\S\n]*\n"
+_WORD_START = re.compile(r"[^\W\d_]")  # how every token of TOKEN_PATTERN starts, and no break item
 _MISSING = object()
 
 
@@ -78,7 +79,7 @@ class Analyzer:
         if word.endswith("'s"):
             word = word[:-2]  # possessive: "courier's" counts as "courier"
         if (
-            not word[:1].isalpha()  # a phrase break from `words` (punctuation, a number, a blank line)
+            _WORD_START.match(word) is None  # a phrase break from `words` (punctuation, a number, a blank line)
             or word in self.stop_words
             or word.startswith(PLACEHOLDER_PREFIX)
             or len(word) < 2
