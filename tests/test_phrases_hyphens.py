@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from helpers import read
+from helpers import invoke, read, read_json
 from pilewise.ingest.plaintext import clean_text
 from pilewise.vectors.text import TOKEN_PATTERN, Analyzer, load_stop_words
 from pilewise.vectors.tfidf import VectorSettings, count_terms, vectorize
@@ -125,3 +125,26 @@ def test_a_saved_manual_page_reads_clean(tmp_path: Path) -> None:
     assert set(re.findall(r"[^\W\d_]+", docs[0].text)) >= {"extraordinarily"}
     assert not {w for w in re.findall(r"[^\W\d_]+", docs[0].text) if "extraordinarily".startswith(w)} - {
         "extraordinarily", "a"}
+
+
+def test_both_modes_count_the_joined_words(tmp_path: Path) -> None:
+    """Cleaning is done by the readers, which memory and streaming mode share: neither counts a broken word."""
+    folder = tmp_path / "notes"
+    folder.mkdir()
+    rng = random.Random(5)
+    topics = [("garden", "compost soil watering mulch", "seed-\n  lings"),
+              ("bicycle", "chain brakes gears pedals", "handle-\n  bars")]
+    for i in range(40):
+        name, words, broken = topics[i % 2]
+        body = " ".join(rng.sample(words.split(), 3))
+        (folder / f"{i:02d}.txt").write_text(f"Note {i} on the {name}\nabout {body} and the {broken} today\n",
+                                             encoding="utf-8")
+    for mode in ("memory", "stream"):
+        out = tmp_path / f"site-{mode}"
+        result = invoke("run", str(folder), "--k", "2", "--mode", mode, "--out", str(out), "--quiet")
+        assert result.exit_code == 0, result.stderr
+        clusters = read_json(out / "runs" / "k2" / "clusters.json")["clusters"]
+        terms = {t["term"] for c in clusters for t in c["terms"]["chi2"] + c["terms"]["log_odds"]}
+        words = {w for t in terms for w in t.split(" ")}
+        assert not words & {"seed", "lings", "handle", "bars"}, (mode, terms)
+        assert words >= {"seedlings", "handlebars"}, (mode, terms)
