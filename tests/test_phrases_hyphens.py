@@ -10,6 +10,8 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from helpers import invoke, read, read_json
 from pilewise.ingest.plaintext import clean_text
@@ -148,3 +150,23 @@ def test_both_modes_count_the_joined_words(tmp_path: Path) -> None:
         words = {w for t in terms for w in t.split(" ")}
         assert not words & {"seed", "lings", "handle", "bars"}, (mode, terms)
         assert words >= {"seedlings", "handlebars"}, (mode, terms)
+
+
+_PIECES = st.lists(st.sampled_from(["excep", "tion", "well", "known", "Jean", "-", "\u2010", "\n", "  ", "\b", "_",
+                                    "N", ",", "1", " ", "\r\n", "e", "mail", "\u00ad", "\r"]), max_size=40).map("".join)
+
+
+@given(_PIECES)
+def test_cleaning_is_idempotent(text: str) -> None:
+    """Property: cleaning a cleaned text changes nothing (so a text read twice reads the same)."""
+    assert clean_text(clean_text(text)) == clean_text(text)
+
+
+@given(st.text(alphabet=st.characters(blacklist_characters="-\u2010\u2011\u00ad\b")))
+def test_text_without_hyphens_or_backspaces_is_left_as_it_is(text: str) -> None:
+    assert clean_text(text) == text
+
+
+def test_a_word_broken_over_three_lines_is_joined() -> None:
+    """Regression: found by the idempotence property; one pass joined only the first break."""
+    assert clean_text("excep-\nexcep-\nexcep") == "excepexcepexcep"

@@ -116,9 +116,10 @@ def clean_text(text: str) -> str:
         text = _OVERSTRIKE.sub("", text).replace("\x08", "")
     if "\u2010" in text or "\u2011" in text:
         text = _INNER_HYPHEN.sub("-", text)
-    if "\n" not in text or _BROKEN_WORD.search(text) is None:
-        return text
-    return _BROKEN_WORD.sub(lambda m: _rejoined(m, text), text)
+    # a word broken over three lines ("ex-", "cep-", "tion") is joined one break per pass
+    while "\n" in text and _BROKEN_WORD.search(text) is not None:
+        text = _BROKEN_WORD.sub(lambda m: _rejoined(m, m.string), text)
+    return text
 
 
 def _rejoined(m: re.Match[str], text: str) -> str:
