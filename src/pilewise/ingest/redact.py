@@ -453,7 +453,8 @@ def _ipv4_spans(text: str, clusters: list[tuple[int, int]]) -> list[tuple[int, i
     for start, end in clusters:
         if end - start >= 7 and text.count(".", start, end) >= 3:
             for m in _IPV4.finditer(text, start, end + 2):
-                if all(_octet(part) for part in m.groups()) and not _NUMBERED_PART.search(text, 0, m.start()):
+                before = text[max(0, m.start() - 30) : m.start()]
+                if all(_octet(part) for part in m.groups()) and not _NUMBERED_PART.search(before):
                     spans.append(m.span())
     return spans
 
@@ -464,10 +465,11 @@ def _octet(part: str) -> bool:
 
 
 # Words after which dotted numbers are a numbered part or a release, not an address: "section 5.11.2.2",
-# "§ 4.1.2.3", "version 1.2.3.4", "v 2.0.1.1", "release", "chapter", "figure", "table", "clause", "rule".
+# "§ 4.1.2.3", "version 1.2.3.4", "v 2.0.1.1", "release", "chapter", "figure", "table", "clause". Words that
+# may stand before an address in a log ("rule", "host", "from") are not in the list.
 _NUMBERED_PART = re.compile(
     r"(?i)(?:\b(?:sections?|sect?|§§?|versions?|vers?|v|releases?|rel|builds?|chapters?|ch|figures?|figs?|tables?"
-    r"|clauses?|paragraphs?|paras?|articles?|arts?|rules?|items?|steps?|parts?|appendix|annex|rfc)\.?|§)\s*\Z"
+    r"|clauses?|paragraphs?|paras?|articles?|arts?|appendix|annex|rfc)\.?|§)\s*\Z"
 )
 
 
