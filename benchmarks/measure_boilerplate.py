@@ -2,6 +2,12 @@
 on generated templated tickets. Figures go into docs/method.md ("Boilerplate lines").
 
     PILEWISE_CORPORA=corpora/.cache PYTHONPATH=src python benchmarks/measure_boilerplate.py
+    PYTHONPATH=src python benchmarks/measure_boilerplate.py headers FOLDER [FOLDER ...]
+
+The second form counts repeated headers and footers (first and last non-empty line of each text) found as
+boilerplate in folders of real files (manual pages rendered by man, licence files), with lines matched as
+written ("as written") and as patterns (dedup.normalize_line: numbers, dates and the document's own name
+replaced; "patterns").
 
 "Old" is the rule before issue 10 (every boilerplate line removed from every text); "new" keeps the
 lines that are most of a text's content (dedup.strip_boilerplate); "off" is --keep-boilerplate.
@@ -25,8 +31,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))  # the op
 import open_sets
 from pilewise import pipeline
 from pilewise.cli import app
-from pilewise.ingest.dedup import Boilerplate, Stripped, find_boilerplate, normalize_line, strip_texts
+from pilewise.ingest import dedup
+from pilewise.ingest.dedup import Boilerplate, Stripped, find_boilerplate, line_keys, normalize_line, strip_texts
+from pilewise.ingest.reading import ReadLimits, read_source
 from pilewise.ingest.redact import redact_document
+from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Document
 
 SEEDS = (0, 1, 2)
@@ -103,7 +112,38 @@ def nmi_of_run(texts: list[str], labels: list[str], k: int, seed: int, variant: 
         return f"{normalized_mutual_info_score([truth[r['doc_id']] for r in rows], [r['cluster'] for r in rows]):.3f}"
 
 
+def _as_written(line: str, own_names: frozenset[str] = frozenset()) -> str:
+    """The line matching before issue 11: white space collapsed and lower-cased, no patterns."""
+    return " ".join(line.split()).lower()
+
+
+def header_footer_figures(texts: list[str]) -> dict[str, int]:
+    """Boilerplate lines found, and texts whose first / last non-empty line is one of them, and lines removed."""
+    found = find_boilerplate(texts)
+    stripped = strip_texts(texts, found)
+    headers = footers = 0
+    for text in texts:
+        keys = [key for key, line in zip(line_keys(text), text.splitlines(), strict=True) if line.strip()]
+        headers += bool(keys) and keys[0] in found.normalized
+        footers += bool(keys) and keys[-1] in found.normalized
+    return {"texts": len(texts), "boilerplate_lines": len(found.lines), "texts_with_header_found": headers,
+            "texts_with_footer_found": footers, "lines_removed": stripped.lines_removed,
+            "texts_changed": stripped.texts_changed, "lines_kept": stripped.lines_kept}
+
+
+def headers_main(folders: list[str]) -> None:
+    for folder in folders:
+        docs = read_source(Path(folder), ColumnChoice(), ReadLimits()).documents
+        texts = list({" ".join(doc.text.split()): doc.text for doc in docs}.values())  # distinct, as the run
+        with mock.patch.object(dedup, "normalize_line", _as_written):
+            print(folder, "as written:", header_footer_figures(texts))
+        print(folder, "patterns:  ", header_footer_figures(texts))
+
+
 def main() -> None:
+    if sys.argv[1:2] == ["headers"]:
+        headers_main(sys.argv[2:])
+        return
     sets: list[tuple[str, list[str], list[str], int]] = []
     for loader in (open_sets.load_mini_newsgroups, open_sets.load_reuters_sample):
         try:

@@ -442,9 +442,59 @@ class Boilerplate:
 NO_BOILERPLATE = Boilerplate((), BOILERPLATE_MIN_SHARE)
 
 
-def normalize_line(line: str) -> str:
-    """A line as matched against boilerplate: whitespace runs collapsed to one space, trimmed, lower-cased."""
-    return " ".join(line.split()).lower()
+# Versions, dates and years, which differ between copies of one template ("GNU coreutils 9.1", "v5.36.0",
+# "2023-03-01", "September 2022", "2019-2023"): digits joined by dots, hyphens, slashes or colons, and
+# years 1900-2099, become "#". A plain whole number ("ticket 1042") stays: a line that differs from others
+# only in an id or a count is as often content (a notification's text) as a template.
+_NUMBERISH = re.compile(r"(?<!\w)v?\d+(?:[.\-/:]\d+)+|(?<!\d)(?:19|20)\d\d(?!\d)")
+# Month names before a number ("September 2022", "May 12"): only there, so that the verb "may" stays a word.
+_MONTH = re.compile(
+    r"\b(?:jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|july?|aug(?:ust)?|sep(?:t(?:ember)?)?"
+    r"|oct(?:ober)?|nov(?:ember)?|dec(?:ember)?)\.?(?=\s?#)"
+)
+# A manual page's own name in its header line, "LS(1)" or "git-commit(1)": NAME(section).
+_OWN_NAME = re.compile(r"(?<![\w.+\-])([\w.+\-]*\w)\((\d\w*)\)")
+# A line made a pattern (numbers, dates or the document's name replaced) must keep this many letters, so
+# that rows of a numeric table ("1 2 3 4 5 ...") do not become one line; a footer such as
+# "perl v5.36.0  2023-03-01  LWP-REQUEST(1p)" keeps 6 ("perl", "v", "p").
+BOILERPLATE_PATTERN_LETTERS = 5
+
+
+def normalize_line(line: str, own_names: frozenset[str] = frozenset()) -> str:
+    """A line as matched against boilerplate: white space collapsed, lower-cased, and made a pattern.
+
+    Lines that differ only in versions, dates and years, or in the document's own name, are the same
+    template line: every version or date (digits joined by ``.-/:``) and year becomes "#", a month name before it
+    becomes "<month>", and each of `own_names` (lower-case; see `own_names`) becomes "<name>". A line that
+    changed keeps its pattern only if it holds at least BOILERPLATE_PATTERN_LETTERS letters outside the
+    replaced parts; otherwise it is matched as written.
+    """
+    plain = " ".join(line.split()).lower()
+    pattern = plain
+    for name in own_names:
+        if name in pattern:
+            pattern = re.sub(rf"(?<![\w\-]){re.escape(name)}(?![\w\-])", "<name>", pattern)
+    if any(char.isdigit() for char in pattern):
+        pattern = _MONTH.sub("<month>", _NUMBERISH.sub("#", pattern))
+    if pattern == plain:
+        return plain
+    letters = sum(char.isalpha() for char in pattern.replace("<name>", "").replace("<month>", ""))
+    return pattern if letters >= BOILERPLATE_PATTERN_LETTERS else plain
+
+
+def own_names(text: str) -> frozenset[str]:
+    """The document's own name as its header gives it: NAME of every NAME(section) in its first non-empty
+    line, lower-cased (a manual page's "LS(1)  User Commands  LS(1)" gives "ls")."""
+    for line in text.splitlines():
+        if line.strip():
+            return frozenset(m.group(1).lower() for m in _OWN_NAME.finditer(line))
+    return frozenset()
+
+
+def line_keys(text: str) -> list[str]:
+    """`normalize_line` of every line of `text` (as split by ``str.splitlines``), with the text's own name."""
+    names = own_names(text)
+    return [normalize_line(line, names) for line in text.splitlines()]
 
 
 def find_boilerplate(
@@ -459,7 +509,8 @@ def find_boilerplate(
     Common practice in cleaning web and e-mail text: a line repeated verbatim across many documents is
     a template, not content (e.g. Wenzek et al. 2020, "CCNet", LREC, remove lines repeated across
     documents after normalizing them; cited from memory). Lines are normalized with `normalize_line`
-    and counted once per text, in one pass with a Counter.
+    (with each text's `own_names`), so that headers and footers differing only in versions, dates or the
+    document's name count as one line, and counted once per text, in one pass with a Counter.
 
     Defaults: a line in >= 5% of the texts and >= 5 texts. The share finds a company footer or a busy
     agent's signature; the floor of 5 texts keeps a small collection from losing lines that two or
@@ -500,7 +551,9 @@ def find_boilerplate(
         raise ValueError("; ".join(problems))
     counts: Counter[str] = Counter()
     for text in texts:
-        counts.update({key for line in text.splitlines() if len(key := normalize_line(line)) >= min_chars})
+        names = own_names(text)
+        counts.update({normalize_line(line, names) for line in text.splitlines()
+                       if len(" ".join(line.split())) >= min_chars})  # the length as written, not of the pattern
     # Rounded first so that, say, 0.07 * 100 asks for 7 texts and not 8.
     needed = max(min_docs, math.ceil(round(min_share * len(texts), 9)))
     lines = sorted(((line, count) for line, count in counts.items() if count >= needed),
@@ -525,7 +578,8 @@ def strip_boilerplate(text: str, boilerplate: Boilerplate) -> str:
     if not boilerplate.lines:
         return text
     lines = text.splitlines(keepends=True)
-    keys = [normalize_line(line) for line in lines]
+    names = own_names(text)
+    keys = [normalize_line(line, names) for line in lines]
     found = [i for i, key in enumerate(keys) if key in boilerplate.normalized]
     if not found:
         return text
@@ -568,8 +622,8 @@ def strip_texts(texts: Sequence[str], boilerplate: Boilerplate) -> Stripped:
     for text in texts:
         stripped = strip_boilerplate(text, boilerplate)
         out.append(stripped)
-        before = sum(normalize_line(line) in boilerplate.normalized for line in text.splitlines())
-        after = sum(normalize_line(line) in boilerplate.normalized for line in stripped.splitlines())
+        before = sum(key in boilerplate.normalized for key in line_keys(text))
+        after = sum(key in boilerplate.normalized for key in line_keys(stripped))
         removed += before - after
         kept += after
         changed += before > after

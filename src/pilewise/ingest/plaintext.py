@@ -1,8 +1,9 @@
-"""Decoding bytes and making titles: helpers shared by the readers."""
+"""Decoding bytes, cleaning typeset text and making titles: helpers shared by the readers."""
 
 from __future__ import annotations
 
 import codecs
+import re
 
 import charset_normalizer
 
@@ -83,3 +84,56 @@ def first_line_title(text: str) -> str:
             cut = line[:TITLE_CHARS].rsplit(" ", 1)[0]
             return (cut if len(cut) > TITLE_CHARS // 2 else line[:TITLE_CHARS]) + "…"
     return "(untitled)"
+
+
+# A character then a backspace: terminal overstrike, as man and nroff write bold ("N\bN") and underline
+# ("_\bN") for a printer or pager (grotty(1), "legacy output format"); the visible character is the last.
+_OVERSTRIKE = re.compile(r"[^\x08\n]\x08")
+# A word broken at the end of a line: letters (maybe already holding hyphens), a hyphen (ASCII, U+2010
+# HYPHEN as groff writes it, or U+00AD SOFT HYPHEN), the line break with the next line's indentation, and
+# the rest of the word with punctuation glued to it (and one space after them: the line break comes there
+# instead).
+_BROKEN_WORD = re.compile(
+    r"(?<![\w\u2010])([^\W\d_]+(?:[\-\u2010][^\W\d_]+)*)([\-\u2010\u00ad])[^\S\n]*(\r?\n[^\S\n]*)([^\W\d_]+(?:-[^\W\d_]+)*)([^\w\s]*)(?:[^\S\n](?=\S))?"
+)
+_INNER_HYPHEN = re.compile(r"(?<=[^\W\d_])[\u2010\u2011](?=[^\W\d_])")  # typeset hyphens inside a word
+
+
+def clean_text(text: str) -> str:
+    """`text` with terminal overstrike removed and words hyphenated across line breaks joined again.
+
+    Overstrike ("N\\bNA\\bA" for a bold "NA", as in manual pages saved from a terminal) keeps the last
+    character of each pair. A word broken at a line end ("excep-" then "tion" on the next line) is
+    joined and moved to the first line: the line break and the next line's indentation follow the whole
+    word (or go, when the word was all its line held). The hyphen is dropped when the second part starts with a
+    lower-case letter and the text does not also hold the hyphenated form on one line ("well-known"
+    elsewhere keeps "well-\\nknown" as "well-known"); typesetters' own hyphens (U+2010 at a line end,
+    U+00AD) are always dropped before a lower-case letter. A compound already holding a hyphen
+    ("state-of-" then "the-art") and a second part starting with a capital keep the hyphen. Hyphens
+    written as U+2010 or U+2011 inside a word become "-", which the analyzer reads as part of the word.
+    """
+    if "\x08" in text:
+        text = _OVERSTRIKE.sub("", text).replace("\x08", "")
+    if "\u2010" in text or "\u2011" in text:
+        text = _INNER_HYPHEN.sub("-", text)
+    # a word broken over three lines ("ex-", "cep-", "tion") is joined one break per pass
+    while "\n" in text and _BROKEN_WORD.search(text) is not None:
+        text = _BROKEN_WORD.sub(lambda m: _rejoined(m, m.string), text)
+    return text
+
+
+def _rejoined(m: re.Match[str], text: str) -> str:
+    """The word broken at match `m` of `_BROKEN_WORD`, whole, then the line break that split it."""
+    first, hyphen, newline, second, glued = m.groups()
+    typeset = hyphen != "-"
+    after_hyphen = m.start() > 0 and m.string[m.start() - 1] == "-"  # "--no-" then "wrap": an option's parts
+    keep_hyphen = (
+        not second[0].islower()
+        or "-" in first
+        or (not typeset and after_hyphen)
+        or (not typeset and f"{first}-{second}".lower() in text.lower())
+    )
+    word = (f"{first}-{second}" if keep_hyphen else first + second) + glued
+    rest = text[m.end() : m.end() + 2]
+    # a word that ended its line leaves no empty line behind (which would read as a paragraph break)
+    return word if rest[:1] in ("", "\n") or rest == "\r\n" else word + newline

@@ -21,7 +21,7 @@ from pathlib import Path
 from bs4 import BeautifulSoup
 
 from pilewise.errors import PilewiseError
-from pilewise.ingest.plaintext import decode_bytes, first_line_title
+from pilewise.ingest.plaintext import clean_text, decode_bytes, first_line_title
 from pilewise.ingest.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_table
 from pilewise.model import Document, Ingested, IngestEntry
 
@@ -422,7 +422,7 @@ def _read_file(
             title, text = html_to_text(decoded)
         else:
             title, text = "", decoded
-    text = text.strip()
+    text = clean_text(text).strip()
     if not text:
         return None, [IngestEntry(rel, "skipped", "empty", "no visible text")]
     entries = []
@@ -484,7 +484,7 @@ def _mbox_message(
 ) -> Document | None:
     """One message of an mbox file as a document, or None with a report line saying why not."""
     title, text, note, date = _read_mail(raw, encoding)
-    text = text.strip()
+    text = clean_text(text).strip()
     if not text:
         entries.append(IngestEntry(where, "skipped", "empty", f"message {number:,} has no text ({note or 'blank'})"))
         return None
@@ -502,12 +502,17 @@ def _truncate(text: str, max_chars: int) -> tuple[str, str]:
     return text[:max_chars], f"kept the first {max_chars:,} of {len(text):,} characters; raise --max-doc-chars"
 
 
+_OVERSTRIKE_BYTES = re.compile(rb"[^\x00-\x1f]\x08(?=[^\x00-\x1f])")
+
+
 def _looks_binary(raw: bytes) -> bool:
     head = raw[:8192]
     if head.startswith((b"\xff\xfe", b"\xfe\xff", b"\xef\xbb\xbf")):
         return False
     if b"\x00" in head:
         return True
+    # backspaces of terminal overstrike (bold and underline in saved manual pages) are text, cleaned later
+    head = _OVERSTRIKE_BYTES.sub(b"", head)
     control = sum(1 for b in head if b < 9 or 13 < b < 32)
     return control > len(head) * 0.1
 

@@ -21,12 +21,15 @@ check before it is replaced, and what cannot be told apart from ordinary numbers
   the registry (the "experimental" lists) are not matched, and IBANs are looked for only in texts with at
   least 7 digits (every registry example holds at least 10; a BBAN of letters is possible in principle).
 - payment card: 13-19 digits, as one run or in groups separated by single spaces or hyphens (the first
-  group of at least 4 digits, the others of at least 2, at most 5 groups), starting with a major industry
-  identifier of 1-6 (ISO/IEC 7812-1: airlines, travel, banking and merchandising; 0 and 7-9 are other
-  industries) and passing the Luhn check (ISO/IEC 7812-1 Annex B). A longer run of groups is searched
-  for the longest span of whole groups that qualifies.
-- IPv4: four dotted numbers 0-255 (leading zeros allowed), not part of a longer dotted number. A
-  four-part version number whose parts are all at most 255 ("1.2.3.4") is redacted too.
+  group of at least 4 digits, the others of at least 2, at most 5 groups), with the IIN prefix and a length
+  of a card network (`CARD_NETWORKS`: Visa, Mastercard, American Express, Discover, JCB, Diners Club,
+  UnionPay; "100644100644100644" has none) and passing the Luhn check (ISO/IEC 7812-1 Annex B). A longer
+  run of groups is searched for the longest span of whole groups that qualifies.
+- IPv4: four dotted numbers 0-255 without leading zeros (RFC 3986 dec-octet: "01.02.03.04" is not an
+  address), not part of a longer dotted number, and not right after a word that numbers a part or a
+  release ("section 5.11.2.2", "§ 4.1.2.3", "version 1.2.3.4", "v 2.0.1.1", "chapter", "figure", "table",
+  "clause", "release", "build", "RFC" ...: `_NUMBERED_PART`). A bare four-part version number whose parts
+  are all valid octets ("upgrade to 1.2.3.4") cannot be told from an address and is redacted.
 - IPv6: colon-separated hex groups, valid for the standard library's `ipaddress.IPv6Address`, with a
   digit and at least two non-empty groups (so "::", "::1" and "fe80::", which say nothing about a person,
   and words such as "std::vector" are left). Zone ids ("%eth0") and prefix lengths ("/64") are left.
@@ -38,12 +41,17 @@ check before it is replaced, and what cannot be told apart from ordinary numbers
   * international: ``+`` then a country code, any grouping, 7-15 digits ("+44 (0)20 ...": the "(0)" is
     not counted), or ``00`` then a country code in at least two groups ("0044 20 7946 0958"; a bare run
     starting with 00 is more often a zero-padded number);
-  * after a label ("tel", "phone", "mobile", "cell", "fax", "telefon", "téléphone" ...): any grouping;
+  * after a label ("tel", "phone", "mobile", "cell", "fax", "telefon", "téléphone" ...) or a phrase that
+    announces one ("call me on", "my number is", "reach the desk at"): any grouping;
   * an area code in parentheses: "(555) 123-4567", "(030) 1234567";
   * national with a trunk prefix 0 (Europe, Australia ...): 9-12 digits in at least two groups, or a
     run of 10-11 digits ("0171 1234567", "06 12 34 56 78", "020 7946 0958", "0612345678");
   * North American 3-3-4 with an optional leading 1: "555-123-4567", "555.123.4567", "1 800 555 0199";
-  * otherwise at least three hyphen-separated groups of 2-4 digits ("612-34-56-78").
+  * a seven-digit local number, exchange (2-9 first) and line joined by "-" or ".": "555-0149";
+  * otherwise at least four hyphen-separated groups of 2-4 digits ("612-34-56-78").
+
+  Never a phone number: anything after "ISBN" or "ISSN", and three-two-four digits joined by hyphens
+  ("078-05-1120", the shape of a US social security or case number).
 
   Not redacted: dates (year-month-day and day-month-year or month-day-year with "-", "." or "/" are
   skipped whole, so "2026-01-05 16:45" stays), times, order numbers ("#75025", "order 7502512": a bare
@@ -157,6 +165,20 @@ _PHONE_LABEL = re.compile(
     |whatsapp|handy)\.?(?:\s*(?:no|nr|number|num)\.?)?\s*[:\#]?\s*\Z""",
     re.VERBOSE,
 )
+# A seven-digit local number, exchange and line ("555-0149", "555.0149"): North American exchange codes start
+# with 2-9. A space as the separator is read only after a label: "555 0149" is as often two counts.
+_LOCAL_SEVEN = re.compile(r"[2-9][0-9]{2}[\-.][0-9]{4}")
+# Phrases that announce a phone number as a label does: "call me on", "my number is", "reach the desk at".
+_CALL_PHRASE = re.compile(
+    r"(?i)\b(?:call(?:\s+(?:me|us|him|her|them))?(?:\s+(?:on|at))?|dial|ring(?:\s+(?:me|us))?(?:\s+on)?"
+    r"|(?:my|our|his|her|their)\s+(?:phone\s+|mobile\s+|cell\s+)?number(?:\s+is)?"
+    r"|reach(?:\s+[^\W\d_]+){0,2}\s+at)\s*:?\s*\Z"
+)
+# "ISBN", "ISBN-13:", "ISSN" right before a number: a book's or serial's number, whatever its grouping.
+_ISBN_LABEL = re.compile(r"(?i)\b(?:isbn|issn)(?:-?1[03])?\s*:?\s*\Z")
+# Three, two and four digits joined by hyphens: the shape of a US social security number or a case number,
+# not of a phone number in any national plan.
+_THREE_TWO_FOUR = re.compile(r"[0-9]{3}-[0-9]{2}-[0-9]{4}")
 _NANP = re.compile(r"(?:1[\ .\-]?)?(?:\([0-9]{3}\)\ ?|[0-9]{3}[\ .\-])[0-9]{3}[\ .\-][0-9]{4}", re.VERBOSE)
 _PLACEHOLDER = re.compile(r"\b" + PLACEHOLDER_PREFIX + "(" + "|".join(sorted(KINDS, key=len, reverse=True)) + r")\b")
 
@@ -193,6 +215,30 @@ def luhn_valid(digits: str) -> bool:
             value = value * 2 - 9 if value > 4 else value * 2
         total += value
     return total % 10 == 0
+
+
+# Card networks' issuer identification number (IIN) prefixes and card lengths, from their published IIN
+# ranges as remembered (from memory; the networks publish them in their issuer guides, and ISO/IEC 7812-1
+# defines the IIN): (first prefix, last prefix, lengths).
+CARD_NETWORKS: dict[str, tuple[tuple[int, int, tuple[int, ...]], ...]] = {
+    "Visa": ((4, 4, (13, 16, 19)),),
+    "Mastercard": ((51, 55, (16,)), (2221, 2720, (16,))),
+    "American Express": ((34, 34, (15,)), (37, 37, (15,))),
+    "Discover": ((6011, 6011, (16, 17, 18, 19)), (644, 649, (16, 17, 18, 19)), (65, 65, (16, 17, 18, 19))),
+    "JCB": ((3528, 3589, (16, 17, 18, 19)),),
+    "Diners Club": ((36, 36, (14,)), (300, 305, (14,))),
+    "UnionPay": ((62, 62, (16, 17, 18, 19)),),
+}
+
+
+def card_network(digits: str) -> str | None:
+    """The card network whose IIN prefix and card length `digits` has (see CARD_NETWORKS), else None."""
+    for network, ranges in CARD_NETWORKS.items():
+        for first, last, lengths in ranges:
+            width = len(str(first))
+            if len(digits) in lengths and digits[:width].isdigit() and first <= int(digits[:width]) <= last:
+                return network
+    return None
 
 
 def iban_valid(candidate: str) -> bool:
@@ -392,7 +438,7 @@ def _card_spans(text: str, clusters: list[tuple[int, int]]) -> list[tuple[int, i
                         digits += text[groups[j][0] : groups[j][1]]
                         if len(digits) > 19:
                             break
-                        if len(digits) >= 13 and digits[0] in "123456" and luhn_valid(digits):
+                        if len(digits) >= 13 and card_network(digits) is not None and luhn_valid(digits):
                             best = j
                 if best is None:
                     i += 1
@@ -407,9 +453,24 @@ def _ipv4_spans(text: str, clusters: list[tuple[int, int]]) -> list[tuple[int, i
     for start, end in clusters:
         if end - start >= 7 and text.count(".", start, end) >= 3:
             for m in _IPV4.finditer(text, start, end + 2):
-                if all(int(part) <= 255 for part in m.groups()):
+                before = text[max(0, m.start() - 30) : m.start()]
+                if all(_octet(part) for part in m.groups()) and not _NUMBERED_PART.search(before):
                     spans.append(m.span())
     return spans
+
+
+def _octet(part: str) -> bool:
+    """A dotted-decimal octet as RFC 3986's dec-octet writes it: 0-255 without leading zeros."""
+    return int(part) <= 255 and (part == "0" or part[0] != "0")
+
+
+# Words after which dotted numbers are a numbered part or a release, not an address: "section 5.11.2.2",
+# "§ 4.1.2.3", "version 1.2.3.4", "v 2.0.1.1", "release", "chapter", "figure", "table", "clause". Words that
+# may stand before an address in a log ("rule", "host", "from") are not in the list.
+_NUMBERED_PART = re.compile(
+    r"(?i)(?:\b(?:sections?|sect?|§§?|versions?|vers?|v|releases?|rel|builds?|chapters?|ch|figures?|figs?|tables?"
+    r"|clauses?|paragraphs?|paras?|articles?|arts?|appendix|annex|rfc)\.?|§)\s*\Z"
+)
 
 
 def _phone_spans(text: str, clusters: list[tuple[int, int]]) -> list[tuple[int, int]]:
@@ -448,6 +509,8 @@ def _phone_ok(number: str, before: str) -> bool:
     """Whether a candidate is a phone number in one of the accepted shapes; `before` is the text before it."""
     groups = _DIGITS.findall(number)
     n = sum(map(len, groups))
+    if _ISBN_LABEL.search(before) or _THREE_TWO_FOUR.fullmatch(number):
+        return False
     if number.startswith("+"):
         return 7 <= n - number.count("(0)") <= 15
     if not 7 <= n <= 17:
@@ -458,7 +521,7 @@ def _phone_ok(number: str, before: str) -> bool:
         return len(groups) > 1 and digits[2] != "0" and 7 <= n - 2 <= 15
     if n > 15:
         return False
-    if _PHONE_LABEL.search(before):
+    if _PHONE_LABEL.search(before) or _CALL_PHRASE.search(before):
         return True
     if number.startswith("("):
         rest = groups[1:]
@@ -468,10 +531,10 @@ def _phone_ok(number: str, before: str) -> bool:
         if len(groups[0]) < 2 or groups[0][1] == "0":
             return False
         return 10 <= n <= 11 if len(groups) == 1 else 9 <= n <= 12
-    if _NANP.fullmatch(number):
+    if _NANP.fullmatch(number) or _LOCAL_SEVEN.fullmatch(number):
         return True
     separators = set(_DIGITS.sub("", number))
-    return separators == {"-"} and len(groups) >= 3 and n <= 12 and all(2 <= len(group) <= 4 for group in groups)
+    return separators == {"-"} and len(groups) >= 4 and n <= 12 and all(2 <= len(group) <= 4 for group in groups)
 
 
 def _thousands(number: str, groups: list[str]) -> bool:

@@ -11,6 +11,7 @@ from collections import Counter
 from collections.abc import Iterable
 from pathlib import Path
 
+import numpy as np
 from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
 
 from pilewise.errors import PilewiseError
@@ -19,6 +20,12 @@ from pilewise.ingest.redact import PLACEHOLDER_PREFIX  # redaction's placeholder
 # Runs of letters, with inner apostrophes and hyphens kept ("don't", "log-in"); one-letter words are
 # dropped by the analyzer. Each repetition of the group must start with ' or -, so matching is linear.
 TOKEN_PATTERN = r"[^\W\d_]+(?:['\-][^\W\d_]+)*"
+# What stands between two words and keeps them from making a phrase: punctuation (".", ",", quotes,
+# brackets, dashes), numbers and underscores, and a blank line. `Analyzer.words` gives each run as a
+# "break" item, which `normalize` never keeps, so that a phrase is two kept words with only white space
+# (at most one line break) between them; see `joined_to_previous`.
+BREAK_PATTERN = r"[^\w\s]+|[\d_]+|\n[^\S\n]*\n"
+_WORD_START = re.compile(r"[^\W\d_]")  # how every token of TOKEN_PATTERN starts, and no break item
 _MISSING = object()
 
 
@@ -53,6 +60,7 @@ class Analyzer:
         # tokenizing uses it, and nltk (about 0.3 s to import) is imported only for stemming.
         pattern = re.compile(TOKEN_PATTERN)
         self._findall = pattern.findall
+        self._find_words_and_breaks = re.compile(f"{TOKEN_PATTERN}|{BREAK_PATTERN}").findall
         self._finditer = pattern.finditer
         self._stemmer = None
         if stem:
@@ -71,7 +79,8 @@ class Analyzer:
         if word.endswith("'s"):
             word = word[:-2]  # possessive: "courier's" counts as "courier"
         if (
-            word in self.stop_words
+            _WORD_START.match(word) is None  # a phrase break from `words` (punctuation, a number, a blank line)
+            or word in self.stop_words
             or word.startswith(PLACEHOLDER_PREFIX)
             or len(word) < 2
             or ("'" in word and (word.endswith("n't") or word.split("'", 1)[0] in self.stop_words))
@@ -101,8 +110,18 @@ class Analyzer:
         return out
 
     def words(self, text: str) -> list[str]:
-        """The lower-cased words of `text` as `terms` reads them, before possessives, stop words and stemming."""
-        return self._findall(text.lower())
+        """The lower-cased words of `text` as `terms` reads them, before possessives, stop words and stemming,
+        with the phrase breaks between them (BREAK_PATTERN; `normalize` gives None for a break)."""
+        return self._find_words_and_breaks(text.lower())
+
+    def phrases(self, text: str) -> list[str]:
+        """The two-word phrases of `text` in order ("first second"), as the vectorizer counts them."""
+        words = self.words(text)
+        terms = [self.normalize(word) for word in words]
+        kept = np.fromiter((term is not None for term in terms), dtype=bool, count=len(terms))
+        kept_terms = [term for term in terms if term is not None]
+        joined = joined_to_previous(kept)
+        return [f"{kept_terms[i - 1]} {kept_terms[i]}" for i in np.flatnonzero(joined)]
 
     def count_surfaces(self, words: Iterable[str], counts: Iterable[int]) -> None:
         """Record `counts` occurrences of each word, as `terms` does per occurrence (for `surface`)."""
@@ -141,3 +160,17 @@ class Analyzer:
             return stem
         # most frequent, ties broken alphabetically so that output is reproducible
         return min(counts.items(), key=lambda item: (-item[1], item[0]))[0]
+
+
+def joined_to_previous(kept: np.ndarray) -> np.ndarray:
+    """The phrase rule: for every kept word, whether it makes a phrase with the kept word before it.
+
+    `kept` (n_items,) marks which items of `Analyzer.words` (words and phrase breaks, in text order)
+    became terms. Two terms make a phrase only when they stood next to each other: no stop word, one-letter
+    word, redaction placeholder, number, punctuation or blank line was removed between them, so "days in a
+    row" gives no "days row". Returns a boolean array of one entry per kept item (the first is False);
+    callers that join several texts' items must also require both words to be of one text.
+    """
+    joined = np.zeros(kept.size, dtype=bool)
+    joined[1:] = kept[1:] & kept[:-1]
+    return joined[kept]

@@ -20,7 +20,7 @@ from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.preprocessing import normalize
 
 from pilewise.errors import PilewiseError
-from pilewise.vectors.text import Analyzer
+from pilewise.vectors.text import Analyzer, joined_to_previous
 
 
 @dataclass(frozen=True)
@@ -118,7 +118,8 @@ def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
 
 
 def with_phrases(terms: list[str]) -> list[str]:
-    """Terms followed by the two-word phrases of adjacent kept terms."""
+    """Terms followed by the two-word phrases of consecutive terms (for a text without stop words or
+    punctuation; `Analyzer.phrases` gives a text's phrases as they are counted)."""
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]
 
 
@@ -143,7 +144,7 @@ def count_terms(
     one), as `document_frequency`. `workers` > 1 tokenizes a large sequence of texts in that many forked
     processes (the result is the same).
     """
-    word_ids, bounds, terms = _term_ids(texts, analyzer, workers)
+    word_ids, bounds, terms, joined = _term_ids(texts, analyzer, workers)
     n_texts, n_words = bounds.size - 1, max(len(terms), 1)
     words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
                           shape=(n_texts, n_words))
@@ -159,7 +160,8 @@ def count_terms(
         stop = min(begin + per_block, n_texts)
         ids = word_ids[bounds[begin] : bounds[stop]]
         text = np.repeat(np.arange(stop - begin, dtype=np.int64), np.diff(bounds[begin : stop + 1]))
-        inside = (text[1:] == text[:-1]) & frequent[ids[:-1]] & frequent[ids[1:]]
+        inside = (text[1:] == text[:-1]) & frequent[ids[:-1]] & frequent[ids[1:]] \
+            & joined[bounds[begin] + 1 : bounds[stop]]  # the words stood side by side (text.joined_to_previous)
         keyed = (ids[:-1][inside].astype(np.int64) * n_words + ids[1:][inside]) * (stop - begin) + text[1:][inside]
         del text, inside
         distinct, counts = _sorted_unique(keyed)
@@ -177,7 +179,7 @@ def count_terms(
         block_df.append(np.add.reduceat(weight[text + begin], starts) if starts.size else np.zeros(0))
         blocks.append((text.astype(np.int32), local, counts.astype(np.int32), np.array([begin, stop])))
         del text, counts, starts
-    del word_ids
+    del word_ids, joined
     # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
     codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
     pair_codes, _ = _sorted_unique(codes.copy())
@@ -221,8 +223,9 @@ def _sorted_unique(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _term_ids(
     texts: Iterable[str], analyzer: Analyzer, workers: int = 1
-) -> tuple[np.ndarray, np.ndarray, list[str]]:
-    """Every text's term ids in order (int32), the texts' bounds in them (int64), and the terms by id.
+) -> tuple[np.ndarray, np.ndarray, list[str], np.ndarray]:
+    """Every text's term ids in order (int32), the texts' bounds in them (int64), the terms by id, and
+    whether each term id makes a phrase with the one before it (`text.joined_to_previous`).
 
     Texts are read in chunks, each giving its words numbered locally by first occurrence (in worker
     processes when `workers` > 1 and `texts` is a large sequence); chunks are taken in order, so the
@@ -236,6 +239,7 @@ def _term_ids(
     term_of_word = np.zeros(0, dtype=np.int32)
     seen = np.zeros(0, dtype=np.int64)  # occurrences of every word (surface forms of stems)
     kept_parts: list[np.ndarray] = []
+    joined_parts: list[np.ndarray] = []
     bounds = [np.zeros(1, dtype=np.int64)]
     kept_total = 0
 
@@ -257,6 +261,7 @@ def _term_ids(
         kept_before = np.concatenate([[0], np.cumsum(kept)])  # kept words before each raw position
         bounds.append(kept_total + kept_before[np.cumsum(lengths)])
         kept_parts.append(ids[kept])
+        joined_parts.append(joined_to_previous(kept))
         kept_total += int(kept_before[-1])
 
     for chunk in _word_chunks(texts, analyzer, workers):
@@ -266,7 +271,8 @@ def _term_ids(
     for term, i in term_id.items():
         terms[i] = term
     ids = np.concatenate(kept_parts) if kept_parts else np.zeros(0, dtype=np.int32)
-    return ids, np.concatenate(bounds), terms
+    joined = np.concatenate(joined_parts) if joined_parts else np.zeros(0, dtype=bool)
+    return ids, np.concatenate(bounds), terms, joined
 
 
 PARALLEL_MIN_TEXTS = 40_000  # fewer texts are tokenized in this process (a pool costs more than it saves)
