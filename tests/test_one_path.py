@@ -145,3 +145,21 @@ def test_column_selection_and_order_helpers() -> None:
                       np.ones(2), 2.0, 1, 1.0, {})
     with pytest.raises(Exception, match="^no single words are left to cluster on; lower --min-df or raise --max-df$"):
         weigh_and_reduce(kept, VectorSettings())
+
+
+def test_memory_mode_fits_lsa_on_a_sample_above_lsa_fit_rows(monkeypatch: pytest.MonkeyPatch) -> None:
+    # The contract of tfidf.vectorize (docs/method.md): up to LSA_FIT_ROWS texts LSA is fitted on all of them,
+    # above it on a seeded sample of LSA_FIT_ROWS, as streaming mode does; the sampled space must equal the one
+    # step called with that sample size.
+    import pilewise.vectors.tfidf as tfidf
+
+    texts = [f"{a} {b} {c}" for a in ("fern", "pot", "parcel", "courier") for b in ("wet", "dry", "cracked")
+             for c in ("leaves", "compost", "door", "refund", "tracking")]
+    settings = VectorSettings(min_df=1, max_df=1.0, lsa_components=3)
+    assert "lsa_fitted_on_rows" not in vectorize(texts, _analyzer(), settings).facts
+    monkeypatch.setattr(tfidf, "LSA_FIT_ROWS", 25)
+    sampled = vectorize(texts, _analyzer(), settings)
+    assert sampled.facts["lsa_fitted_on_rows"] == 25
+    kept = exact_counts(texts, _analyzer(), settings, np.ones(len(texts)))
+    np.testing.assert_array_equal(np.asarray(sampled.space), np.asarray(weigh_and_reduce(kept, settings,
+                                                                                         fit_rows=25).space))

@@ -37,6 +37,7 @@ from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer
 from pilewise.vectors.tfidf import (
+    LSA_FIT_ROWS,
     TermCounts,
     Vectorized,
     VectorSettings,
@@ -50,7 +51,7 @@ from pilewise.vectors.tfidf import (
 
 HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
 CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step
-SVD_FIT_ROWS = 50_000  # rows of the seeded sample the LSA is fitted on
+SVD_FIT_ROWS = LSA_FIT_ROWS  # rows of the seeded sample the LSA is fitted on (as in memory mode)
 WORD_COUNT_CAP = 2_000_000  # words whose counts are kept to name the columns (least frequent pruned)
 TRANSFORM_ROWS = 50_000  # rows weighted and projected per step
 

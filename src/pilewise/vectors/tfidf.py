@@ -128,6 +128,7 @@ def with_phrases(terms: list[str]) -> list[str]:
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]
 
 
+LSA_FIT_ROWS = 20_000  # rows of the seeded sample LSA is fitted on in both modes (more rows: fitted on all)
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
@@ -487,11 +488,14 @@ def vectorize(
     stands for (exact copies, near-duplicate group members; default one). Every figure that counts
     documents counts them all: min_df, max_df and the idf are those of the full list of documents,
     as scikit-learn's TfidfVectorizer(sublinear_tf=True) would compute them on it (docs/method.md,
-    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`).
+    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`). LSA is fitted
+    on every text up to LSA_FIT_ROWS texts, else on a seeded sample of that many (`weigh_and_reduce`).
     """
     n = len(texts)
     weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
     if weight.shape != (n,) or np.any(weight < 1):
         raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
     kept = exact_counts(texts, analyzer, settings, weight, track=track, workers=workers)
-    return weigh_and_reduce(kept, settings, say=progress)
+    # above LSA_FIT_ROWS texts LSA is fitted on a sample, as in streaming mode: a third of the time at 50,000
+    # texts, and NMI within the spread of seeds (docs/performance.md, "Issue 15")
+    return weigh_and_reduce(kept, settings, fit_rows=LSA_FIT_ROWS if n > LSA_FIT_ROWS else None, say=progress)
