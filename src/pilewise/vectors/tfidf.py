@@ -186,12 +186,15 @@ def count_terms(
         del text, counts, starts
     del word_ids
     # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
-    codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
-    pair_codes, _ = _sorted_unique(codes.copy())
-    block_ids = [np.searchsorted(pair_codes, c) for c in block_codes]
-    pair_df = np.bincount(np.concatenate(block_ids), weights=np.concatenate(block_df), minlength=pair_codes.size) \
-        if block_ids else np.zeros(0)
-    del codes, block_codes, block_df
+    # (sorted in place, ids as int32, documents added block by block: the peak memory of a large collection is
+    # here, and each block's sum adds in the same order as one bincount over all blocks would)
+    pair_codes, _ = _sorted_unique(np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64))
+    block_ids = []
+    pair_df = np.zeros(pair_codes.size)
+    while block_codes:
+        ids = np.searchsorted(pair_codes, block_codes.pop(0)).astype(np.int32)
+        pair_df += np.bincount(ids, weights=block_df.pop(0), minlength=pair_codes.size)
+        block_ids.append(ids)
     wanted = pair_df >= min_df
     renumber = (np.cumsum(wanted) - 1).astype(np.int32)
     pair_codes = pair_codes[wanted]
