@@ -433,8 +433,8 @@ def weigh_and_reduce(
     n_phrases = int(kept.is_phrase.sum())
     if say:
         hashed = kept.facts.get("hashed_columns")
-        say(f"{len(kept.terms):,} terms kept ({n_phrases:,} two-word phrases)"
-            + (f" from a hashed vocabulary of {hashed:,} columns" if hashed else ""))
+        say(f"{len(kept.terms):,} terms kept " + (f"from a hashed vocabulary of {hashed:,} columns" if hashed
+                                                  else f"({n_phrases:,} two-word phrases)"))
     every = settings.bigrams_in_space or n_phrases == 0
     space_columns = np.arange(len(kept.terms)) if every else np.flatnonzero(~kept.is_phrase)
     if space_columns.size == 0:
