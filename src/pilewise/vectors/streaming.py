@@ -7,8 +7,9 @@ looks its texts up among those seen (exact duplicates), and keeps only the term 
 Terms are counted in a fixed-size hashed vocabulary (a word's column is its MurmurHash3 modulo
 HASH_BUCKETS, as scikit-learn's HashingVectorizer does), so memory does not depend on how many distinct
 words the collection holds; the word shown for a column is the most frequent word that fell into it.
-Document frequencies from the same pass choose the kept columns; LSA is fitted on a seeded sample of
-rows and applied block by block.
+Document frequencies from the same pass choose the kept columns. Tokenizing (`tfidf.chunk_words`) and
+the weighting and reduction (`tfidf.weigh_and_reduce`, here with LSA fitted on a seeded sample of rows and
+applied block by block) are those of memory mode; only the vocabulary differs.
 """
 
 from __future__ import annotations
@@ -26,8 +27,6 @@ from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
-from sklearn.decomposition import TruncatedSVD
-from sklearn.preprocessing import normalize
 from sklearn.utils import murmurhash3_32
 
 from pilewise.errors import PilewiseError
@@ -38,18 +37,21 @@ from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer
 from pilewise.vectors.tfidf import (
+    LSA_FIT_ROWS,
+    TermCounts,
     Vectorized,
     VectorSettings,
-    lsa_size,
+    alphabetical,
+    chunk_words,
     no_terms_left,
-    smooth_idf,
     term_limits,
-    tfidf_rows,
+    weigh_and_reduce,
+    within_limits,
 )
 
 HASH_BUCKETS = 2**20  # columns of the hashed vocabulary; collisions are rare below ~100,000 kept words
 CHUNK_DOCUMENTS = 20_000  # documents read, redacted and tokenized per step
-SVD_FIT_ROWS = 50_000  # rows of the seeded sample the LSA is fitted on
+SVD_FIT_ROWS = LSA_FIT_ROWS  # rows of the seeded sample the LSA is fitted on (as in memory mode)
 WORD_COUNT_CAP = 2_000_000  # words whose counts are kept to name the columns (least frequent pruned)
 TRANSFORM_ROWS = 50_000  # rows weighted and projected per step
 
@@ -209,22 +211,31 @@ def process_chunk(
 
 
 def hashed_counts(texts: list[str], analyzer: Analyzer | None = None) -> tuple[sp.csr_matrix, Counter[str]]:
-    """Term counts of `texts` in the hashed vocabulary, and how often each word occurred."""
+    """Term counts of `texts` in the hashed vocabulary, and how often each term occurred.
+
+    Tokenized by the core of memory mode (`tfidf.chunk_words`); each distinct word of the chunk is turned
+    into its term and hashed column once, as `Analyzer.terms` and scikit-learn's FeatureHasher would.
+    """
     analyzer = analyzer or _worker_analyzer
     assert analyzer is not None
     if len(_buckets) > WORD_COUNT_CAP:
         _buckets.clear()
-    column_of = _buckets.__getitem__
-    columns: list[int] = []
-    indptr = [0]
+    local_words, raw, lengths = chunk_words(texts, analyzer)
+    term_of = [analyzer.normalize(word) for word in local_words]
+    column_of = np.fromiter((-1 if t is None else _buckets[t] for t in term_of), dtype=np.int64,
+                            count=len(term_of))
+    occurrences = np.bincount(raw, minlength=len(local_words))
+    analyzer.count_surfaces(local_words, occurrences.tolist())  # the stems' surface words, as `terms` records
     words: Counter[str] = Counter()
-    for text in texts:
-        terms = analyzer.terms(text)
-        columns.extend(map(column_of, terms))
-        indptr.append(len(columns))
-        words.update(terms)
+    for term, count in zip(term_of, occurrences.tolist(), strict=True):
+        if term is not None and count:
+            words[term] += count
+    columns = column_of[raw] if raw.size else np.zeros(0, dtype=np.int64)
+    kept = columns >= 0
+    kept_before = np.concatenate([[0], np.cumsum(kept)])  # kept tokens before each token
+    indptr = kept_before[np.concatenate([[0], np.cumsum(lengths)])]
     matrix = sp.csr_matrix(
-        (np.ones(len(columns), dtype=np.int32), np.asarray(columns, dtype=np.int32), np.asarray(indptr)),
+        (np.ones(int(kept_before[-1]), dtype=np.int32), columns[kept].astype(np.int32), indptr),
         shape=(len(texts), HASH_BUCKETS),
     )
     matrix.sum_duplicates()
@@ -309,50 +320,36 @@ def document_frequency_of_blocks(blocks: list[Path], copies: np.ndarray) -> np.n
     return df
 
 
-def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporter) -> Vectorized:
+def hashed_term_counts(tally: _Tally, settings: VectorSettings) -> TermCounts:
+    """The kept hashed columns of the saved blocks, named and in alphabetical order, with their counts."""
     n = len(tally.copies)
     copies = np.asarray(tally.copies, dtype=np.int64)
     n_documents = float(copies.sum())  # figures that count documents count copies (docs/method.md)
     all_df = document_frequency_of_blocks(tally.blocks, copies)
     min_df, max_df = term_limits(settings, n_documents)
-    kept = np.flatnonzero((all_df >= min_df) & (all_df <= max_df * n_documents))
+    kept = within_limits(all_df, min_df, max_df, n_documents)
     if kept.size < 2:
         raise no_terms_left(min_df, max_df)
     names = column_names(tally.words, kept)
-    order = np.argsort(np.array(names, dtype=object), kind="stable")  # alphabetical, as in memory mode
-    terms = tuple(names[i] for i in order)
+    order = alphabetical(names)
     column_of = np.full(HASH_BUCKETS, -1, dtype=np.int64)
     column_of[kept[order]] = np.arange(kept.size)
     df = all_df[kept[order]]
     del all_df
-    counts = _kept_counts(tally.blocks, column_of, kept.size, n)
-    reporter.say(f"{len(terms):,} terms kept from a hashed vocabulary of {HASH_BUCKETS:,} columns")
-    idf = smooth_idf(df, n_documents)
-    components = lsa_size(settings, n, len(terms))
-    facts: dict[str, float | int | str | bool] = {
-        "min_df": min_df, "max_df": float(max_df), "terms": len(terms), "phrases": 0, "phrases_within_df": 0,
-        "space_terms": len(terms), "texts_without_terms": int(np.sum(np.diff(counts.indptr) == 0)),
-        "bigrams_in_space": False, "hashed_columns": HASH_BUCKETS, "streamed": True,
-    }
-    space: np.ndarray | sp.csr_matrix
-    if settings.lsa_components > 0 and components >= 2:
-        rng = np.random.default_rng(settings.seed)
-        sample = np.sort(rng.choice(n, min(n, SVD_FIT_ROWS), replace=False))
-        svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
-        svd.fit(tfidf_rows(counts[sample], idf))
-        space = np.empty((n, components), dtype=np.float32)
-        starts = range(0, n, TRANSFORM_ROWS)
-        for start in reporter.track(starts, total=len(starts), label="projecting", unit="block"):
-            block = tfidf_rows(counts[start : start + TRANSFORM_ROWS], idf)
-            space[start : start + TRANSFORM_ROWS] = normalize(svd.transform(block))
-        facts["lsa_components"] = components
-        facts["lsa_explained_variance"] = round(float(svd.explained_variance_ratio_.sum()), 4)
-        facts["lsa_fitted_on_rows"] = int(sample.size)
-    else:
-        space = tfidf_rows(counts, idf)
-        facts["lsa_components"] = 0
-    return Vectorized(counts=counts, terms=terms, is_phrase=np.zeros(len(terms), dtype=bool), space=space,
-                      facts=facts)
+    return TermCounts(
+        counts=_kept_counts(tally.blocks, column_of, kept.size, n), terms=tuple(names[i] for i in order),
+        is_phrase=np.zeros(kept.size, dtype=bool), df=df, n_documents=n_documents, min_df=min_df, max_df=max_df,
+        facts={"hashed_columns": HASH_BUCKETS, "streamed": True},
+    )
+
+
+def _vectorize_blocks(tally: _Tally, settings: VectorSettings, reporter: Reporter) -> Vectorized:
+    """The hashed counts through the one weighting and reduction step: LSA fitted on a sample, blocks projected."""
+    return weigh_and_reduce(
+        hashed_term_counts(tally, settings), settings, fit_rows=SVD_FIT_ROWS, block_rows=TRANSFORM_ROWS,
+        space_dtype=np.float32, say=reporter.say,
+        track=lambda starts: reporter.track(starts, total=len(starts), label="projecting", unit="block"),
+    )
 
 
 def _kept_counts(blocks: list[Path], column_of: np.ndarray, n_columns: int, n_rows: int) -> sp.csr_matrix:

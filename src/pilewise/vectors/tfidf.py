@@ -1,6 +1,12 @@
 """Vectorizing stage: term counts (words and two-word phrases), sublinear TF-IDF, LSA.
 
-The defaults come from measurements on open labeled corpora (docs/vectorizing.md).
+Both preparation modes take one path through this module: texts are tokenized chunk by chunk by one core
+(`chunk_words`); the counts of a chunk go to a vocabulary, which is exact and held in memory here
+(`exact_counts`, with two-word phrases) or hashed in `streaming.py` (`hashed_counts`); the kept columns
+(`within_limits`, in `alphabetical` order) become one `TermCounts`; and one step, `weigh_and_reduce`,
+weights them (sublinear TF-IDF with the idf of every document) and reduces them (LSA fitted on all rows or
+on a seeded sample, rows projected block by block). The defaults come from measurements on open labeled
+corpora (docs/vectorizing.md).
 """
 
 from __future__ import annotations
@@ -123,6 +129,7 @@ def with_phrases(terms: list[str]) -> list[str]:
     return terms + [f"{a} {b}" for a, b in zip(terms, terms[1:], strict=False)]
 
 
+LSA_FIT_ROWS = 20_000  # rows of the seeded sample LSA is fitted on in both modes (more rows: fitted on all)
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
@@ -181,12 +188,15 @@ def count_terms(
         del text, counts, starts
     del word_ids, joined
     # every pair's documents over all blocks (the blocks' pair lists are sorted: the search is cache-friendly)
-    codes = np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64)
-    pair_codes, _ = _sorted_unique(codes.copy())
-    block_ids = [np.searchsorted(pair_codes, c) for c in block_codes]
-    pair_df = np.bincount(np.concatenate(block_ids), weights=np.concatenate(block_df), minlength=pair_codes.size) \
-        if block_ids else np.zeros(0)
-    del codes, block_codes, block_df
+    # (sorted in place, ids as int32, documents added block by block: the peak memory of a large collection is
+    # here, and each block's sum adds in the same order as one bincount over all blocks would)
+    pair_codes, _ = _sorted_unique(np.concatenate(block_codes) if block_codes else np.zeros(0, dtype=np.int64))
+    block_ids = []
+    pair_df = np.zeros(pair_codes.size)
+    while block_codes:
+        ids = np.searchsorted(pair_codes, block_codes.pop(0)).astype(np.int32)
+        pair_df += np.bincount(ids, weights=block_df.pop(0), minlength=pair_codes.size)
+        block_ids.append(ids)
     wanted = pair_df >= min_df
     renumber = (np.cumsum(wanted) - 1).astype(np.int32)
     pair_codes = pair_codes[wanted]
@@ -282,7 +292,7 @@ _shared: tuple[Sequence[str], Analyzer] | None = None  # what forked workers rea
 def _word_chunks(
     texts: Iterable[str], analyzer: Analyzer, workers: int
 ) -> Iterator[tuple[list[str], np.ndarray, np.ndarray]]:
-    """`_chunk_words` of consecutive chunks of PAIR_BLOCK_TEXTS texts, in order."""
+    """`chunk_words` of consecutive chunks of PAIR_BLOCK_TEXTS texts, in order."""
     global _shared
     if workers > 1 and isinstance(texts, Sequence) and len(texts) >= PARALLEL_MIN_TEXTS \
             and "fork" in multiprocessing.get_all_start_methods():
@@ -296,18 +306,22 @@ def _word_chunks(
         return
     iterator = iter(texts)
     while chunk := list(itertools.islice(iterator, PAIR_BLOCK_TEXTS)):
-        yield _chunk_words(chunk, analyzer)
+        yield chunk_words(chunk, analyzer)
 
 
 def _words_of_range(bounds: tuple[int, int]) -> tuple[list[str], np.ndarray, np.ndarray]:
     assert _shared is not None
     texts, analyzer = _shared
-    return _chunk_words(texts[bounds[0] : bounds[1]], analyzer)
+    return chunk_words(texts[bounds[0] : bounds[1]], analyzer)
 
 
-def _chunk_words(texts: Iterable[str], analyzer: Analyzer) -> tuple[list[str], np.ndarray, np.ndarray]:
+def chunk_words(texts: Iterable[str], analyzer: Analyzer) -> tuple[list[str], np.ndarray, np.ndarray]:
     """The chunk's distinct lower-cased words in order of first occurrence, every token as an index into
-    them (int32), and the number of tokens of every text (int64); a token costs one dictionary lookup."""
+    them (int32), and the number of tokens of every text (int64); a token costs one dictionary lookup.
+
+    The one tokenizing core of both modes: words become terms per distinct word afterwards (exact ids in
+    `_term_ids`, hashed columns in `streaming.hashed_counts`), as `Analyzer.terms` would give them.
+    """
     local: defaultdict[str, int] = defaultdict(itertools.count().__next__)
     local_id = local.__getitem__
     lower_words = analyzer.words
@@ -320,6 +334,154 @@ def _chunk_words(texts: Iterable[str], analyzer: Analyzer) -> tuple[list[str], n
     return list(local), np.frombuffer(raw, dtype=np.int32), np.frombuffer(lengths, dtype=np.int64)
 
 
+@dataclass(frozen=True)
+class TermCounts:
+    """The kept columns of a vocabulary (exact or hashed), counted, before weighting: what both modes hand
+    to `weigh_and_reduce`.
+
+    Attributes
+    ----------
+    counts : scipy.sparse.csr_matrix of int32, shape (n_texts, n_terms)
+        Occurrences of every kept term in every distinct text, columns in `alphabetical` order of `terms`.
+    terms : tuple of str
+        The term of each column (phrases hold one space; a hashed column shows its most frequent word).
+    is_phrase : ndarray of bool, shape (n_terms,)
+    df : ndarray of float, shape (n_terms,)
+        Documents holding each term, every text counted as often as it has copies (`document_frequency`).
+    n_documents : float
+        Documents the texts stand for (the sum of their copies).
+    min_df, max_df :
+        The limits used (`term_limits`).
+    facts : dict
+        What the vocabulary adds to the run's facts (phrases within the limits; hashed columns).
+    """
+
+    counts: sp.csr_matrix
+    terms: tuple[str, ...]
+    is_phrase: np.ndarray
+    df: np.ndarray
+    n_documents: float
+    min_df: int
+    max_df: float
+    facts: dict[str, float | int | str | bool]
+
+
+def within_limits(df: np.ndarray, min_df: float, max_df: float, n_documents: float) -> np.ndarray:
+    """Columns (sorted) whose document frequency lies in [min_df, max_df * n_documents]."""
+    return np.flatnonzero((df >= min_df) & (df <= max_df * n_documents))
+
+
+def alphabetical(names: Sequence[str]) -> np.ndarray:
+    """The order that sorts `names` alphabetically (stable): the column order of both modes."""
+    return np.argsort(np.array(names, dtype=object), kind="stable")
+
+
+def exact_counts(
+    texts: Sequence[str],
+    analyzer: Analyzer,
+    settings: VectorSettings,
+    copies: np.ndarray,
+    track: Callable[[Iterable[str]], Iterable[str]] | None = None,
+    workers: int = 1,
+) -> TermCounts:
+    """Counts of the kept words and two-word phrases of `texts` in an exact vocabulary (memory mode).
+
+    Phrases are pairs of adjacent kept words; at most MAX_PHRASES of them are kept, the most widespread
+    first. `copies` (n_texts,) says how many documents each text stands for.
+    """
+    n_documents = float(copies.sum())
+    min_df, max_df = term_limits(settings, n_documents)
+    parallel = workers > 1 and len(texts) >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a bar
+    words, word_terms, pairs, pair_words = count_terms(
+        track(texts) if track and not parallel else texts, analyzer, min_df, copies, workers=workers)
+    df_words, df_pairs = document_frequency(words, copies), document_frequency(pairs, copies)
+    keep_words = within_limits(df_words, min_df, max_df, n_documents)
+    keep_pairs = within_limits(df_pairs, min_df, max_df, n_documents)
+    phrases_within_df = int(keep_pairs.size)
+    if keep_pairs.size > MAX_PHRASES:
+        keep_pairs = np.sort(keep_pairs[np.lexsort((keep_pairs, -df_pairs[keep_pairs]))][:MAX_PHRASES])
+    if keep_words.size == 0:
+        raise no_terms_left(min_df, max_df)
+    phrase_terms = [f"{word_terms[a]} {word_terms[b]}" for a, b in pair_words[keep_pairs]]
+    all_terms = [word_terms[i] for i in keep_words] + phrase_terms
+    order = alphabetical(all_terms)
+    counts = sp.hstack([words[:, keep_words], pairs[:, keep_pairs]], format="csr")[:, order]
+    terms = tuple(all_terms[i] for i in order)
+    return TermCounts(
+        counts=sp.csr_matrix(counts, dtype=np.int32), terms=terms,
+        is_phrase=np.fromiter((" " in t for t in terms), dtype=bool, count=len(terms)),
+        df=np.concatenate([df_words[keep_words], df_pairs[keep_pairs]])[order], n_documents=n_documents,
+        min_df=min_df, max_df=max_df, facts={"phrases_within_df": phrases_within_df},
+    )
+
+
+def weigh_and_reduce(
+    kept: TermCounts,
+    settings: VectorSettings,
+    *,
+    fit_rows: int | None = None,
+    block_rows: int = 50_000,
+    space_dtype: type = np.float64,
+    say: Callable[[str], None] | None = None,
+    track: Callable[[range], Iterable[int]] | None = None,
+) -> Vectorized:
+    """The one weighting and reduction step of both modes: sublinear TF-IDF, then LSA.
+
+    The clustering space holds the single words (and the phrases with `settings.bigrams_in_space`), weighted
+    with the smoothed idf of every document (`smooth_idf` of `kept.df`) and L2-normalized. LSA
+    (`TruncatedSVD`, randomized, seeded) is fitted on every row when `fit_rows` is None, and the fit's own
+    projection (U times Sigma) is the space; otherwise it is fitted on a seeded sample of at most `fit_rows`
+    rows and every row is projected block by block (`block_rows` rows at a time, `track` showing the blocks),
+    so that the TF-IDF of the whole collection is never held at once. Projected rows are L2-normalized and
+    stored as `space_dtype`.
+    """
+    counts, n = kept.counts, kept.counts.shape[0]
+    n_phrases = int(kept.is_phrase.sum())
+    if say:
+        hashed = kept.facts.get("hashed_columns")
+        say(f"{len(kept.terms):,} terms kept " + (f"from a hashed vocabulary of {hashed:,} columns" if hashed
+                                                  else f"({n_phrases:,} two-word phrases)"))
+    every = settings.bigrams_in_space or n_phrases == 0
+    space_columns = np.arange(len(kept.terms)) if every else np.flatnonzero(~kept.is_phrase)
+    if space_columns.size == 0:
+        raise PilewiseError("no single words are left to cluster on; lower --min-df or raise --max-df")
+    in_space = counts if space_columns.size == counts.shape[1] else counts[:, space_columns]
+    idf = smooth_idf(kept.df[space_columns], kept.n_documents)
+    facts: dict[str, float | int | str | bool] = {
+        "min_df": kept.min_df,
+        "max_df": float(kept.max_df),
+        "terms": len(kept.terms),
+        "phrases": n_phrases,
+        "phrases_within_df": 0,
+        "space_terms": int(space_columns.size),
+        "texts_without_terms": int(np.sum(np.diff(in_space.indptr) == 0)),
+        "bigrams_in_space": settings.bigrams_in_space,
+        **kept.facts,
+    }
+    components = lsa_size(settings, n, int(space_columns.size))
+    if settings.lsa_components <= 0 or components < 2:
+        facts["lsa_components"] = 0
+        return Vectorized(counts=counts, terms=kept.terms, is_phrase=kept.is_phrase, space=tfidf_rows(in_space, idf),
+                          facts=facts)
+    svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
+    space: np.ndarray
+    if fit_rows is None:
+        space = normalize(svd.fit_transform(tfidf_rows(in_space, idf))).astype(space_dtype, copy=False)
+    else:
+        sample = np.sort(np.random.default_rng(settings.seed).choice(n, min(n, fit_rows), replace=False))
+        svd.fit(tfidf_rows(in_space[sample], idf))
+        space = np.empty((n, components), dtype=space_dtype)
+        starts = range(0, n, block_rows)
+        for start in track(starts) if track else starts:
+            block = tfidf_rows(in_space[start : start + block_rows], idf)
+            space[start : start + block_rows] = normalize(svd.transform(block))
+    facts["lsa_components"] = components
+    facts["lsa_explained_variance"] = round(float(svd.explained_variance_ratio_.sum()), 4)
+    if fit_rows is not None:
+        facts["lsa_fitted_on_rows"] = int(sample.size)
+    return Vectorized(counts=counts, terms=kept.terms, is_phrase=kept.is_phrase, space=space, facts=facts)
+
+
 def vectorize(
     texts: Sequence[str],
     analyzer: Analyzer,
@@ -329,66 +491,20 @@ def vectorize(
     copies: np.ndarray | None = None,
     workers: int = 1,
 ) -> Vectorized:
-    """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA.
+    """Count terms and phrases, weight with sublinear TF-IDF and reduce with LSA (memory mode: one chunk).
 
     `texts` are the distinct texts to cluster; `copies` (n_texts,) says how many documents each one
     stands for (exact copies, near-duplicate group members; default one). Every figure that counts
     documents counts them all: min_df, max_df and the idf are those of the full list of documents,
     as scikit-learn's TfidfVectorizer(sublinear_tf=True) would compute them on it (docs/method.md,
-    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`).
+    "Counting copies"). `workers` > 1 tokenizes in that many processes (see `count_terms`). LSA is fitted
+    on every text up to LSA_FIT_ROWS texts, else on a seeded sample of that many (`weigh_and_reduce`).
     """
     n = len(texts)
     weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
     if weight.shape != (n,) or np.any(weight < 1):
         raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
-    n_documents = float(weight.sum())
-    min_df, max_df = term_limits(settings, n_documents)
-    parallel = workers > 1 and n >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a progress bar
-    words, word_terms, pairs, pair_words = count_terms(
-        track(texts) if track and not parallel else texts, analyzer, min_df, weight, workers=workers)
-    df_words, df_pairs = document_frequency(words, weight), document_frequency(pairs, weight)
-    ceiling = max_df * n_documents
-    keep_words = np.flatnonzero((df_words >= min_df) & (df_words <= ceiling))
-    keep_pairs = np.flatnonzero((df_pairs >= min_df) & (df_pairs <= ceiling))
-    phrases_within_df = int(keep_pairs.size)
-    if keep_pairs.size > MAX_PHRASES:
-        keep_pairs = np.sort(keep_pairs[np.lexsort((keep_pairs, -df_pairs[keep_pairs]))][:MAX_PHRASES])
-    if keep_words.size == 0:
-        raise no_terms_left(min_df, max_df)
-    phrase_terms = [f"{word_terms[a]} {word_terms[b]}" for a, b in pair_words[keep_pairs]]
-    all_terms = [word_terms[i] for i in keep_words] + phrase_terms
-    order = np.argsort(np.array(all_terms, dtype=object), kind="stable")  # alphabetical, as before
-    counts = sp.hstack([words[:, keep_words], pairs[:, keep_pairs]], format="csr")[:, order]
-    counts = sp.csr_matrix(counts, dtype=np.int32)
-    terms = tuple(all_terms[i] for i in order)
-    is_phrase = np.fromiter((" " in t for t in terms), dtype=bool, count=len(terms))
-    if progress:
-        progress(f"{len(terms):,} terms kept ({int(is_phrase.sum()):,} two-word phrases)")
-    space_columns = np.arange(len(terms)) if settings.bigrams_in_space else np.flatnonzero(~is_phrase)
-    if space_columns.size == 0:
-        raise PilewiseError("no single words are left to cluster on; lower --min-df or raise --max-df")
-    df_space = np.concatenate([df_words[keep_words], df_pairs[keep_pairs]])[order][space_columns]
-    tfidf = tfidf_rows(counts[:, space_columns], smooth_idf(df_space, n_documents))
-    empty_rows = int(np.sum(tfidf.getnnz(axis=1) == 0))
-    facts: dict[str, float | int | str | bool] = {
-        "min_df": min_df,
-        "max_df": float(max_df),
-        "terms": len(terms),
-        "phrases": int(is_phrase.sum()),
-        "phrases_within_df": phrases_within_df,
-        "space_terms": int(space_columns.size),
-        "texts_without_terms": empty_rows,
-        "bigrams_in_space": settings.bigrams_in_space,
-    }
-    components = lsa_size(settings, n, tfidf.shape[1])
-    space: np.ndarray | sp.csr_matrix
-    if settings.lsa_components > 0 and components >= 2:
-        svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
-        reduced = svd.fit_transform(tfidf)
-        space = normalize(reduced)
-        facts["lsa_components"] = components
-        facts["lsa_explained_variance"] = round(float(svd.explained_variance_ratio_.sum()), 4)
-    else:
-        space = tfidf
-        facts["lsa_components"] = 0
-    return Vectorized(counts=counts, terms=terms, is_phrase=is_phrase, space=space, facts=facts)
+    kept = exact_counts(texts, analyzer, settings, weight, track=track, workers=workers)
+    # above LSA_FIT_ROWS texts LSA is fitted on a sample, as in streaming mode: a third of the time at 50,000
+    # texts, and NMI within the spread of seeds (docs/performance.md, "Issue 15")
+    return weigh_and_reduce(kept, settings, fit_rows=LSA_FIT_ROWS if n > LSA_FIT_ROWS else None, say=progress)
