@@ -9,6 +9,7 @@ import scipy.sparse as sp
 from sklearn import config_context
 from sklearn.metrics import silhouette_samples
 from sklearn.metrics.pairwise import euclidean_distances
+from sklearn.preprocessing import normalize
 
 from pilewise.model import QualityScores
 
@@ -169,3 +170,27 @@ def _indicator(labels: np.ndarray, ids: int) -> sp.csc_matrix:
     """Sparse (ids x rows) matrix with a 1.0 at (label, row): its product with the rows sums each cluster."""
     rows = labels.size
     return sp.csc_matrix((np.ones(rows), labels, np.arange(rows + 1)), shape=(ids, rows))
+
+
+def null_space(space: np.ndarray | sp.csr_matrix, *, seed: int) -> np.ndarray | sp.csr_matrix:
+    """A structureless version of the clustering space: each column shuffled on its own, rows back to unit length.
+
+    Every column keeps its values (so the spread along each LSA dimension, or each term's weights, is the
+    same), but which values meet in one row is random, so any grouping left is what chance gives with
+    these columns: the null reference of a gap-like statistic (Tibshirani, Walther & Hastie 2001 draw
+    their reference from a box instead; a permutation reference keeps the data's own marginals).
+    Dense: every column permuted independently. Sparse (``--lsa-components 0``): each column's stored
+    values moved down by a random number of rows (cyclic), which keeps the matrix sparse.
+    """
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0x6E756C6C,)))
+    if sp.issparse(space):
+        columns = sp.csc_matrix(space, copy=True)
+        n = columns.shape[0]
+        shift = rng.integers(0, max(n, 1), size=columns.shape[1])
+        counts = np.diff(columns.indptr)
+        columns.indices = (columns.indices + np.repeat(shift, counts)) % n
+        shuffled: np.ndarray | sp.csr_matrix = sp.csr_matrix(columns)
+        shuffled.sort_indices()
+    else:
+        shuffled = rng.permuted(np.asarray(space, dtype=np.float64), axis=0)
+    return normalize(shuffled)

@@ -35,6 +35,7 @@ class SweepPoint:
     stability_mean: float
     stability_min: float
     inertia: float
+    null_silhouette: float | None = None
 
 
 @dataclass(frozen=True)
