@@ -49,7 +49,7 @@ from measure_quality import ORDER, OUT_DIR, load_sample, nmi, pilewise_space, pr
 from pilewise.clustering.kmeans import kmeans_clusters  # noqa: E402
 from pilewise.clustering.quality import assess, null_space  # noqa: E402
 from pilewise.clustering.stability import RESAMPLE_STARTS, bootstrap_stability, kmeans_cluster_fn, stability_rows  # noqa: E402
-from pilewise.clustering.sweep import SweepPoint, recommend_k  # noqa: E402
+from pilewise.clustering.sweep import MIN_CLUSTER_TEXTS, SweepPoint, recommend_k  # noqa: E402
 
 STARTS = 4
 RESAMPLES = 10
@@ -113,6 +113,29 @@ def _largest_stable(points: list[dict[str, Any]], bar: float) -> int:
     return max(kept) if kept else int(points[0]["k"])
 
 
+def _stays_above(points: list[dict[str, Any]], bar: float) -> int:
+    """The largest k before the first k (from the smallest) whose mean stability falls below `bar`."""
+    chosen = int(points[0]["k"])
+    for p in points:
+        if p["stability"] < bar:
+            break
+        chosen = int(p["k"])
+    return chosen
+
+
+def _filtered_excess(points: list[dict[str, Any]], bar: float, min_size: int) -> int:
+    """Highest silhouette excess over the null among k with mean stability >= bar and >= min_size texts a cluster."""
+    kept = [p for p in points if p["stability"] >= bar and p["n"] / p["k"] >= min_size] or points[:1]
+    return _argmax(kept, lambda p: p["silhouette"] - p["null_silhouette"])
+
+
+def _plateau(points: list[dict[str, Any]], share: float) -> int:
+    """Smallest eligible k (stability >= 0.6, >= 15 texts a cluster) whose excess reaches `share` of the best."""
+    kept = [p for p in points if p["stability"] >= 0.6 and p["n"] / p["k"] >= MIN_CLUSTER_TEXTS] or points[:1]
+    best = max(p["silhouette"] - p["null_silhouette"] for p in kept)
+    return int(min(p["k"] for p in kept if p["silhouette"] - p["null_silhouette"] >= share * best))
+
+
 RULES: dict[str, Callable[[list[dict[str, Any]]], int]] = {
     "old: stability(1 start) filter, max silhouette": lambda ps: old_rule(_sweep_points(ps, "stability_1")),
     "stability filter, max silhouette": lambda ps: old_rule(_sweep_points(ps, "stability")),
@@ -121,8 +144,16 @@ RULES: dict[str, Callable[[list[dict[str, Any]]], int]] = {
     "max silhouette / null silhouette": lambda ps: _argmax(ps, lambda p: p["silhouette"] / p["null_silhouette"]),
     "max gap log(W_null / W)": lambda ps: _argmax(ps, lambda p: math.log(p["null_inertia"] / p["inertia"])),
     "largest k with stability >= 0.75": lambda ps: _largest_stable(ps, 0.75),
+    "stability stays >= 0.6 from the smallest k": lambda ps: _stays_above(ps, 0.6),
+    "max (silhouette - null) x stability": lambda ps: _argmax(
+        ps, lambda p: (p["silhouette"] - p["null_silhouette"]) * p["stability"]),
+    "max silhouette - null, stability >= 0.6, >= 15 texts a cluster": lambda ps: _filtered_excess(
+        ps, 0.6, MIN_CLUSTER_TEXTS),
+    "as above, smallest k reaching 3/4 of the best excess": lambda ps: _plateau(ps, 0.75),
+    "largest k with min cluster stability > 0.5": lambda ps: max(
+        [p["k"] for p in ps if p["stability_min"] > 0.5] or [ps[0]["k"]]),
     "largest k with stability >= 0.6": lambda ps: _largest_stable(ps, 0.6),
-    "chosen (recommend_k)": lambda ps: recommend_k(_sweep_points(ps, "stability"))[0],
+    "chosen (recommend_k)": lambda ps: recommend_k(_sweep_points(ps, "stability"), ps[0]["n"])[0],
 }
 
 
@@ -132,6 +163,9 @@ def render(results: list[dict[str, Any]]) -> str:
     lines.append("| true k (best NMI over the grid at k) | " + " | ".join(
         f"{r['k_true']} ({max(p['nmi'] for p in r['points']):.2f} at "
         f"{max(r['points'], key=lambda p: p['nmi'])['k']})" for r in results) + " |")
+    for r in results:
+        for p in r["points"]:
+            p["n"] = r["distinct"]
     for rule, pick in RULES.items():
         cells = []
         for r in results:
