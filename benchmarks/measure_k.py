@@ -92,6 +92,31 @@ def per_k(name: str) -> dict[str, Any]:
             "k_true": prepared.k_true, "points": points}
 
 
+def stability_purity(name: str, resamples: int = 20) -> dict[str, Any]:
+    """Per cluster at k = the gold count: purity (share of its largest gold label) and stability, 1 vs 4 starts."""
+    from measure_quality import text_labels
+    from scipy.stats import spearmanr
+
+    prepared = prepare(load_sample(name))
+    space = pilewise_space(prepared, 0)
+    weights, k = prepared.copies, prepared.k_true
+    clustering = kmeans_clusters(space, weights, k=k, seed=0, n_init=STARTS)
+    gold = text_labels(prepared)
+    purity = [float(np.bincount(gold[clustering.labels == c], weights=weights[clustering.labels == c]).max()
+                    / weights[clustering.labels == c].sum()) for c in range(k)]
+    rows = stability_rows(weights.size, 0)
+    out: dict[str, Any] = {"collection": name, "k": k, "purity": purity}
+    for key, starts in (("starts_1", 1), ("starts_4", RESAMPLE_STARTS)):
+        result = bootstrap_stability(space[rows], weights[rows], clustering.labels[rows], k=k, resamples=resamples,
+                                     seed=0, cluster_fn=kmeans_cluster_fn(k, starts))
+        values = [c.mean_jaccard for c in result.clusters]
+        out[key] = values
+        out[key + "_spearman"] = float(spearmanr(values, purity).statistic)
+    print(f"{name}: spearman 1 start {out['starts_1_spearman']:.2f}, {RESAMPLE_STARTS} starts "
+          f"{out['starts_4_spearman']:.2f}", file=sys.stderr, flush=True)
+    return out
+
+
 def _sweep_points(points: list[dict[str, Any]], stability: str) -> list[SweepPoint]:
     return [SweepPoint(p["k"], p["silhouette"], p["calinski_harabasz"], p["davies_bouldin"], p[stability],
                        p[stability + "_min"], p["inertia"], p["null_silhouette"]) for p in points]
@@ -181,7 +206,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--collections", nargs="+", default=list(ORDER))
     parser.add_argument("--out", type=Path, default=OUT_DIR / "k.json")
     parser.add_argument("--render", type=Path, help="print the tables of a saved run and stop")
+    parser.add_argument("--purity", action="store_true",
+                        help="measure per-cluster stability against purity instead (benchmarks/.out/purity.json)")
     args = parser.parse_args(argv)
+    if args.purity:
+        found = [stability_purity(name) for name in args.collections]
+        (OUT_DIR / "purity.json").write_text(json.dumps(found, indent=2) + "\n", encoding="utf-8")
+        return 0
     if args.render:
         print(render(json.loads(args.render.read_text(encoding="utf-8"))))
         return 0
