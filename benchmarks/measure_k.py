@@ -179,6 +179,8 @@ RULES: dict[str, Callable[[list[dict[str, Any]]], int]] = {
         [p["k"] for p in ps if p["stability_min"] > 0.5] or [ps[0]["k"]]),
     "largest k with stability >= 0.6": lambda ps: _largest_stable(ps, 0.6),
     "chosen (recommend_k)": lambda ps: recommend_k(_sweep_points(ps, "stability"), ps[0]["n"])[0],
+    "chosen, range 2:20 (the default)": lambda ps: recommend_k(
+        _sweep_points([p for p in ps if p["k"] <= 20], "stability"), ps[0]["n"])[0],
 }
 
 

@@ -24,8 +24,9 @@ PLATEAU = 0.75  # the smallest k that reaches this share of the best excess over
 RECOMMENDATION_RULE = (
     f"keep the k whose mean cluster stability is at least {PATTERN} (Hennig's 'pattern') and whose clusters hold "
     f"{MIN_CLUSTER_TEXTS} distinct texts on average; score each by its silhouette minus the silhouette of the same "
-    f"vectors with each dimension shuffled; take the smallest k that reaches {PLATEAU:.0%} of the best score "
-    "(the runner-up is the k with the best score, or the next best)"
+    f"vectors with each dimension shuffled; take the best k when the score falls below {PLATEAU:.0%} of its best "
+    f"by the end of the range (a peak), else the smallest k reaching {PLATEAU:.0%} of the best (the score still "
+    "rises, as it does on most text); the runner-up is the next best score"
 )
 
 
@@ -155,7 +156,8 @@ def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | No
 
     On text, the silhouette and its excess over the null reference keep growing slowly with k (docs/method.md,
     "Choosing k"), so the highest score sits at the top of the range; the smallest k reaching PLATEAU of it
-    is where most of the gain has been made. Stability keeps k whose clusters reappear in resamples, the
+    is where most of the gain has been made. When the score peaks instead (it falls below PLATEAU of its best
+    by the largest k kept), the peak is taken. Stability keeps k whose clusters reappear in resamples, the
     size bound keeps k whose clusters are more than a handful of texts.
 
     Parameters
@@ -176,13 +178,18 @@ def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | No
         kept = sized
         level = f"at least {MIN_CLUSTER_TEXTS} texts a cluster (no k reached mean stability {PATTERN})"
     best = max(kept, key=lambda p: (excess(p), -p.k))
-    chosen = min((p for p in kept if excess(p) >= PLATEAU * excess(best)), key=lambda p: p.k) \
-        if excess(best) > 0 else best
+    top = max(kept, key=lambda p: p.k)
+    peaked = top.k != best.k and excess(top) < PLATEAU * excess(best)
+    if peaked or excess(best) <= 0:
+        chosen, how = best, "the best excess, a peak"
+    else:
+        chosen = min((p for p in kept if excess(p) >= PLATEAU * excess(best)), key=lambda p: p.k)
+        how = f"the smallest k reaching {PLATEAU:.0%} of the best excess (k={best.k}; still rising)"
     others = sorted((p for p in kept if p.k != chosen.k), key=lambda p: (-excess(p), p.k))
     runner_up = others[0].k if others else None
     null = "undefined" if chosen.null_silhouette is None else f"{chosen.null_silhouette:.3f}"
     silhouette = "undefined" if chosen.silhouette is None else f"{chosen.silhouette:.3f}"
-    reason = (f"k={chosen.k}: silhouette {silhouette} against {null} for shuffled vectors, the smallest k reaching "
-              f"{PLATEAU:.0%} of the best excess among the k with {level}; mean stability "
-              f"{chosen.stability_mean:.2f}; runner-up k={runner_up if runner_up is not None else 'none'}")
+    reason = (f"k={chosen.k}: silhouette {silhouette} against {null} for shuffled vectors, {how}, among the k with "
+              f"{level}; mean stability {chosen.stability_mean:.2f}; runner-up "
+              f"k={runner_up if runner_up is not None else 'none'}")
     return chosen.k, runner_up, reason
