@@ -23,7 +23,9 @@ How to run
     bash corpora/fetch.sh --all
     python benchmarks/measure_k.py                        # every collection (about 25 min on 2 busy cores)
     python benchmarks/measure_k.py --collections foldoc
-    python benchmarks/measure_k.py --render benchmarks/.out/k.json   # the tables of a saved run again
+    python benchmarks/measure_k.py --collections wordnet_glosses fortunes --sample 4000 --coarse \
+        --out benchmarks/.out/k-large.json                   # the large ones on a coarser grid
+    python benchmarks/measure_k.py --render benchmarks/.out/k.json benchmarks/.out/k-large.json
 
 Every figure goes to ``benchmarks/.out/k.json`` (``--out``).
 """
@@ -55,21 +57,22 @@ STARTS = 4
 RESAMPLES = 10
 
 
-def k_grid(k_true: int, n: int) -> list[int]:
-    """2..30, then every third k up to 1.5 x the labels (at most n - 1)."""
+def k_grid(k_true: int, n: int, coarse: bool = False) -> list[int]:
+    """2..30, then every third k up to 1.5 x the labels (at most n - 1); coarse: 2..10, then every third k."""
     top = max(20, math.ceil(1.5 * k_true))
-    ks = list(range(2, min(top, 30) + 1)) + list(range(33, top + 1, 3))
+    dense_to = 10 if coarse else 30
+    ks = list(range(2, min(top, dense_to) + 1)) + list(range(dense_to + 3, top + 1, 3))
     return [k for k in ks if k < n]
 
 
-def per_k(name: str) -> dict[str, Any]:
-    prepared = prepare(load_sample(name))
+def per_k(name: str, sample: int | None = None, coarse: bool = False) -> dict[str, Any]:
+    prepared = prepare(load_sample(name, sample))
     space = pilewise_space(prepared, 0)
     weights = prepared.copies
     null = null_space(space, seed=0)
     rows = stability_rows(weights.size, 0)
     points = []
-    for k in k_grid(prepared.k_true, weights.size):
+    for k in k_grid(prepared.k_true, weights.size, coarse):
         started = time.perf_counter()
         clustering = kmeans_clusters(space, weights, k=k, seed=0, n_init=STARTS)
         quality = assess(space, clustering.labels, k=k, seed=0)
@@ -89,7 +92,7 @@ def per_k(name: str) -> dict[str, Any]:
         print(f"{name} k={k} nmi={points[-1]['nmi']:.3f} sil={quality.silhouette:.3f} "
               f"null={null_quality.silhouette:.3f} stab={stabilities['stability']:.2f}", file=sys.stderr, flush=True)
     return {"collection": name, "documents": prepared.documents, "distinct": int(weights.size),
-            "k_true": prepared.k_true, "points": points}
+            "k_true": prepared.k_true, "points": points, "coarse": coarse}
 
 
 def stability_purity(name: str, resamples: int = 20) -> dict[str, Any]:
@@ -207,7 +210,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--collections", nargs="+", default=list(ORDER))
     parser.add_argument("--out", type=Path, default=OUT_DIR / "k.json")
-    parser.add_argument("--render", type=Path, help="print the tables of a saved run and stop")
+    parser.add_argument("--render", type=Path, nargs="+", help="print the tables of saved runs and stop")
+    parser.add_argument("--sample", type=int, help="documents kept of each collection (default: SAMPLES)")
+    parser.add_argument("--coarse", action="store_true", help="every k to 10, then every third k")
     parser.add_argument("--purity", action="store_true",
                         help="measure per-cluster stability against purity instead (benchmarks/.out/purity.json)")
     args = parser.parse_args(argv)
@@ -216,11 +221,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         (OUT_DIR / "purity.json").write_text(json.dumps(found, indent=2) + "\n", encoding="utf-8")
         return 0
     if args.render:
-        print(render(json.loads(args.render.read_text(encoding="utf-8"))))
+        print(render([r for path in args.render for r in json.loads(path.read_text(encoding="utf-8"))]))
         return 0
     results = []
     for name in args.collections:
-        results.append(per_k(name))
+        results.append(per_k(name, args.sample, args.coarse))
         args.out.parent.mkdir(parents=True, exist_ok=True)
         args.out.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
     print(render(results))
