@@ -65,7 +65,7 @@ def k_grid(k_true: int, n: int, coarse: bool = False) -> list[int]:
     return [k for k in ks if k < n]
 
 
-def per_k(name: str, sample: int | None = None, coarse: bool = False) -> dict[str, Any]:
+def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples: int = RESAMPLES) -> dict[str, Any]:
     prepared = prepare(load_sample(name, sample))
     space = pilewise_space(prepared, 0)
     weights = prepared.copies
@@ -81,7 +81,7 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False) -> dict[st
         stabilities = {}
         for key, starts in (("stability_1", 1), ("stability", RESAMPLE_STARTS)):
             result = bootstrap_stability(space[rows], weights[rows], clustering.labels[rows], k=k,
-                                         resamples=RESAMPLES, seed=0, cluster_fn=kmeans_cluster_fn(k, starts))
+                                         resamples=resamples, seed=0, cluster_fn=kmeans_cluster_fn(k, starts))
             stabilities[key] = result.mean
             stabilities[key + "_min"] = float(np.nanmin([c.mean_jaccard for c in result.clusters]))
         points.append({"k": k, "nmi": nmi(prepared, clustering.labels), "silhouette": quality.silhouette,
@@ -95,12 +95,12 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False) -> dict[st
             "k_true": prepared.k_true, "points": points, "coarse": coarse}
 
 
-def stability_purity(name: str, resamples: int = 20) -> dict[str, Any]:
+def stability_purity(name: str, resamples: int = 20, sample: int | None = None) -> dict[str, Any]:
     """Per cluster at k = the gold count: purity (share of its largest gold label) and stability, 1 vs 4 starts."""
     from measure_quality import text_labels
     from scipy.stats import spearmanr
 
-    prepared = prepare(load_sample(name))
+    prepared = prepare(load_sample(name, sample))
     space = pilewise_space(prepared, 0)
     weights, k = prepared.copies, prepared.k_true
     clustering = kmeans_clusters(space, weights, k=k, seed=0, n_init=STARTS)
@@ -213,19 +213,22 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--render", type=Path, nargs="+", help="print the tables of saved runs and stop")
     parser.add_argument("--sample", type=int, help="documents kept of each collection (default: SAMPLES)")
     parser.add_argument("--coarse", action="store_true", help="every k to 10, then every third k")
+    parser.add_argument("--resamples", type=int, help="bootstrap resamples (default 10 per k, 20 for --purity)")
     parser.add_argument("--purity", action="store_true",
                         help="measure per-cluster stability against purity instead (benchmarks/.out/purity.json)")
     args = parser.parse_args(argv)
     if args.purity:
-        found = [stability_purity(name) for name in args.collections]
-        (OUT_DIR / "purity.json").write_text(json.dumps(found, indent=2) + "\n", encoding="utf-8")
+        found = [stability_purity(name, args.resamples or 20, args.sample) for name in args.collections]
+        args.out.parent.mkdir(parents=True, exist_ok=True)
+        target = args.out if args.out != OUT_DIR / "k.json" else OUT_DIR / "purity.json"
+        target.write_text(json.dumps(found, indent=2) + "\n", encoding="utf-8")
         return 0
     if args.render:
         print(render([r for path in args.render for r in json.loads(path.read_text(encoding="utf-8"))]))
         return 0
     results = []
     for name in args.collections:
-        results.append(per_k(name, args.sample, args.coarse))
+        results.append(per_k(name, args.sample, args.coarse, args.resamples or RESAMPLES))
         args.out.parent.mkdir(parents=True, exist_ok=True)
         args.out.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
     print(render(results))
