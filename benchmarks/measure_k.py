@@ -23,7 +23,7 @@ How to run
     bash corpora/fetch.sh --all
     python benchmarks/measure_k.py                        # every collection (about 25 min on 2 busy cores)
     python benchmarks/measure_k.py --collections foldoc
-    python benchmarks/measure_k.py --collections wordnet_glosses fortunes --sample 4000 --coarse \
+    python benchmarks/measure_k.py --collections wordnet_glosses fortunes --sample 3000 --coarse --resamples 5 \
         --out benchmarks/.out/k-large.json                   # the large ones on a coarser grid
     python benchmarks/measure_k.py --render benchmarks/.out/k.json benchmarks/.out/k-large.json
 
