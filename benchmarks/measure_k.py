@@ -161,6 +161,8 @@ def _plateau(points: list[dict[str, Any]], share: float) -> int:
     """Smallest eligible k (stability >= 0.6, >= 15 texts a cluster) whose excess reaches `share` of the best."""
     kept = [p for p in points if p["stability"] >= 0.6 and p["n"] / p["k"] >= MIN_CLUSTER_TEXTS] or points[:1]
     best = max(p["silhouette"] - p["null_silhouette"] for p in kept)
+    if best <= 0:
+        return _argmax(kept, lambda p: p["silhouette"] - p["null_silhouette"])
     return int(min(p["k"] for p in kept if p["silhouette"] - p["null_silhouette"] >= share * best))
 
 
