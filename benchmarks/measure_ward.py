@@ -22,6 +22,9 @@ Full Ward needs the condensed distance matrix, n(n-1)/2 doubles, and SciPy copie
 Timings are wall-clock on a shared machine; the load average before each run is printed beside it.
 Random unit vectors have no cluster structure, so these figures say nothing about the quality of the trees.
 
+With ``--quality COLLECTION...`` it measures instead, on the open corpora, the NMI of pilewise's Ward cut,
+of scikit-learn's ``AgglomerativeClustering(linkage="ward")`` and of pilewise's k-means on the same vectors.
+
 How to run
 ----------
     python benchmarks/measure_ward.py                         # 2k..30k both methods, 100k two-stage only
@@ -155,6 +158,41 @@ def table(rows: list[dict[str, Any]]) -> str:
     return "\n".join(lines)
 
 
+def quality(names: Sequence[str], seeds: Sequence[int]) -> str:
+    """NMI of pilewise's Ward cut, scikit-learn's Ward and pilewise's k-means on the same vectors, k = the labels.
+
+    The vectors are pilewise's default space of each open corpus (``measure_quality.pilewise_space``; the
+    large ones on ``measure_quality.SAMPLES``); ``same partition`` is the NMI between the two Ward cuts.
+    """
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from measure_quality import load_sample, nmi, pilewise_space, prepare
+    from sklearn.cluster import AgglomerativeClustering
+    from sklearn.metrics import normalized_mutual_info_score
+
+    from pilewise.clustering.hierarchy import cut_tree, ward_tree
+    from pilewise.clustering.kmeans import kmeans_clusters
+
+    lines = ["| collection | texts | k | pilewise Ward | scikit-learn Ward | same partition | pilewise k-means |",
+             "|---|---|---|---|---|---|---|"]
+    for name in names:
+        prepared = prepare(load_sample(name))
+        k = prepared.k_true
+        found: dict[str, list[float]] = {"ward": [], "sklearn": [], "same": [], "kmeans": []}
+        for seed in seeds:
+            space = pilewise_space(prepared, seed)
+            ours = cut_tree(ward_tree(space, prepared.copies, seed=seed), k)
+            theirs = AgglomerativeClustering(n_clusters=k, linkage="ward").fit_predict(space)
+            found["ward"].append(nmi(prepared, ours))
+            found["sklearn"].append(nmi(prepared, theirs))
+            found["same"].append(float(normalized_mutual_info_score(ours, theirs)))
+            found["kmeans"].append(nmi(prepared, kmeans_clusters(space, prepared.copies, k=k, seed=seed,
+                                                                 n_init=4).labels))
+        cells = " | ".join(f"{np.mean(found[key]):.3f}" for key in ("ward", "sklearn", "same", "kmeans"))
+        lines.append(f"| {name} | {len(prepared.texts):,} | {k} | {cells} |")
+        print(lines[-1], file=sys.stderr, flush=True)
+    return "\n".join(lines)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0] if __doc__ else None)
     parser.add_argument("--sizes", type=int, nargs="+", default=[2000, 5000, 10000, 20000, 30000])
@@ -167,7 +205,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--out", type=Path, default=OUT_DIR / "ward.json", help="JSON output; Markdown beside it")
     parser.add_argument("--child", choices=["full", "two-stage"], help=argparse.SUPPRESS)
     parser.add_argument("--n", type=int, help=argparse.SUPPRESS)
+    parser.add_argument("--quality", nargs="+", metavar="COLLECTION",
+                        help="instead: NMI of Ward (pilewise, scikit-learn) and k-means on these open corpora")
+    parser.add_argument("--seeds", type=int, nargs="+", default=[0, 1, 2, 3, 4], help="seeds for --quality")
     args = parser.parse_args(argv)
+    if args.quality:
+        print(quality(args.quality, args.seeds))
+        return 0
     if args.child:
         print(json.dumps(child(args.child, args.n, args.dims, args.seed)))
         return 0

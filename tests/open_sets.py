@@ -30,6 +30,7 @@ __all__ = [
     "LabeledCollection",
     "cache_dir",
     "load_chat_categories",
+    "load_foldoc",
     "load_fortunes",
     "load_mini_newsgroups",
     "load_reuters_sample",
@@ -469,6 +470,75 @@ def load_fortunes() -> LabeledCollection:
     )
 
 
+# --------------------------------------------------------------------------------------------------
+# Free On-line Dictionary of Computing entries by subject (Debian dict-foldoc)
+# --------------------------------------------------------------------------------------------------
+
+FOLDOC_SUBJECTS = frozenset(
+    {"language", "networking", "operating system", "company", "mathematics", "database", "graphics", "person"}
+)
+_DICTD_DIGITS = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/"
+
+
+def _dictd_number(text: str) -> int:
+    """Decode a dictd index number: base-64 digits, most significant first (dictd's index format)."""
+    value = 0
+    for char in text:
+        value = value * 64 + _DICTD_DIGITS.index(char)
+    return value
+
+
+def load_foldoc(min_words: int = 10) -> LabeledCollection:
+    """Load entries of the Free On-line Dictionary of Computing labeled by subject (8 subjects, 2,858 entries).
+
+    An entry's subject is its first ``<tag>`` (the part before a comma: ``<networking, standard>`` is
+    networking); entries whose subject is not one of :data:`FOLDOC_SUBJECTS` are left out. Index lines that
+    point at the same entry (alternative headwords) give one document.
+
+    Parameters
+    ----------
+    min_words : int, default 10
+        Entries with fewer words (after the tags are removed) are left out.
+
+    Returns
+    -------
+    LabeledCollection
+        Texts are the entries with every ``<...>`` tag removed (tags name the label); labels are the
+        subjects; titles are the headwords.
+
+    Raises
+    ------
+    CorpusNotFetchedError
+        If ``bash corpora/fetch.sh --all`` has not been run.
+    """
+    folder = cache_dir() / "foldoc"
+    index = _require(folder / "foldoc.index", needs_all=True)
+    data = gzip.decompress(_require(folder / "foldoc.dict.dz", needs_all=True).read_bytes())
+    seen: set[tuple[int, int]] = set()
+    rows: list[tuple[str, str, str]] = []
+    for line in index.read_text(encoding="utf-8", errors="replace").splitlines():
+        fields = line.split("\t")
+        if len(fields) != 3:
+            continue
+        headword, offset, length = fields[0], _dictd_number(fields[1]), _dictd_number(fields[2])
+        if (offset, length) in seen:
+            continue
+        seen.add((offset, length))
+        entry = data[offset : offset + length].decode("utf-8", errors="replace")
+        tag = re.search(r"<([^<>]+)>", entry)
+        if tag is None or (subject := tag.group(1).split(",")[0].strip()) not in FOLDOC_SUBJECTS:
+            continue
+        text = re.sub(r"<[^<>]*>", " ", entry).strip()
+        if len(text.split()) >= min_words:
+            rows.append((text, subject, headword))
+    return _collection(
+        "foldoc",
+        rows,
+        _source(folder, "Debian dict-foldoc, usr/share/dictd/foldoc.{index,dict.dz}"),
+        "GNU Free Documentation License 1.1 or later (FOLDOC notice; Debian dict-foldoc copyright file)",
+    )
+
+
 AVAILABLE: dict[str, Callable[[], LabeledCollection]] = {
     "mini_newsgroups": load_mini_newsgroups,
     "reuters_sample": load_reuters_sample,
@@ -476,4 +546,5 @@ AVAILABLE: dict[str, Callable[[], LabeledCollection]] = {
     "sentence_sources": load_sentence_sources,
     "wordnet_glosses": load_wordnet_glosses,
     "fortunes": load_fortunes,
+    "foldoc": load_foldoc,
 }

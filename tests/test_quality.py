@@ -11,7 +11,7 @@ import scipy.sparse as sp
 from sklearn.metrics import calinski_harabasz_score, davies_bouldin_score, silhouette_score
 
 from pilewise.clustering import quality
-from pilewise.clustering.quality import assess, calinski_harabasz_davies_bouldin, silhouette_reading
+from pilewise.clustering.quality import assess, calinski_harabasz_davies_bouldin
 
 
 def test_davies_bouldin_matches_scikit_learn_documentation_example() -> None:
@@ -167,15 +167,3 @@ def test_silhouette_is_undefined_when_every_point_is_its_own_cluster() -> None:
     # scikit-learn docs: silhouette is defined for 2 <= number of labels <= n - 1.
     scores = assess(np.eye(3), np.array([0, 1, 2]), k=3, seed=0)
     assert scores.silhouette is None and scores.silhouette_reading == "not defined"
-
-
-@pytest.mark.parametrize(
-    ("value", "reading"),
-    [(0.71, "strong structure"), (0.70, "reasonable structure"), (0.51, "reasonable structure"),
-     (0.50, "weak structure, could be artificial"), (0.26, "weak structure, could be artificial"),
-     (0.25, "no substantial structure"), (-0.3, "no substantial structure")],
-)
-def test_silhouette_bands(value: float, reading: str) -> None:
-    # Kaufman & Rousseeuw (1990): > 0.70 strong, 0.51-0.70 reasonable, 0.26-0.50 weak, <= 0.25 none
-    # (attribution from memory, as listed in shared/CHECKS.md).
-    assert silhouette_reading(value) == reading

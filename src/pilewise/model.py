@@ -136,6 +136,7 @@ class QualityScores:
     davies_bouldin: float | None
     silhouette_reading: str = ""
     per_cluster_silhouette: tuple[float, ...] = field(default_factory=tuple)
+    null_silhouette: float | None = None  # the same silhouette on the column-shuffled space (clustering.quality)
 
 
 @dataclass(frozen=True)

@@ -2,13 +2,18 @@
 
 from __future__ import annotations
 
+import math
+import warnings
 from collections.abc import Iterator
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn import config_context
+from sklearn.cluster import KMeans
+from sklearn.exceptions import ConvergenceWarning
 from sklearn.metrics import silhouette_samples
 from sklearn.metrics.pairwise import euclidean_distances
+from sklearn.preprocessing import normalize
 
 from pilewise.model import QualityScores
 
@@ -19,21 +24,67 @@ BLOCK_BYTES = 4 * 2**20
 BLOCK_ROWS = 50_000
 
 
-def silhouette_reading(value: float | None) -> str:
-    """Kaufman & Rousseeuw (1990) bands for the average silhouette width (attribution from memory)."""
+NULL_STARTS = 4  # k-means++ starts for the clustering of the null reference
+
+# Bands of the ratio of the silhouette to the null reference's, measured on the open corpora (docs/method.md,
+# "Quality of the whole clustering"): at the true number of groups the ratio ran from 1.03 (two newsgroups,
+# whose split is no better separated than a split of shuffled vectors) to 2.7 (four sentence sources).
+NULL_READINGS: tuple[tuple[float, str], ...] = (
+    (2.5, "far better separated than chance"),
+    (1.5, "clearly better separated than chance"),
+    (1.1, "somewhat better separated than chance"),
+    (-math.inf, "no better separated than chance; judge the clusters by their stability and terms"),
+)
+
+
+def silhouette_reading(value: float | None, null: float | None) -> str:
+    """One line saying what the silhouette means: it against the same figure on the column-shuffled vectors.
+
+    Parameters
+    ----------
+    value : float or None
+        The clustering's average cosine silhouette.
+    null : float or None
+        The silhouette of k-means at the same k on `null_space` of the same rows (the null reference).
+
+    Returns
+    -------
+    str
+        ``"<value> against <null> for the same vectors with each dimension shuffled: <band>"``, the band by
+        the ratio value / null (NULL_READINGS); ``"not defined"`` without a value, and the value alone
+        (``"no null reference"``) when the reference could not be computed.
+    """
     if value is None:
         return "not defined"
-    if value > 0.70:
-        return "strong structure"
-    if value > 0.50:
-        return "reasonable structure"
-    if value > 0.25:
-        return "weak structure, could be artificial"
-    return "no substantial structure"
+    if null is None:
+        return f"{value:.3f}; no null reference could be computed"
+    ratio = value / null if null > 0 else (math.inf if value > null else 1.0)
+    band = next(reading for lower, reading in NULL_READINGS if ratio >= lower)
+    return f"{value:.3f} against {null:.3f} for the same vectors with each dimension shuffled: {band}"
+
+
+def null_silhouette(rows: np.ndarray | sp.csr_matrix, k: int, *, seed: int, starts: int = NULL_STARTS) -> float | None:
+    """Cosine silhouette of seeded k-means at `k` on `null_space(rows)`: what chance gives with these columns.
+
+    None when the shuffled rows do not fall into at least two clusters (too few distinct rows).
+    """
+    shuffled = null_space(rows, seed=seed)
+    model = KMeans(n_clusters=min(k, shuffled.shape[0]), n_init=starts, random_state=seed)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)  # a null with fewer distinct rows than k
+        labels = model.fit_predict(shuffled)
+    present = np.unique(labels).size
+    if not 2 <= present <= shuffled.shape[0] - 1:
+        return None
+    with config_context(working_memory=64):
+        return float(silhouette_samples(shuffled, labels, metric="cosine").mean())
 
 
 def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, seed: int) -> QualityScores:
-    """Silhouette (cosine; a seeded sample above SILHOUETTE_SAMPLE texts), CH and DB (Euclidean).
+    """Silhouette (cosine; a seeded sample above SILHOUETTE_SAMPLE texts) with its null reference, CH and DB.
+
+    The null reference is `null_silhouette` on the same sampled rows (k-means at the same k on the rows with
+    each column shuffled); the reading compares the two (`silhouette_reading`). CH and DB are Euclidean.
 
     Scores are over the distinct texts. Silhouette is defined for 2 <= clusters <= n - 1. CH and DB are
     computed in row blocks (see `calinski_harabasz_davies_bouldin`), dense or sparse, at any size.
@@ -41,13 +92,14 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
     n = labels.shape[0]
     present = np.unique(labels).size
     if present < 2 or present > n - 1:
-        return QualityScores(None, 0, None, None, silhouette_reading(None))
+        return QualityScores(None, 0, None, None, silhouette_reading(None, None))
     rows = np.arange(n)
     if n > SILHOUETTE_SAMPLE:
         rows = np.sort(np.random.default_rng(seed).choice(n, SILHOUETTE_SAMPLE, replace=False))
     sample_labels = labels[rows]
     per_cluster: list[float] = []
     silhouette: float | None = None
+    null: float | None = None
     if np.unique(sample_labels).size >= 2:
         # scikit-learn computes distances in chunks of `working_memory` MB (1 GB by default); 64 MB keeps the
         # run's peak memory near its data at the same speed
@@ -56,14 +108,16 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
         silhouette = float(widths.mean())
         per_cluster = [float(widths[sample_labels == c].mean()) if np.any(sample_labels == c) else float("nan")
                        for c in range(k)]
+        null = null_silhouette(space[rows], k, seed=seed)
     ch, db = calinski_harabasz_davies_bouldin(space, labels)
     return QualityScores(
         silhouette=silhouette,
         silhouette_sample=int(rows.size),
         calinski_harabasz=ch,
         davies_bouldin=db,
-        silhouette_reading=silhouette_reading(silhouette),
+        silhouette_reading=silhouette_reading(silhouette, null),
         per_cluster_silhouette=tuple(per_cluster),
+        null_silhouette=null,
     )
 
 
@@ -169,3 +223,28 @@ def _indicator(labels: np.ndarray, ids: int) -> sp.csc_matrix:
     """Sparse (ids x rows) matrix with a 1.0 at (label, row): its product with the rows sums each cluster."""
     rows = labels.size
     return sp.csc_matrix((np.ones(rows), labels, np.arange(rows + 1)), shape=(ids, rows))
+
+
+def null_space(space: np.ndarray | sp.csr_matrix, *, seed: int) -> np.ndarray | sp.csr_matrix:
+    """A structureless version of the clustering space: each column shuffled on its own, rows back to unit length.
+
+    Every column keeps its values (so the spread along each LSA dimension, or each term's weights, is the
+    same), but which values meet in one row is random, so any grouping left is what chance gives with
+    these columns: the null reference of a gap-like statistic (Tibshirani, Walther & Hastie 2001 draw
+    their reference from a box instead; a permutation reference keeps the data's own marginals).
+    Dense: every column permuted independently. Sparse (``--lsa-components 0``): each column's stored
+    values moved down by a random number of rows (cyclic), which keeps the matrix sparse.
+    """
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0x6E756C6C,)))
+    if sp.issparse(space):
+        columns = sp.csc_matrix(space, copy=True)
+        n = columns.shape[0]
+        shift = rng.integers(0, max(n, 1), size=columns.shape[1])
+        counts = np.diff(columns.indptr)
+        columns.indices = (columns.indices + np.repeat(shift, counts)) % n
+        rows = sp.csr_matrix(columns)
+        rows.sort_indices()
+        shuffled: np.ndarray | sp.csr_matrix = rows
+    else:
+        shuffled = rng.permuted(np.asarray(space, dtype=np.float64), axis=0)
+    return normalize(shuffled)

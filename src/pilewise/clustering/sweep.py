@@ -18,9 +18,15 @@ STABLE = 0.75  # Hennig's clusterboot documentation: ">= 0.75 valid, stable"
 PATTERN = 0.6  # same source: "0.6-0.75 indicates a pattern"
 
 
+MIN_CLUSTER_TEXTS = 15  # at most (distinct texts / 15) clusters: beyond that, silhouettes of tiny groups only grow
+PLATEAU = 0.75  # the smallest k that reaches this share of the best excess over the null reference
+
 RECOMMENDATION_RULE = (
-    "keep the k whose mean cluster stability is at least 0.75 (Hennig's 'stable'); if none, those at least 0.6; "
-    "if none, all; among them take the highest cosine silhouette, ties to the smaller k"
+    f"keep the k whose mean cluster stability is at least {PATTERN} (Hennig's 'pattern') and whose clusters hold "
+    f"{MIN_CLUSTER_TEXTS} distinct texts on average; score each by its silhouette minus the silhouette of the same "
+    f"vectors with each dimension shuffled; take the best k when the score falls below {PLATEAU:.0%} of its best "
+    f"by the end of the range (a peak), else the smallest k reaching {PLATEAU:.0%} of the best (the score still "
+    "rises, as it does on most text); the runner-up is the next best score"
 )
 
 
@@ -35,6 +41,7 @@ class SweepPoint:
     stability_mean: float
     stability_min: float
     inertia: float
+    null_silhouette: float | None = None
 
 
 @dataclass(frozen=True)
@@ -47,6 +54,7 @@ class Sweep:
     resamples: int
     stability_rows: int
     warm_start_kept: tuple[int, ...] = ()
+    runner_up_k: int | None = None
 
 
 def parse_k_range(text: str) -> tuple[int, int]:
@@ -130,28 +138,58 @@ def sweep_clusterings(
         )
         values = [c.mean_jaccard for c in stability.clusters if not np.isnan(c.mean_jaccard)]
         points.append(SweepPoint(k, quality.silhouette, quality.calinski_harabasz, quality.davies_bouldin,
-                                 float(np.mean(values)), float(np.min(values)), clustering.inertia))
-    k_best, reason = recommend_k(points)
-    return Sweep(tuple(points), k_best, reason, resamples, int(sample.size))
+                                 float(np.mean(values)), float(np.min(values)), clustering.inertia,
+                                 quality.null_silhouette))
+    k_best, runner_up, reason = recommend_k(points, int(weights.size))
+    return Sweep(tuple(points), k_best, reason, resamples, int(sample.size), runner_up_k=runner_up)
 
 
-def recommend_k(points: Sequence[SweepPoint]) -> tuple[int, str]:
-    """The k with the highest silhouette among those whose clusters are stable on average.
+def excess(point: SweepPoint) -> float:
+    """Silhouette minus its null reference (the silhouette alone when no reference was computed); -2 if undefined."""
+    if point.silhouette is None:
+        return -2.0
+    return point.silhouette - (point.null_silhouette or 0.0)
 
-    Rule: keep the k whose mean cluster stability is at least 0.75 (Hennig's "stable"); if none,
-    those at least 0.6 ("a pattern"); if none, all. Among them take the highest cosine
-    silhouette; ties go to the smaller k.
+
+def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | None, str]:
+    """The recommended k, the runner-up k and the reason, by RECOMMENDATION_RULE.
+
+    On text, the silhouette and its excess over the null reference keep growing slowly with k (docs/method.md,
+    "Choosing k"), so the highest score sits at the top of the range; the smallest k reaching PLATEAU of it
+    is where most of the gain has been made. When the score peaks instead (it falls below PLATEAU of its best
+    by the largest k kept), the peak is taken. Stability keeps k whose clusters reappear in resamples, the
+    size bound keeps k whose clusters are more than a handful of texts.
+
+    Parameters
+    ----------
+    points : sequence of SweepPoint
+        One per k, in increasing k.
+    texts : int
+        Distinct texts clustered.
+
+    Returns
+    -------
+    k, runner_up, reason : int, int or None, str
     """
-    candidates = [p for p in points if p.stability_mean >= STABLE]
-    level = f"among the k whose mean cluster stability is at least {STABLE}"
-    if not candidates:
-        candidates = [p for p in points if p.stability_mean >= PATTERN]
-        level = f"among the k whose mean stability is at least {PATTERN} (none reached {STABLE})"
-    if not candidates:
-        candidates = list(points)
-        level = f"among all k (none reached mean stability {PATTERN})"
-    best = max(candidates, key=lambda p: (p.silhouette if p.silhouette is not None else -2.0, -p.k))
-    silhouette = "undefined" if best.silhouette is None else f"{best.silhouette:.3f}"
-    reason = f"k={best.k} has the highest silhouette ({silhouette}) {level}; its mean stability is " \
-        f"{best.stability_mean:.2f}"
-    return best.k, reason
+    sized = [p for p in points if texts / p.k >= MIN_CLUSTER_TEXTS] or list(points[:1])
+    kept = [p for p in sized if p.stability_mean >= PATTERN]
+    level = f"mean stability at least {PATTERN}, at least {MIN_CLUSTER_TEXTS} texts a cluster"
+    if not kept:
+        kept = sized
+        level = f"at least {MIN_CLUSTER_TEXTS} texts a cluster (no k reached mean stability {PATTERN})"
+    best = max(kept, key=lambda p: (excess(p), -p.k))
+    top = max(kept, key=lambda p: p.k)
+    peaked = top.k != best.k and excess(top) < PLATEAU * excess(best)
+    if peaked or excess(best) <= 0:
+        chosen, how = best, "the best excess, a peak"
+    else:
+        chosen = min((p for p in kept if excess(p) >= PLATEAU * excess(best)), key=lambda p: p.k)
+        how = f"the smallest k reaching {PLATEAU:.0%} of the best excess (k={best.k}; still rising)"
+    others = sorted((p for p in kept if p.k != chosen.k), key=lambda p: (-excess(p), p.k))
+    runner_up = others[0].k if others else None
+    null = "undefined" if chosen.null_silhouette is None else f"{chosen.null_silhouette:.3f}"
+    silhouette = "undefined" if chosen.silhouette is None else f"{chosen.silhouette:.3f}"
+    reason = (f"k={chosen.k}: silhouette {silhouette} against {null} for shuffled vectors, {how}, among the k with "
+              f"{level}; mean stability {chosen.stability_mean:.2f}; runner-up "
+              f"k={runner_up if runner_up is not None else 'none'}")
+    return chosen.k, runner_up, reason

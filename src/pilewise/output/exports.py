@@ -79,7 +79,7 @@ def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
     """Every figure of a sweep over k, and the recommended k with the rule's reason."""
     return {
         "run": name,
-        "recommended_k": sweep.recommended_k,
+        "recommended_k": sweep.recommended_k, "runner_up_k": sweep.runner_up_k,
         "reason": sweep.reason,
         "rule": RECOMMENDATION_RULE,
         "stability_resamples": sweep.resamples,
@@ -88,7 +88,8 @@ def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
         "points": [
             {"k": p.k, "silhouette_cosine": _round(p.silhouette), "calinski_harabasz": _round(p.calinski_harabasz, 4),
              "davies_bouldin": _round(p.davies_bouldin), "stability_mean": _round(p.stability_mean, 4),
-             "stability_min": _round(p.stability_min, 4), "inertia": _round(p.inertia, 4)}
+             "stability_min": _round(p.stability_min, 4), "inertia": _round(p.inertia, 4),
+             "silhouette_null_reference": _round(p.null_silhouette)}
             for p in sweep.points
         ],
     }
@@ -283,7 +284,7 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
         "documents": len(result.collection.documents),
         "quality": {
             "silhouette_cosine": _round(q.silhouette),
-            "silhouette_reading": q.silhouette_reading,
+            "silhouette_reading": q.silhouette_reading, "silhouette_null_reference": _round(q.null_silhouette),
             "silhouette_sample": q.silhouette_sample,
             "calinski_harabasz": _round(q.calinski_harabasz, 4),
             "davies_bouldin": _round(q.davies_bouldin),
@@ -336,6 +337,7 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
         "method": "k-means" if result.options.method == "kmeans" else "Ward",
         "k": result.k,
         "k_chosen_by": "sweep" if result.sweep is not None else "user",
+        "k_runner_up": result.sweep.runner_up_k if result.sweep is not None else None,
         "tree": result.levels.tree_method,
         "seed": result.options.seed,
         "parameters": parameters,
