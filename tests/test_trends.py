@@ -154,6 +154,16 @@ def test_run_writes_trend_readings_for_a_dated_table(tmp_path: Path) -> None:
     assert clusters["trends"]["undated"] == 1 and clusters["trends"]["dated"] == len(rows) - 1
     readings = sorted(c["trend"]["reading"] for c in clusters["clusters"])
     assert readings == ["falling", "rising", "steady"]
+    # the pages draw the counts: one labelled bar chart per card, a larger one per cluster page, one bar
+    # per period (12 months) holding the count in its tooltip
+    run = tmp_path / "site" / "runs" / "k3"
+    index = (run / "index.html").read_text(encoding="utf-8")
+    assert index.count('<svg xmlns="http://www.w3.org/2000/svg" class="trend"') == 3
+    assert 'role="img" aria-label="' in index and "per month from 2025-01-01 to 2025-12-01" in index
+    page = (run / "cluster-00.html").read_text(encoding="utf-8")
+    assert page.count("<rect ") >= 12 and "<figcaption>Documents per month" in page
+    first = clusters["clusters"][0]["trend"]["periods"][0]
+    assert f"<title>{first['start']}: {first['count']:,} (" in page
 
 
 def test_unknown_period_is_one_line(tmp_path: Path) -> None:

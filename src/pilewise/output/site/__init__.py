@@ -15,6 +15,7 @@ from typing import Any
 from urllib.parse import quote
 
 from jinja2 import Environment, PackageLoader, StrictUndefined
+from markupsafe import Markup
 
 from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair
@@ -23,6 +24,7 @@ from pilewise.describe.runfolders import FinishedRun, FinishedSweep
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
 from pilewise.output.outfolder import write_text_atomically
+from pilewise.output.plots import trend_bars_svg
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
@@ -277,6 +279,25 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "stability_reading": cluster.stability_reading,
         "stability_class": "stab-" + cluster.stability_reading.split(",")[0].replace(" ", "-"),
         "rule": result.rules.rules[cluster.cluster_id],
+        **_trend_context(cluster.cluster_id, result),
+    }
+
+
+def _trend_context(c: int, result: RunResult) -> dict[str, Any]:
+    """The cluster's trend reading, its evidence and two bar charts (card and page); empty without dates."""
+    if result.trends is None:
+        return {"trend": None}
+    trends, trend = result.trends, result.trends.clusters[c]
+    starts = trends.starts
+    counts = [p.count for p in trend.periods]
+    shares = [p.share for p in trend.periods]
+    label = (f"{trend.dated:,} dated documents per {trends.period} from {starts[0]} to {starts[-1]}; "
+             f"reading: {trend.reading}")
+    return {
+        "trend": trend,
+        "trend_period": trends.period,
+        "trend_small": Markup(trend_bars_svg(starts, counts, shares, width=180, height=28, label=label)),
+        "trend_large": Markup(trend_bars_svg(starts, counts, shares, width=640, height=140, label=label, axis=True)),
     }
 
 
