@@ -197,6 +197,11 @@ Mode = Annotated[str, typer.Option(
 Workers = Annotated[int, typer.Option(
     "--workers", metavar="N", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
 )]
+Engine = Annotated[str, typer.Option(
+    "--engine", metavar="local|spark",
+    help="local (this process), or spark (Apache Spark; pip install 'pilewise[spark]', Java 17).")]
+SparkMaster = Annotated[str, typer.Option(
+    "--spark-master", metavar="URL", help="Spark master for --engine spark, e.g. local[4] or spark://host:7077.")]
 KRange = Annotated[str, typer.Option(
     "--k-range", metavar="LOW:HIGH", help="Range of k for the levels view and --k auto.")]
 
@@ -289,6 +294,8 @@ def run(
     near_duplicate: NearDuplicate = 0.8,
     mode: Mode = "auto",
     workers: Workers = 0,
+    engine: Engine = "local",
+    spark_master: SparkMaster = "local[*]",
     quiet: QuietOption = False,
 ) -> None:
     """Cluster SOURCE into K clusters (or the k the figures favour) and write OUT/runs/NAME/: site and exports."""

@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # stage types for annotations only: model stays importable by every stage, without cycles
@@ -156,6 +157,20 @@ class Collection:
 
 
 @dataclass(frozen=True)
+class Population:
+    """The whole collection when the pages describe a sample of it (the Spark engine).
+
+    `write_assignments(folder, cluster_names)` writes every document's assignment into the run's folder
+    (on the engine that holds the documents) and returns the names of what it wrote.
+    """
+
+    documents: int
+    texts: int
+    skipped: int
+    write_assignments: Callable[[Path, list[str]], list[str]]
+
+
+@dataclass(frozen=True)
 class RunResult:
     """Everything computed for one run, ready to be written."""
 
@@ -181,3 +196,4 @@ class RunResult:
     fingerprint: str
     timings: dict[str, float]
     trends: Trends | None = None  # None: no document has a readable date
+    population: Population | None = None  # None: the pages describe every document

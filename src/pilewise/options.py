@@ -25,6 +25,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 
 METHODS = ("kmeans", "ward")
 MODES = ("auto", "memory", "stream")
+ENGINES = ("local", "spark")
 PERIODS = ("auto", "day", "week", "month")
 # --mode auto streams when the files to read hold at least this many bytes (about 250,000 short
 # texts; the in-memory path measured 956 MB for 100,000 texts of 20-120 words, docs/performance.md)
@@ -84,6 +85,8 @@ class RunOptions:
     near_duplicate: float = 0.8
     mode: str = "auto"  # memory, stream, or auto: stream above STREAM_ABOVE_BYTES of input
     workers: int = 0  # tokenizing processes (streaming; memory mode above 40,000 texts); 0: one per core
+    engine: str = "local"  # local (this process), or spark (engines/spark_engine.py)
+    spark_master: str = "local[*]"  # --spark-master: where the spark engine runs
     quiet: bool = False
     extra: dict[str, str] = field(default_factory=dict)
 
@@ -130,6 +133,8 @@ def _safe_name(name: str) -> bool:
 
 STREAM_ONE_K = ("streaming mode clusters with mini-batch k-means at one given k; pass --k N without --method ward, "
                 "or --mode memory (choose k with `pilewise sweep` on a sample of the collection)")
+SPARK_ONE_K = ("the spark engine clusters with Spark's k-means at one given k; pass --k N without --method ward "
+               "(choose k with `pilewise sweep` on a sample of the collection)")
 WARD_NEEDS_LSA = "--method ward needs the LSA space; do not pass --lsa-components 0 with it"
 
 # Every check of the options, in the order their messages are reported: ranges (LIMITS), shares and
@@ -149,6 +154,7 @@ CHECKS: tuple[Check, ...] = (
           lambda o: f"--encoding {o.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, latin-1, shift_jis"),
     _choice_check("method", METHODS, "--method"),
     _choice_check("mode", MODES, "--mode"),
+    _choice_check("engine", ENGINES, "--engine"),
     _choice_check("period", PERIODS, "--period"),
     Check(lambda o: not 2 <= o.k_min < o.k_max <= LIMITS["k"][1],
           lambda o: f"k range {o.k_min}:{o.k_max} must have 2 <= LOW < HIGH <= {LIMITS['k'][1]:g}"),
@@ -158,6 +164,9 @@ CHECKS: tuple[Check, ...] = (
     # repeats the first check as a fallback
     Check(lambda o: o.mode == "stream" and (o.k_auto or o.method == "ward"), lambda o: STREAM_ONE_K),
     Check(lambda o: o.method == "ward" and o.lsa_components == 0, lambda o: WARD_NEEDS_LSA),
+    Check(lambda o: o.engine == "spark" and (o.k_auto or o.method == "ward"), lambda o: SPARK_ONE_K),
+    Check(lambda o: o.engine == "spark" and o.lsa_components == 0,
+          lambda o: "the spark engine clusters in the LSA space; do not pass --lsa-components 0 with --engine spark"),
 )
 
 
@@ -176,6 +185,8 @@ def validate(options: RunOptions, *, with_source: bool = True) -> None:
 
 def _source_problems(options: RunOptions) -> list[str]:
     problems: list[str] = []
+    if options.engine == "spark" and _is_url(str(options.source)):
+        return problems  # a path on another file system (hdfs:, s3a:) is checked by Spark when it reads
     if not options.source.exists():
         problems.append(f"source {str(options.source)!r} does not exist; pass a folder or a table file")
     if options.stop_words_file is not None and not options.stop_words_file.is_file():
@@ -189,6 +200,12 @@ def _source_problems(options: RunOptions) -> list[str]:
                 "its own pages; choose an output folder outside the source"
             )
     return problems
+
+
+def _is_url(source: str) -> bool:
+    """A source with a scheme (hdfs:, s3a:, file:), as a Path keeps it ('hdfs:/host/path')."""
+    scheme, colon, _ = source.partition(":")
+    return bool(colon) and len(scheme) > 1 and scheme.replace("+", "").replace(".", "").replace("-", "").isalnum()
 
 
 def _limit(value: float) -> str:

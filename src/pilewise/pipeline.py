@@ -11,6 +11,7 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -26,7 +27,7 @@ from pilewise.describe.names import carry_names, earlier_run_problems, find_old_
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
-from pilewise.describe.summaries import describe_clusters, level_terms
+from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -42,7 +43,7 @@ from pilewise.ingest.reading import ReadLimits, SourceStream, stream_source
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.shelf import DocumentShelf
 from pilewise.ingest.tables import ColumnChoice
-from pilewise.model import Collection, Document, Ingested, RunResult, fingerprint_record
+from pilewise.model import Collection, Document, Ingested, Population, RunResult, fingerprint_record
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
     RunOptions,
@@ -60,6 +61,9 @@ from pilewise.progress import Reporter
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
+
+if TYPE_CHECKING:  # the Spark engine (and PySpark) load only for --engine spark
+    from pilewise.engines.spark_engine import SparkPrepared
 
 REDACTION_OFF = "redaction is off (--no-redact); pages and exports show personal data as written"
 BOILERPLATE_OFF = "boilerplate removal is off (--keep-boilerplate); every line of every text is vectorized"
@@ -95,8 +99,8 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
     with ExitStack() as held:
         if named_early:
             held.enter_context(_claim_name(out / "runs" / options.run_name(), "runs", "--name"))
-        with _work_folder(out) as work:
-            result = compute_run(options, reporter, work)
+
+        def write(result: RunResult) -> RunOutcome:
             try:
                 run_folder = out / "runs" / result.name
                 if not named_early:
@@ -107,14 +111,24 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
             finally:
                 if isinstance(result.ingested.documents, DocumentShelf):
                     result.ingested.documents.close()
-    return RunOutcome(
-        run_folder=run_folder,
-        index_page=run_folder / "index.html",
-        root_index=root_index,
-        documents=len(result.ingested.documents),
-        skipped=len(result.ingested.skipped()),
-        clusters=len(result.clusters),
-    )
+            whole = result.population
+            return RunOutcome(
+                run_folder=run_folder,
+                index_page=run_folder / "index.html",
+                root_index=root_index,
+                documents=whole.documents if whole else len(result.ingested.documents),
+                skipped=whole.skipped if whole else len(result.ingested.skipped()),
+                clusters=len(result.clusters),
+            )
+
+        with _work_folder(out) as work:
+            if options.engine == "spark":  # the result is written while Spark still holds the documents
+                from pilewise.engines.spark_engine import run_on_spark
+
+                outcome: RunOutcome = run_on_spark(
+                    options, reporter, lambda on_spark: write(compute_run(options, reporter, work, on_spark)))
+                return outcome
+            return write(compute_run(options, reporter, work))
 
 
 @dataclass(frozen=True)
@@ -361,14 +375,39 @@ def _capped(documents: Iterable[Document], limit: int) -> Iterator[Document]:
         yield doc
 
 
-def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = None) -> RunResult:
-    """All computation of a run, no writing; `work` is a scratch folder for the streaming path."""
+def compute_run(
+    options: RunOptions, reporter: Reporter, work: Path | None = None, on_spark: SparkPrepared | None = None
+) -> RunResult:
+    """All computation of a run, no writing; `work` is a scratch folder for the streaming path.
+
+    `on_spark` is a collection prepared and clustered by the Spark engine: the stages from assessing on
+    run here on its sample, with the whole collection's totals.
+    """
     validate(options)
-    prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k,
-                                  work=work)
+    sweep: Sweep | None = None
+    tree: Tree | None = None
+    totals: ClusterTotals | None = None
+    if on_spark is not None:
+        prepared = Prepared(on_spark.ingested, on_spark.collection, on_spark.analyzer, on_spark.vectors,
+                            on_spark.collection.copies.astype(float), on_spark.boilerplate, on_spark.redacted,
+                            on_spark.fingerprint)
+        k = k_min = k_max = options.k
+        clustering, totals = on_spark.clustering, on_spark.totals
+    else:
+        prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k,
+                                      work=work)
+        k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
+        k, clustering, tree, sweep = _clustered(options, prepared, k_min, k_max, reporter)
+    return _described(options, reporter, prepared, k, k_min, k_max, clustering, tree, sweep, totals,
+                      on_spark.population if on_spark else None)
+
+
+def _clustered(
+    options: RunOptions, prepared: Prepared, k_min: int, k_max: int, reporter: Reporter
+) -> tuple[int, Clustering, Tree | None, Sweep | None]:
+    """The run's k, its clustering, Ward's tree (--method ward) and the sweep (--k auto)."""
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
-    k_min, k_max = check_k_range(options.k_min, options.k_max, distinct)
     sweep: Sweep | None = None
     with reporter.stage("clustering"):
         tree = ward_tree(_dense(space), weights, seed=options.seed) if options.method == "ward" else None
@@ -382,6 +421,17 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
             clustering = _cluster_at(space, weights, k, tree, seed=options.seed,
                                      starts=kmeans_starts(options, distinct), streamed=prepared.streamed,
                                      reporter=reporter)
+    return k, clustering, tree, sweep
+
+
+def _described(
+    options: RunOptions, reporter: Reporter, prepared: Prepared, k: int, k_min: int, k_max: int,
+    clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
+    population: Population | None,
+) -> RunResult:
+    """Assessing, describing and explaining a clustering: the stages every engine shares."""
+    space, weights = prepared.vectors.space, prepared.weights
+    distinct = int(weights.size)
     with reporter.stage("assessing"):
         quality = assess(space, clustering.labels, k=k, seed=options.seed)
         rows = stability_rows(distinct, options.seed)
@@ -393,7 +443,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     with reporter.stage("describing"):
         clusters = describe_clusters(
             prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-            top_terms=options.top_terms, stability=stability,
+            top_terms=options.top_terms, stability=stability, totals=totals,
         )
         levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
         levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
@@ -426,7 +476,7 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         redacted=prepared.redacted,
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
-        fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends,
+        fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends, population=population,
     )
 
 

@@ -10,6 +10,7 @@ common theme (`mixed_reason`).
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
@@ -39,6 +40,22 @@ THEME_MIN_SHARE = 0.25
 COHESION_RATIO = 0.5
 
 
+@dataclass(frozen=True)
+class ClusterTotals:
+    """Per-cluster figures of a whole collection whose rows are not all at hand (the Spark engine).
+
+    df and counts are (k, n_terms): documents holding each term and its occurrences, every text counted
+    with its copies; sizes are documents, members distinct texts, mean_distance the documents' mean
+    cosine distance to their centroid.
+    """
+
+    df: sp.csr_matrix
+    counts: sp.csr_matrix
+    sizes: np.ndarray
+    members: np.ndarray
+    mean_distance: np.ndarray
+
+
 def describe_clusters(
     collection: Collection,
     vectors: Vectorized,
@@ -48,19 +65,23 @@ def describe_clusters(
     *,
     top_terms: int,
     stability: StabilityResult | None = None,
+    totals: ClusterTotals | None = None,
 ) -> tuple[ClusterSummary, ...]:
     """Summaries of every cluster, numbered as in `clustering`, largest first.
 
     Term statistics use exact per-cluster document frequencies and counts of every term. The
     documents shown come from bounded digests filled in passes over the rows in blocks: the members
     nearest each centroid, and for each cluster's top terms the members holding the term nearest the
-    centroid. Describing needs memory for k x terms figures, not for the documents.
+    centroid. Describing needs memory for k x terms figures, not for the documents. `totals`, when
+    given, replaces the figures counted from the rows at hand (sizes, term statistics, mean distances).
     """
     labels = clustering.labels
     weights = collection.copies.astype(float)
     k = clustering.centroids.shape[0]
-    total = float(weights.sum())
-    df_by_cluster, counts_by_cluster = cluster_term_totals(vectors.counts, labels, weights, k)
+    if totals is not None:
+        df_by_cluster, counts_by_cluster = totals.df, totals.counts
+    else:
+        df_by_cluster, counts_by_cluster = cluster_term_totals(vectors.counts, labels, weights, k)
     df_all = np.asarray(df_by_cluster.sum(axis=0)).ravel()
     counts_all = np.asarray(counts_by_cluster.sum(axis=0)).ravel()
     prior = informative_prior(counts_all, PRIOR_MASS)
@@ -70,9 +91,11 @@ def describe_clusters(
     for begin in range(0, labels.size, ROW_BLOCK):
         rows = np.arange(begin, min(begin + ROW_BLOCK, labels.size))
         digest.update(rows, labels[rows], clustering.distances[rows])
-    sizes = np.bincount(labels, weights=weights, minlength=k)
-    members_per_cluster = np.bincount(labels, minlength=k)
-    mean_distance = np.bincount(labels, weights=weights * clustering.distances, minlength=k) / np.maximum(sizes, 1e-12)
+    sizes = np.bincount(labels, weights=weights, minlength=k) if totals is None else totals.sizes
+    total = float(sizes.sum())
+    members_per_cluster = np.bincount(labels, minlength=k) if totals is None else totals.members
+    mean_distance = (np.bincount(labels, weights=weights * clustering.distances, minlength=k) / np.maximum(sizes, 1e-12)
+                     if totals is None else totals.mean_distance)
     terms_of: list[tuple[tuple[TermScore, ...], tuple[TermScore, ...]]] = []
     for c in range(k):
         size = float(sizes[c])

@@ -406,11 +406,18 @@ def _read_file(
     path: Path, rel: str, limits: ReadLimits, encoding: str | None = None
 ) -> tuple[Document | None, list[IngestEntry]]:
     """One text, HTML or mail file: its document, if any, and its report entries; `encoding` is --encoding."""
-    suffix = path.suffix.lower()
     try:
         raw = path.read_bytes()
     except OSError as err:
         return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
+    return document_from_bytes(raw, rel, path.suffix.lower(), limits, encoding)
+
+
+def document_from_bytes(
+    raw: bytes, rel: str, suffix: str, limits: ReadLimits, encoding: str | None = None
+) -> tuple[Document | None, list[IngestEntry]]:
+    """The document of one text, HTML or mail file's bytes (`suffix` lower-case, with its dot), if any, and
+    its report entries; shared by the local reader and the Spark engine's reader of file folders."""
     if suffix in MAIL_SUFFIXES:
         title, text, note, date = _read_mail(raw, encoding)
     else:

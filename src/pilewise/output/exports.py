@@ -34,7 +34,10 @@ def write_exports(
     folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
 ) -> None:
     """Write every export of `result` into `folder`; `track` wraps the pass over the documents (progress)."""
-    write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
+    if result.population is not None:  # the documents are on the engine that read them; it writes assignments
+        result.population.write_assignments(folder, [c.shown for c in result.naming.clusters])
+    else:
+        write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
     _write_json(folder / "clusters.json", clusters_document(result))
     write_manifest(folder, result)
     write_ingest_report(folder / "ingest-report.csv", result)
@@ -281,7 +284,7 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
     return {
         "run": result.name,
         "k": result.k,
-        "documents": len(result.collection.documents),
+        "documents": documents_read(result),
         "quality": {
             "silhouette_cosine": _round(q.silhouette),
             "silhouette_reading": q.silhouette_reading, "silhouette_null_reference": _round(q.null_silhouette),
@@ -302,6 +305,11 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],
     }
+
+
+def documents_read(result: RunResult) -> int:
+    """Documents of the whole run (the described sample's population under the Spark engine)."""
+    return result.population.documents if result.population else len(result.collection.documents)
 
 
 def write_manifest(folder: Path, result: RunResult) -> None:
@@ -344,13 +352,14 @@ def manifest_document(result: RunResult) -> dict[str, Any]:
         "input": {
             "fingerprint": result.fingerprint,
             "files_found": ingested.files_found,
-            "documents": len(ingested.documents),
-            "distinct_texts": result.collection.distinct_texts,
-            "skipped": len(ingested.skipped()),
+            "documents": documents_read(result),
+            "distinct_texts": result.population.texts if result.population else result.collection.distinct_texts,
+            "skipped": result.population.skipped if result.population else len(ingested.skipped()),
             "notes": list(ingested.notes),
             "redacted": dict(result.redacted) if result.options.redact else "redaction off",
             "boilerplate_lines_removed": len(result.boilerplate.lines),
-            "texts_clustered": int(result.collection.copies.size),
+            "texts_clustered": result.population.texts if result.population else int(result.collection.copies.size),
+            "texts_described": int(result.collection.copies.size),
         },
         "vectors": result.vectors.facts,
         "libraries": library_versions(),

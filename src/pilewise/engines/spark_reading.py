@@ -1,0 +1,224 @@
+"""Reading SOURCE on Spark: a table (CSV, JSON Lines, Parquet; one file or a folder of parts) or a folder
+of text, HTML and mail files, from any path Spark reads (local, hdfs://, s3a://).
+
+Rows and files become the same `Document`s as the local reader makes (the text, HTML and mail decoding is
+`reading.document_from_bytes`; columns are guessed by `tables._choose_columns` on the first rows), numbered
+in reading order. What is not a document is an `IngestEntry`; entries come back to the driver (they are
+few: skipped files and rows, notes), documents stay on Spark.
+"""
+
+from __future__ import annotations
+
+import posixpath
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+from urllib.parse import urlparse
+
+from pilewise.errors import PilewiseError
+from pilewise.ingest.plaintext import first_line_title
+from pilewise.ingest.reading import HTML_SUFFIXES, MAIL_SUFFIXES, TEXT_SUFFIXES, ReadLimits, document_from_bytes
+from pilewise.ingest.tables import SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
+from pilewise.model import Document, IngestEntry
+
+TABLE_KINDS = {".csv": "csv", ".tsv": "csv", ".jsonl": "json", ".ndjson": "json", ".json": "json",
+               ".parquet": "parquet"}
+ENTRIES_UP_TO = 100_000  # report entries brought back to the driver; above this the rest are counted in a note
+TITLE_CHARS = 200  # as the local table reader
+
+
+@dataclass(frozen=True)
+class SparkSource:
+    """Documents on Spark as (number in reading order, Document) pairs, and what reading found."""
+
+    documents: Any  # pyspark RDD of (int, Document)
+    entries: tuple[IngestEntry, ...]
+    notes: tuple[str, ...]
+    files_found: int
+
+
+def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
+    """Read SOURCE on Spark as a table or as a folder of files, chosen by its name or its files' names."""
+    kind = _table_kind(source)
+    if kind is not None:
+        return _read_table(spark, source, kind, columns, limits)
+    return _read_files(spark, source, limits, columns.encoding)
+
+
+def _table_kind(source: str) -> str | None:
+    """"csv", "json" or "parquet" when SOURCE is a table file or a local folder of one kind of table parts."""
+    suffix = posixpath.splitext(urlparse(source).path if "://" in source else source)[1].lower()
+    if suffix in TABLE_KINDS:
+        return TABLE_KINDS[suffix]
+    if "://" in source or not Path(source).is_dir():
+        return None
+    parts = {p.suffix.lower() for p in Path(source).rglob("*")
+             if p.is_file() and not p.name.startswith((".", "_"))}
+    kinds = {TABLE_KINDS.get(s) for s in parts}
+    return kinds.pop() if len(kinds) == 1 and None not in kinds else None
+
+
+def _load_table(spark: Any, source: str, kind: str, columns: ColumnChoice) -> Any:
+    reader = spark.read
+    if kind == "csv":
+        separator = columns.delimiter or ("\t" if source.lower().endswith(".tsv") else ",")
+        return (reader.option("header", True).option("multiLine", True).option("escape", '"')
+                .option("sep", separator).option("encoding", columns.encoding or "UTF-8").csv(source))
+    if kind == "json":
+        return reader.option("encoding", columns.encoding or "UTF-8").json(source)
+    return reader.parquet(source)
+
+
+def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits: ReadLimits) -> SparkSource:
+    rel = posixpath.basename(source.rstrip("/")) or source
+    try:
+        frame = _load_table(spark, source, kind, choice)
+    except Exception as err:  # Spark's analysis errors: a path that does not exist, a file it cannot parse
+        first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+        raise PilewiseError(f"Spark could not read {source!r} ({first}); check the path and its format") from None
+    corrupt = "_corrupt_record" in frame.columns
+    header = [c for c in frame.columns if c != "_corrupt_record"]
+    first_rows = frame.select(*header).limit(SAMPLE_ROWS).collect()
+    sample: list[Sequence[object]] = [[_cell(row[c]) for c in header] for row in first_rows]
+    try:
+        text_col, title_col, id_col, date_col, guesses = _choose_columns(header, sample, rel, choice)
+    except _Unusable as err:
+        raise PilewiseError(err.message) from None
+    wanted = [text_col, title_col, id_col, date_col]
+    extra = [c for c in header if c not in wanted]
+    picked = [c for c in wanted if c is not None] + extra + (["_corrupt_record"] if corrupt else [])
+    rows = frame.select(*picked).rdd.zipWithIndex()
+    layout = _Layout(rel, text_col, title_col, id_col, date_col, tuple(extra), corrupt, limits.max_doc_chars)
+    made = rows.mapPartitions(layout.documents)
+    documents = _unique_ids(made.filter(lambda item: item[0] == "doc").map(lambda item: item[1]))
+    entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
+    n_docs = documents.count()
+    summary = IngestEntry(rel, "document", "table", f"{n_docs} rows became documents (text column {text_col!r})")
+    notes = [f"{rel}: {note}" for note in guesses] + more
+    return SparkSource(documents, (summary, *entries), tuple(notes), 1)
+
+
+def _cell(value: Any) -> str:
+    """A cell as text, as the local table reader shows it: None empty, nested values as their text."""
+    if value is None:
+        return ""
+    if isinstance(value, bytes | bytearray):
+        return bytes(value).decode("utf-8", errors="replace")
+    return str(value)
+
+
+@dataclass(frozen=True)
+class _Layout:
+    """Which selected column is which; turns numbered rows into documents or report entries (on executors)."""
+
+    rel: str
+    text: str
+    title: str | None
+    id: str | None
+    date: str | None
+    extra: tuple[str, ...]
+    corrupt: bool
+    max_doc_chars: int
+
+    def documents(self, rows: Iterable[tuple[Any, int]]) -> Iterator[tuple[str, Any]]:
+        for row, number in rows:
+            where = f"{self.rel}#row{number + 1}"
+            if self.corrupt and row["_corrupt_record"] is not None:
+                yield "entry", IngestEntry(where, "skipped", "invalid JSON", "the line is not a JSON object")
+                continue
+            text = _cell(row[self.text]).strip()
+            if not text:
+                yield "entry", IngestEntry(where, "skipped", "empty", f"column {self.text!r} is empty")
+                continue
+            if len(text) > self.max_doc_chars:
+                kept = f"kept the first {self.max_doc_chars:,} characters"
+                yield "entry", IngestEntry(where, "note", "truncated", kept)
+                text = text[: self.max_doc_chars]
+            title = " ".join(_cell(row[self.title]).split())[:TITLE_CHARS] if self.title else ""
+            yield "doc", (number, Document(
+                doc_id=_cell(row[self.id]).strip() if self.id else "",
+                source=where,
+                title=title or first_line_title(text),
+                text=text,
+                date=_cell(row[self.date]).strip() if self.date else "",
+                metadata=tuple((name, _cell(row[name])) for name in self.extra),
+            ))
+
+
+def _unique_ids(documents: Any) -> Any:
+    """Documents whose id is empty or repeated get their row's place as id (as the local reader does)."""
+    repeated = set(
+        documents.map(lambda item: (item[1].doc_id, 1)).filter(lambda pair: pair[0] != "")
+        .reduceByKey(lambda a, b: a + b).filter(lambda pair: pair[1] > 1).keys().take(ENTRIES_UP_TO + 1)
+    )
+    if len(repeated) > ENTRIES_UP_TO:
+        raise PilewiseError(f"more than {ENTRIES_UP_TO:,} ids repeat in the id column; pass another --id-column")
+
+    def own_id(item: tuple[int, Document]) -> tuple[int, Document]:
+        number, doc = item
+        if doc.doc_id and doc.doc_id not in repeated:
+            return item
+        return number, Document(doc.source, doc.source, doc.title, doc.text, doc.date, doc.metadata)
+
+    return documents.map(own_id)
+
+
+def _bounded_entries(entries: Any) -> tuple[list[IngestEntry], list[str]]:
+    """Up to ENTRIES_UP_TO report entries in reading order, and a note counting the rest."""
+    taken = entries.take(ENTRIES_UP_TO + 1)
+    if len(taken) <= ENTRIES_UP_TO:
+        return taken, []
+    total = entries.count()
+    return taken[:ENTRIES_UP_TO], [f"{total:,} report lines; the first {ENTRIES_UP_TO:,} are in ingest-report.csv"]
+
+
+def _read_files(spark: Any, source: str, limits: ReadLimits, encoding: str | None) -> SparkSource:
+    try:
+        frame = spark.read.format("binaryFile").option("recursiveFileLookup", "true").load(source)
+    except Exception as err:
+        first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+        raise PilewiseError(f"Spark could not read {source!r} ({first}); check the path") from None
+    base = (urlparse(source).path if "://" in source else str(Path(source).resolve())).rstrip("/")
+    files = frame.select("path", "length", "content").rdd.sortBy(lambda row: row["path"]).zipWithIndex()
+    reader = _FileReader(base, limits, encoding)
+    made = files.mapPartitions(reader.documents)
+    documents = made.filter(lambda item: item[0] == "doc").map(lambda item: item[1])
+    entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
+    files_found = files.count()
+    if files_found == 0:
+        raise PilewiseError(f"no files found under {source!r}; pass a folder of text files or a table")
+    return SparkSource(documents, tuple(entries), tuple(more), files_found)
+
+
+@dataclass(frozen=True)
+class _FileReader:
+    base: str
+    limits: ReadLimits
+    encoding: str | None
+
+    def relative(self, path: str) -> str:
+        inner = urlparse(path).path if "://" in path or path.startswith("file:") else path
+        return posixpath.relpath(inner, self.base) if inner.startswith(self.base + "/") else inner
+
+    def documents(self, rows: Iterable[tuple[Any, int]]) -> Iterator[tuple[str, Any]]:
+        for row, number in rows:
+            rel = self.relative(row["path"])
+            suffix = posixpath.splitext(rel)[1].lower()
+            if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES:
+                detail = ("the spark engine reads one table at a time; pass this table as SOURCE"
+                          if suffix in TABLE_KINDS else f"file type {suffix or '(none)'}")
+                yield "entry", IngestEntry(rel, "skipped", "unsupported", detail)
+                continue
+            if row["length"] == 0:
+                yield "entry", IngestEntry(rel, "skipped", "empty", "0 bytes")
+                continue
+            if row["length"] > self.limits.max_file_bytes:
+                yield "entry", IngestEntry(rel, "skipped", "too large", f"{row['length']:,} bytes; raise --max-file-mb")
+                continue
+            doc, found = document_from_bytes(bytes(row["content"]), rel, suffix, self.limits, self.encoding)
+            for entry in found:
+                if entry.status != "document" or entry.detail:  # plain "read" lines would repeat assignments.csv
+                    yield "entry", entry
+            if doc is not None:
+                yield "doc", (number, doc)
