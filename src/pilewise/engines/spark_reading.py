@@ -185,10 +185,28 @@ def _read_files(spark: Any, source: str, limits: ReadLimits, encoding: str | Non
     made = files.mapPartitions(reader.documents)
     documents = made.filter(lambda item: item[0] == "doc").map(lambda item: item[1])
     entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
-    files_found = files.count()
-    if files_found == 0:
+    # Spark's file sources leave out files of 0 bytes; they are listed here so that each is a report line
+    listed = _listed_files(spark, source)
+    empty = [IngestEntry(reader.relative(path), "skipped", "empty", "0 bytes") for path, size in listed if size == 0]
+    if not listed:
         raise PilewiseError(f"no files found under {source!r}; pass a folder of text files or a table")
-    return SparkSource(documents, tuple(entries), tuple(more), files_found)
+    return SparkSource(documents, (*entries, *empty[:ENTRIES_UP_TO]), tuple(more), len(listed))
+
+
+def _listed_files(spark: Any, source: str) -> list[tuple[str, int]]:
+    """Every file under SOURCE with its size, through Hadoop's file system API (any scheme Spark reads);
+    hidden files (names starting with '.' or '_') are left out, as Spark's file sources leave them out."""
+    jvm = spark.sparkContext._jvm
+    path = jvm.org.apache.hadoop.fs.Path(source)
+    system = path.getFileSystem(spark.sparkContext._jsc.hadoopConfiguration())
+    found = []
+    files = system.listFiles(path, True)
+    while files.hasNext():
+        status = files.next()
+        name = status.getPath().getName()
+        if not name.startswith((".", "_")):
+            found.append((status.getPath().toString(), int(status.getLen())))
+    return found
 
 
 @dataclass(frozen=True)

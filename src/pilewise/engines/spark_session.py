@@ -9,8 +9,11 @@ from __future__ import annotations
 import os
 import re
 import shutil
+import tempfile
+import zipfile
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
 from pilewise.errors import PilewiseError
@@ -19,6 +22,7 @@ NEEDS_PYSPARK = ("the spark engine needs PySpark and a Java 17 runtime; install 
                  "pip install 'pilewise[spark]' and your system's Java 17 package (Debian: openjdk-17-jre-headless)")
 NEEDS_JAVA = ("the spark engine needs a Java 17 runtime and none was found; install one (Debian: apt-get install "
               "openjdk-17-jre-headless) or set JAVA_HOME")
+LOG_CONFIG = Path(__file__).with_name("spark-log4j2.properties")  # Spark's log: errors only
 _URL = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]*://")
 
 
@@ -50,7 +54,8 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
 
     active = SparkSession.getActiveSession()
     if active is not None:
-        yield active
+        with _shipped(active):
+            yield active
         return
     builder = (
         SparkSession.builder.master(master).appName("pilewise")
@@ -59,6 +64,7 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
         .config("spark.sql.shuffle.partitions", str(partitions))
         .config("spark.default.parallelism", str(partitions))
         .config("spark.driver.memory", os.environ.get("PILEWISE_SPARK_DRIVER_MEMORY", "4g"))
+        .config("spark.driver.extraJavaOptions", f"-Dlog4j.configurationFile={LOG_CONFIG.as_uri()}")
     )
     try:
         session = builder.getOrCreate()
@@ -67,6 +73,36 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
         raise PilewiseError(f"Spark did not start on {master!r} ({first}); check --spark-master and Java 17") from None
     session.sparkContext.setLogLevel("ERROR")
     try:
-        yield session
+        with _shipped(session):
+            yield session
     finally:
         session.stop()
+
+
+_SHIPPED: set[str] = set()  # Spark applications that have this pilewise's code (a file is added once)
+
+
+@contextmanager
+def _shipped(session: Any) -> Iterator[None]:
+    """Ship this pilewise's own code to the executors (a zip of the package, `SparkContext.addPyFile`), so
+    that they tokenize and read with exactly the driver's version; its libraries (numpy, scikit-learn) must
+    be installed where the executors run. The zip lives in the temporary folder until the session stops."""
+    import pilewise
+
+    context = session.sparkContext
+    if context.applicationId in _SHIPPED:
+        yield
+        return
+    package = Path(pilewise.__file__).parent
+    scratch = Path(tempfile.mkdtemp(prefix="pilewise-spark-"))
+    archive = scratch / "pilewise.zip"
+    with zipfile.ZipFile(archive, "w", zipfile.ZIP_DEFLATED) as bundle:
+        for path in sorted(package.rglob("*.py")):
+            bundle.write(path, path.relative_to(package.parent).as_posix())
+    context.addPyFile(str(archive))
+    _SHIPPED.add(context.applicationId)
+    try:
+        yield
+    finally:
+        if context._jsc is None:  # the session was stopped: its copy of the zip is no longer read
+            shutil.rmtree(scratch, ignore_errors=True)
