@@ -39,7 +39,7 @@ from pilewise.ingest.reading import ReadLimits
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Collection, Document, Ingested, Population
-from pilewise.options import RunOptions, check_k, table_delimiter
+from pilewise.options import RunOptions, check_k, kmeans_starts, table_delimiter
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import (
@@ -221,7 +221,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         without_terms = placed.filter(lambda row: not np.any(space_position[row[3]] >= 0)).count()
         bags.unpersist()
     with reporter.stage("clustering on Spark"):
-        centroids, cost = _kmeans(spark, placed, options.k, options.seed)
+        centroids, cost = _kmeans(spark, placed, options.k, options.seed, kmeans_starts(options, n_texts))
         raw_sizes = dict(placed.map(lambda row: (_nearest(row[5], centroids), float(row[2])))
                          .reduceByKey(lambda a, b: a + b).collect())
         order = sorted(range(options.k), key=lambda c: (-raw_sizes.get(c, 0.0), c))  # largest first, as locally
@@ -314,19 +314,27 @@ def _counted(bag: dict[str, int], column_of: dict[str, int]) -> tuple[np.ndarray
     return np.array([c for c, _ in pairs], dtype=np.int32), np.array([n for _, n in pairs], dtype=np.int32)
 
 
-def _kmeans(spark: Any, placed: Any, k: int, seed: int) -> tuple[np.ndarray, float]:
-    """Spark ML's k-means (k-means|| initialisation, seeded) on the unit-length LSA vectors, weighted by copies."""
+def _kmeans(spark: Any, placed: Any, k: int, seed: int, starts: int) -> tuple[np.ndarray, float]:
+    """Spark ML's k-means (k-means|| initialisation) on the unit-length LSA vectors, weighted by copies: `starts`
+    fits seeded seed, seed+1, ..., the one of least cost kept (as the local engine keeps the best of its starts)."""
+    from pyspark import StorageLevel
     from pyspark.ml.clustering import KMeans
     from pyspark.ml.linalg import Vectors
 
     frame = spark.createDataFrame(placed.map(lambda row: (float(row[2]), Vectors.dense(row[5]))),
-                                  ["copies", "features"])
-    model = KMeans(k=k, seed=seed, initMode="k-means||", maxIter=KMEANS_MAX_ITER, tol=1e-6,
-                   weightCol="copies").fit(frame)
-    centroids = np.array(model.clusterCenters())
-    if centroids.shape[0] != k:
-        raise PilewiseError(f"Spark's k-means found {centroids.shape[0]} clusters, not {k}; pass a smaller --k")
-    return centroids, float(model.summary.trainingCost)
+                                  ["copies", "features"]).persist(StorageLevel.MEMORY_AND_DISK)
+    best: tuple[float, np.ndarray] | None = None
+    for start in range(starts):
+        model = KMeans(k=k, seed=seed + start, initMode="k-means||", maxIter=KMEANS_MAX_ITER, tol=1e-6,
+                       weightCol="copies").fit(frame)
+        centroids = np.array(model.clusterCenters())
+        cost = float(model.summary.trainingCost)
+        if centroids.shape[0] == k and (best is None or cost < best[0]):
+            best = (cost, centroids)
+    frame.unpersist()
+    if best is None:
+        raise PilewiseError(f"Spark's k-means found fewer than {k} clusters; pass a smaller --k")
+    return best[1], best[0]
 
 
 def _nearest(vector: np.ndarray, centroids: np.ndarray) -> int:

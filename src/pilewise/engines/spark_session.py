@@ -54,8 +54,8 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
 
     active = SparkSession.getActiveSession()
     if active is not None:
-        with _shipped(active):
-            yield active
+        _ship_code(active)  # the zip stays for the session's life, which is not this run's
+        yield active
         return
     builder = (
         SparkSession.builder.master(master).appName("pilewise")
@@ -72,27 +72,27 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
         first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
         raise PilewiseError(f"Spark did not start on {master!r} ({first}); check --spark-master and Java 17") from None
     session.sparkContext.setLogLevel("ERROR")
+    scratch = _ship_code(session)
     try:
-        with _shipped(session):
-            yield session
+        yield session
     finally:
         session.stop()
+        if scratch is not None:
+            shutil.rmtree(scratch, ignore_errors=True)
 
 
 _SHIPPED: set[str] = set()  # Spark applications that have this pilewise's code (a file is added once)
 
 
-@contextmanager
-def _shipped(session: Any) -> Iterator[None]:
+def _ship_code(session: Any) -> Path | None:
     """Ship this pilewise's own code to the executors (a zip of the package, `SparkContext.addPyFile`), so
     that they tokenize and read with exactly the driver's version; its libraries (numpy, scikit-learn) must
-    be installed where the executors run. The zip lives in the temporary folder until the session stops."""
+    be installed where the executors run. Returns the zip's folder (None when the session has it already)."""
     import pilewise
 
     context = session.sparkContext
     if context.applicationId in _SHIPPED:
-        yield
-        return
+        return None
     package = Path(pilewise.__file__).parent
     scratch = Path(tempfile.mkdtemp(prefix="pilewise-spark-"))
     archive = scratch / "pilewise.zip"
@@ -101,8 +101,4 @@ def _shipped(session: Any) -> Iterator[None]:
             bundle.write(path, path.relative_to(package.parent).as_posix())
     context.addPyFile(str(archive))
     _SHIPPED.add(context.applicationId)
-    try:
-        yield
-    finally:
-        if context._jsc is None:  # the session was stopped: its copy of the zip is no longer read
-            shutil.rmtree(scratch, ignore_errors=True)
+    return scratch
