@@ -65,7 +65,8 @@ def k_grid(k_true: int, n: int, coarse: bool = False) -> list[int]:
     return [k for k in ks if k < n]
 
 
-def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples: int = RESAMPLES) -> dict[str, Any]:
+def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples: int = RESAMPLES,
+          one_start: bool = True) -> dict[str, Any]:
     prepared = prepare(load_sample(name, sample))
     space = pilewise_space(prepared, 0)
     weights = prepared.copies
@@ -79,8 +80,12 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples:
         null_clustering = kmeans_clusters(null, weights, k=k, seed=0, n_init=STARTS)
         null_quality = assess(null, null_clustering.labels, k=k, seed=0)
         stabilities = {}
-        for key, starts in (("stability_1", 1), ("stability", RESAMPLE_STARTS)):
-            result = bootstrap_stability(space[rows], weights[rows], clustering.labels[rows], k=k,
+        runs = [("stability", space, clustering.labels, RESAMPLE_STARTS),
+                ("null_stability", null, null_clustering.labels, RESAMPLE_STARTS)]
+        if one_start:
+            runs.append(("stability_1", space, clustering.labels, 1))
+        for key, rows_of, labels, starts in runs:
+            result = bootstrap_stability(rows_of[rows], weights[rows], labels[rows], k=k,
                                          resamples=resamples, seed=0, cluster_fn=kmeans_cluster_fn(k, starts))
             stabilities[key] = result.mean
             stabilities[key + "_min"] = float(np.nanmin([c.mean_jaccard for c in result.clusters]))
@@ -90,7 +95,8 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples:
                        "davies_bouldin": quality.davies_bouldin, **stabilities,
                        "seconds": time.perf_counter() - started})
         print(f"{name} k={k} nmi={points[-1]['nmi']:.3f} sil={quality.silhouette:.3f} "
-              f"null={null_quality.silhouette:.3f} stab={stabilities['stability']:.2f}", file=sys.stderr, flush=True)
+              f"null={null_quality.silhouette:.3f} stab={stabilities['stability']:.2f} "
+              f"null_stab={stabilities['null_stability']:.2f}", file=sys.stderr, flush=True)
     return {"collection": name, "documents": prepared.documents, "distinct": int(weights.size),
             "k_true": prepared.k_true, "points": points, "coarse": coarse}
 
@@ -122,7 +128,8 @@ def stability_purity(name: str, resamples: int = 20, sample: int | None = None) 
 
 def _sweep_points(points: list[dict[str, Any]], stability: str) -> list[SweepPoint]:
     return [SweepPoint(p["k"], p["silhouette"], p["calinski_harabasz"], p["davies_bouldin"], p[stability],
-                       p[stability + "_min"], p["inertia"], p["null_silhouette"]) for p in points]
+                       p[stability + "_min"], p["inertia"], p["null_silhouette"], p.get("null_" + stability))
+            for p in points]
 
 
 def _argmax(points: list[dict[str, Any]], score: Callable[[dict[str, Any]], float]) -> int:
@@ -201,7 +208,11 @@ def render(results: list[dict[str, Any]]) -> str:
     for rule, pick in RULES.items():
         cells = []
         for r in results:
-            k = pick(r["points"])
+            try:
+                k = pick(r["points"])
+            except KeyError:  # a figure this run did not measure (--no-one-start)
+                cells.append("not measured")
+                continue
             at = {p["k"]: p for p in r["points"]}[k]
             cells.append(f"{k} ({at['nmi']:.2f})")
         lines.append(f"| {rule} | " + " | ".join(cells) + " |")
@@ -216,6 +227,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--sample", type=int, help="documents kept of each collection (default: SAMPLES)")
     parser.add_argument("--coarse", action="store_true", help="every k to 10, then every third k")
     parser.add_argument("--resamples", type=int, help="bootstrap resamples (default 10 per k, 20 for --purity)")
+    parser.add_argument("--no-one-start", action="store_true",
+                        help="skip the stability with 1 start per resample (the rule before issue 11)")
     parser.add_argument("--purity", action="store_true",
                         help="measure per-cluster stability against purity instead (benchmarks/.out/purity.json)")
     args = parser.parse_args(argv)
@@ -230,7 +243,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     results = []
     for name in args.collections:
-        results.append(per_k(name, args.sample, args.coarse, args.resamples or RESAMPLES))
+        results.append(per_k(name, args.sample, args.coarse, args.resamples or RESAMPLES, not args.no_one_start))
         args.out.parent.mkdir(parents=True, exist_ok=True)
         args.out.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
     print(render(results))

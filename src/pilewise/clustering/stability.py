@@ -102,6 +102,23 @@ def stability_reading(value: float) -> str:
     return NOT_DEFINED  # unreachable: the last lower bound is -inf
 
 
+def mixed_stability_reading(value: float) -> str:
+    """Reading of a mixed cluster's stability (one with no common theme, `describe.summaries.mixed_reason`).
+
+    Stability measures whether k-means finds the same group again, not whether the group is one theme: a
+    grab-bag of leftovers can come back in every resample (on the chat categories, mixed clusters read 0.64
+    to 0.91). So a mixed cluster is never read "stable": from 0.6 up its reading says that the same mix
+    reappears; below 0.6 the usual reading already warns.
+    """
+    reading = stability_reading(value)
+    if math.isnan(value) or value < PATTERN_FLOOR:
+        return reading
+    return "mixed, yet it reappears in resamples: a repeatable grab-bag, not one theme"
+
+
+PATTERN_FLOOR = 0.6  # the lower bound of "a pattern" in STABILITY_READINGS
+
+
 def bootstrap_stability(
     space: np.ndarray | sp.csr_matrix,
     weights: np.ndarray,
