@@ -55,14 +55,16 @@ def pilewise_nmi(prepared: Prepared, seed: int, settings: dict[str, Any], starts
     return nmi(prepared, clustering.labels)
 
 
-def measure(name: str, seeds: Sequence[int]) -> dict[str, Any]:
+def measure(name: str, seeds: Sequence[int], variants: Sequence[str] = tuple(VARIANTS),
+            baselines: bool = True) -> dict[str, Any]:
     collection = load_sample(name)
     prepared = prepare(collection)
     rows: dict[str, list[float]] = {}
     for seed in seeds:
-        for variant, (settings, starts) in VARIANTS.items():
+        for variant in variants:
+            settings, starts = VARIANTS[variant]
             rows.setdefault(variant, []).append(pilewise_nmi(prepared, seed, settings, starts))
-        for key in ("tfidf+kmeans", "tfidf+svd100+kmeans"):
+        for key in ("tfidf+kmeans", "tfidf+svd100+kmeans") if baselines else ():
             rows.setdefault(key, []).append(run_sklearn(collection, prepared.k_true, seed, svd=key != "tfidf+kmeans"))
         print(f"{name} seed {seed}: " + ", ".join(f"{k} {v[-1]:.3f}" for k, v in rows.items()), file=sys.stderr,
               flush=True)
@@ -70,11 +72,15 @@ def measure(name: str, seeds: Sequence[int]) -> dict[str, Any]:
 
 
 def render(results: list[dict[str, Any]]) -> str:
-    keys = [*VARIANTS, "tfidf+kmeans", "tfidf+svd100+kmeans"]
+    keys = [key for key in [*VARIANTS, "tfidf+kmeans", "tfidf+svd100+kmeans"]
+            if any(key in r["nmi"] for r in results)]
     lines = ["| collection (seeds) | " + " | ".join(keys) + " |", "|---|" + "---|" * len(keys)]
     for r in results:
         cells = []
         for key in keys:
+            if key not in r["nmi"]:
+                cells.append("not measured")
+                continue
             values = r["nmi"][key]
             sd = statistics.stdev(values) if len(values) > 1 else 0.0
             cells.append(f"{statistics.mean(values):.3f} ± {sd:.3f}")
@@ -89,6 +95,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--seeds-small", type=int, default=20, help="seeds for reuters_sample (default 20)")
     parser.add_argument("--out", type=Path, default=OUT_DIR / "ablation.json")
     parser.add_argument("--render", type=Path, help="print the table of a saved run and stop")
+    parser.add_argument("--variants", nargs="+", choices=list(VARIANTS), default=list(VARIANTS))
+    parser.add_argument("--no-baselines", action="store_true", help="leave out the scikit-learn pipelines")
     args = parser.parse_args(argv)
     if args.render:
         print(render(json.loads(args.render.read_text(encoding="utf-8"))))
@@ -96,7 +104,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     results = []
     for name in args.collections:
         count = args.seeds_small if name == "reuters_sample" else args.seeds
-        results.append(measure(name, range(count)))
+        results.append(measure(name, range(count), args.variants, not args.no_baselines))
         args.out.parent.mkdir(parents=True, exist_ok=True)
         args.out.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
     print(render(results))
