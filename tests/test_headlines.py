@@ -17,6 +17,7 @@ from pilewise.describe.headlines import (
     sentences,
     title_problem,
 )
+from pilewise.ingest.redact import redact
 from pilewise.model import TermScore
 from pilewise.vectors.text import Analyzer, load_stop_words
 
@@ -127,3 +128,13 @@ def test_a_footer_many_members_share_or_a_web_address_comes_after_a_sentence_of_
     # with nothing else to say, the shared sentence is still better than the bare terms
     [alone] = choose_headlines([[0, 1, 2]], terms, titles.__getitem__, ([footer] * 3).__getitem__, _keys)
     assert alone.text == footer
+
+
+def test_a_title_with_a_redacted_address_is_still_recognised_as_the_first_line() -> None:
+    # Regression: titles are kept in display form ("<[e-mail]>"), texts with placeholders, so the first line
+    # of a licence file holding an e-mail address never matched its title and a cut line was kept as a title.
+    raw = "This package was debianized by Ann Example <ann@example.org> and is now\nmaintained by Bo Example."
+    text = redact(raw).text
+    assert "[e-mail]" not in text  # the placeholder form, as documents keep their texts
+    title = "This package was debianized by Ann Example <[e-mail]> and is now"
+    assert runs_on(text, title)

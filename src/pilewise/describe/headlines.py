@@ -176,6 +176,12 @@ def shorten(text: str, limit: int = HEADLINE_CHARS) -> str:
     return (cut if len(cut) > limit // 2 else text[:limit]) + "…"
 
 
+def same_line(line: str, title: str) -> bool:
+    """Whether a text's line is the title, spaces collapsed and redaction placeholders shown as labels (titles
+    are kept in display form, texts with placeholders)."""
+    return " ".join(display_text(line).split()) == " ".join(display_text(title).split())
+
+
 def runs_on(text: str, title: str, *, wrapped: bool = False) -> bool:
     """Whether `title` is the text's first line and its sentence goes on in the next line (wrapped text).
 
@@ -186,7 +192,7 @@ def runs_on(text: str, title: str, *, wrapped: bool = False) -> bool:
     collection's first lines are `wrapped` text (`first_lines_wrapped`): then any next line will do.
     """
     head, _, rest = text.lstrip().partition("\n")
-    if " ".join(head.split()) != " ".join(title.split()) or head.rstrip().endswith((".", "!", "?", ":")):
+    if not same_line(head, title) or head.rstrip().endswith((".", "!", "?", ":")):
         return False
     following = rest.split("\n", 1)[0].strip()
     if not following:
@@ -228,8 +234,8 @@ def without_title_line(text: str, title: str, *, wrapped: bool = False, template
     if not templated and runs_on(text, title, wrapped=wrapped):
         return text
     head, _, rest = text.lstrip().partition("\n")
-    shown = title.rstrip("…")
-    same = " ".join(head.split()) == " ".join(title.split()) or (title.endswith("…") and head.startswith(shown))
+    shown = display_text(title).rstrip("…")
+    same = same_line(head, title) or (title.endswith("…") and display_text(head).startswith(shown))
     return rest if same else text
 
 
