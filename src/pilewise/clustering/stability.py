@@ -129,6 +129,7 @@ def bootstrap_stability(
     seed: int,
     cluster_fn: ClusterFn,
     track: Callable[[range], Iterable[int]] | None = None,
+    subsample: float | None = None,
 ) -> StabilityResult:
     """Clusterwise bootstrap stability (Hennig 2007): mean Jaccard similarity to the best-matching cluster.
 
@@ -158,6 +159,9 @@ def bootstrap_stability(
         Called as ``cluster_fn(rows, row_weights, resample_seed)``; returns one integer label per row.
     track : callable, optional
         Wraps the loop over the resamples (a progress bar).
+    subsample : float, optional
+        Draw this share of the rows without replacement instead of a bootstrap draw (Hennig's "subsetting"
+        scheme); measured against the bootstrap in docs/method.md, not used by runs.
 
     Returns
     -------
@@ -175,7 +179,8 @@ def bootstrap_stability(
     values = np.full((resamples, k), np.nan)
     for i in track(range(resamples)) if track else range(resamples):
         rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(i,)))
-        rows = np.unique(rng.integers(0, n, size=n))
+        rows = (np.unique(rng.integers(0, n, size=n)) if subsample is None
+                else np.sort(rng.choice(n, max(1, round(subsample * n)), replace=False)))
         resample_seed = int(rng.integers(0, 2**31 - 1))
         new_labels = np.asarray(cluster_fn(space[rows], weights[rows], resample_seed))
         if new_labels.shape != (rows.size,):
