@@ -44,6 +44,7 @@ VARIANTS: dict[str, tuple[dict[str, Any], int | None]] = {
     "min_df 3": ({"min_df": 3}, None),
     "min_df 1": ({"min_df": 1}, None),
     "max_df 0.3": ({"max_df": 0.3}, None),
+    "no LSA": ({"lsa_components": 0}, None),
 }
 
 
