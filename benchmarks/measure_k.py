@@ -12,8 +12,10 @@ every k of a grid (2 to 30, then every third k up to 1.5 times the number of gol
   (``clustering.quality.null_space``: each column of the space shuffled on its own, rows back to unit length);
 - ``inertia``: k-means' within-cluster sum of squares;
 - ``stability_1``, ``stability``: mean clusterwise bootstrap stability (10 resamples, at most 5,000 rows)
-  when each resample is re-clustered with 1 k-means start (pilewise before issue 11) and with the run's
-  starts (``stability.RESAMPLE_STARTS``, after it).
+  when each resample is re-clustered with 1 k-means start (pilewise before issue 11; left out with
+  ``--no-one-start``) and with the run's starts (``stability.RESAMPLE_STARTS``, after it);
+- ``null_stability``: the same stability for the k-means clustering of the null reference at k, the bar
+  of ``recommend_k`` when no k reaches ``sweep.STABLE``.
 
 Then it applies each candidate rule of ``RULES`` to those figures and prints, per collection, the k each
 rule picks and the NMI at that k, beside the true number of labels and the best NMI over the grid.
@@ -21,7 +23,7 @@ rule picks and the NMI at that k, beside the true number of labels and the best 
 How to run
 ----------
     bash corpora/fetch.sh --all
-    python benchmarks/measure_k.py                        # every collection (about 25 min on 2 busy cores)
+    python benchmarks/measure_k.py --no-one-start         # every collection (about 25 min on 2 busy cores)
     python benchmarks/measure_k.py --collections foldoc
     python benchmarks/measure_k.py --collections wordnet_glosses fortunes --sample 3000 --coarse --resamples 5 \
         --out benchmarks/.out/k-large.json                   # the large ones on a coarser grid
