@@ -57,6 +57,7 @@ from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
 from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run, write_comparison
 from pilewise.progress import Reporter
+from pilewise.vectors.languages import detect_languages, language_mix, present_languages, shares
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
@@ -217,6 +218,7 @@ class Prepared:
     redacted: dict[str, int]
     fingerprint: str
     streamed: bool = False
+    text_languages: tuple[str, ...] = ()  # language of every distinct text; () where not detected
 
 
 def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int, work: Path | None = None) -> Prepared:
@@ -282,7 +284,11 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                          f"groups; {near.representative.size:,} texts to cluster")
     check_k(k_needed, int(collection.copies.size),
             "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
-    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    text_languages = detect_languages(texts, options.language)
+    present = present_languages(text_languages, collection.copies) or ("en",)
+    reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
+                        languages=present)
     with reporter.stage("vectorizing"):
         settings = VectorSettings(
             min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
@@ -294,7 +300,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             copies=collection.copies, workers=options.workers or default_workers(),
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
-                    redacted, fingerprint(ingested.documents))
+                    redacted, fingerprint(ingested.documents), text_languages=text_languages)
 
 
 def _prepare_streamed(
@@ -310,7 +316,10 @@ def _prepare_streamed(
                  f"{CHUNK_DOCUMENTS:,} documents")
     if not options.redact:
         reporter.warn(REDACTION_OFF)
-    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    # languages are not detected while streaming: --language names them, else English as before
+    present = (options.language,) if options.language else ("en",)
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
+                        languages=present)
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
                               seed=options.seed)
     streamed = prepare_streamed(
@@ -340,6 +349,11 @@ def _boilerplate_line(boilerplate: Boilerplate, removed: int, changed: int, kept
     line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} distinct "
             "texts before vectorizing")
     return line + (f"; {kept:,} kept where they are most of their text" if kept else "")
+
+
+def _languages_line(codes: Sequence[str], weights: np.ndarray, *, forced: bool) -> str:
+    found = ", ".join(f"{code} {share:.0%}" for code, share in shares(codes, weights)[:6])
+    return f"languages ({'--language' if forced else 'detected per text'}): {found}"
 
 
 def _redaction_line(redacted: dict[str, int]) -> str:
@@ -427,6 +441,8 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends,
+        languages=language_mix(prepared.text_languages, weights, clustering.labels, k,
+                               forced=options.language is not None) if prepared.text_languages else None,
     )
 
 
