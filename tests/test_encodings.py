@@ -9,8 +9,8 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
-from helpers import read
 
+from helpers import read
 from pilewise.ingest.plaintext import EncodingVote, decode_bytes, vote_encoding
 from pilewise.ingest.tables import ColumnChoice
 
