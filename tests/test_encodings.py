@@ -93,3 +93,20 @@ def test_a_sample_cut_inside_a_utf8_character_still_counts_as_utf8() -> None:
     raw = ("é" * 10).encode()[:-1]  # the last character cut in half, as a 64 KB sample may end
     vote = vote_encoding([("a.txt", raw)])
     assert vote.encoding is None
+
+
+@pytest.mark.parametrize("codec", ["cp1252", "cp1250", "cp1254", "koi8_r"])
+def test_a_table_in_a_code_page_reads_back_exactly(tmp_path: Path, codec: str) -> None:
+    # a CSV export (RFC 4180: header row, comma separator) written by Python's codecs
+    rows = [f'{i},"{sentence}"' for i, sentence in enumerate(SAMPLES[codec])]
+    table = tmp_path / "export.csv"
+    table.write_bytes(("id,text\r\n" + "\r\n".join(rows) + "\r\n").encode(codec))
+    ingested = read(table)
+    assert [doc.text for doc in ingested.documents] == SAMPLES[codec]
+
+
+def test_naive_in_a_windows_1252_table_is_not_read_as_windows_1250(tmp_path: Path) -> None:
+    """Regression (issue 12): a short cp1252 CSV came out as cp1250, "naïve" as "naďve"."""
+    table = tmp_path / "short.csv"
+    table.write_bytes("id,text\r\n1,a naïve question\r\n2,café crème\r\n".encode("cp1252"))
+    assert [doc.text for doc in read(table).documents] == ["a naïve question", "café crème"]
