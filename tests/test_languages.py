@@ -191,3 +191,15 @@ def test_mixed_german_and_russian_pile(tmp_path: Path) -> None:
     # measured 0.813 to language and 0.302 to themes: texts on one theme in two languages share no word, so
     # the clusters follow the languages (docs/method.md, "Mixed-language piles")
     assert language_nmi > theme_nmi
+
+
+def test_streaming_mode_uses_the_languages_of_the_first_documents(tmp_path: Path) -> None:
+    texts, labels = planted_texts("de")
+    run = _run(tmp_path, texts, "--mode", "stream", "--workers", "1")
+    clusters = read_clusters(run)
+    assert clusters["languages"] == []  # not detected per document while streaming (docs/outputs.md)
+    stop = set(stopwordsiso.stopwords("de"))
+    for cluster in clusters["clusters"]:
+        assert not any(word in stop for entry in cluster["name_terms"] for word in entry["term"].split(" "))
+    page = (run / "ingest.html").read_text(encoding="utf-8")
+    assert "languages of the first 60 documents (detected per text): de 100%" in page

@@ -7,6 +7,7 @@ them into a temporary folder that replaces the run's folder only when complete.
 from __future__ import annotations
 
 import hashlib
+import itertools
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
@@ -316,20 +317,26 @@ def _prepare_streamed(
                  f"{CHUNK_DOCUMENTS:,} documents")
     if not options.redact:
         reporter.warn(REDACTION_OFF)
-    # languages are not detected while streaming: --language names them, else English as before
-    present = (options.language,) if options.language else ("en",)
+    # the stop words and stemmers must be known before the first chunk: languages are detected on the first
+    # documents (or named by --language), which are then streamed with the rest
+    documents = _capped(source, options.max_documents)
+    first = list(itertools.islice(documents, STREAM_LANGUAGE_SAMPLE))
+    sample = detect_languages([doc.text for doc in first], options.language)
+    present = present_languages(sample, np.ones(len(sample))) or ("en",)
+    language_note = _languages_line(sample, np.ones(len(sample)), forced=options.language is not None).replace(
+        "languages (", f"languages of the first {len(sample):,} documents (", 1)
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
                         languages=present)
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
                               seed=options.seed)
     streamed = prepare_streamed(
-        _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
+        itertools.chain(first, documents), work, analyzer, settings, redact=options.redact,
         workers=options.workers or default_workers(), reporter=reporter, progress=lambda: source.bytes_done,
         total_bytes=source.total_bytes, boilerplate=options.boilerplate,
     )
     streaming_note = ("streaming mode: read and vectorized in chunks; terms counted in a hashed vocabulary; "
                       "near-duplicate grouping not done (exact duplicates are)")
-    notes = (*source.notes, streaming_note, *(() if options.boilerplate else (BOILERPLATE_OFF,)))
+    notes = (*source.notes, streaming_note, language_note, *(() if options.boilerplate else (BOILERPLATE_OFF,)))
     ingested = Ingested(streamed.shelf, tuple(source.entries), notes, source.files_found)
     for note in ingested.notes:
         reporter.say(note)
@@ -349,6 +356,9 @@ def _boilerplate_line(boilerplate: Boilerplate, removed: int, changed: int, kept
     line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} distinct "
             "texts before vectorizing")
     return line + (f"; {kept:,} kept where they are most of their text" if kept else "")
+
+
+STREAM_LANGUAGE_SAMPLE = 2_000  # documents whose languages choose a streamed run's stop words and stemmers
 
 
 def _languages_line(codes: Sequence[str], weights: np.ndarray, *, forced: bool) -> str:
