@@ -81,3 +81,20 @@ def test_a_phrase_is_only_two_words_side_by_side() -> None:
 def test_combining_marks_stay_in_their_word() -> None:
     decomposed = "cafe\u0301 au lait"
     assert ANALYZER.spans(decomposed)[0] == (0, 5, "cafe\u0301")
+
+
+def _columns(text: str) -> int:
+    # Unicode Standard Annex #11: East Asian Wide and Fullwidth characters take two columns
+    import unicodedata
+
+    return sum(0 if unicodedata.combining(c) else 2 if unicodedata.east_asian_width(c) in "WF" else 1 for c in text)
+
+
+@settings(max_examples=100, deadline=None)
+@given(texts)
+def test_kwic_contexts_fill_the_same_columns_in_every_script(text: str) -> None:
+    for _, _, term in ANALYZER.spans(text):
+        if term:
+            line = kwic_line(text, ANALYZER, term, width=20)
+            assert line is not None
+            assert _columns(line[0]) == 20 and _columns(line[2]) == 20
