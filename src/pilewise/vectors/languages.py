@@ -63,6 +63,8 @@ _HIRAGANA = "\u3041-\u309f"
 _KATAKANA = "\u30a0-\u30ff\u31f0-\u31ff\uff66-\uff9f"
 CJK = re.compile(f"[{_HAN}{_HIRAGANA}{_KATAKANA}]")
 _KANA = re.compile(f"[{_HIRAGANA}{_KATAKANA}]")
+_HIRAGANA_CHAR = re.compile(f"[{_HIRAGANA}]")
+_KATAKANA_CHAR = re.compile(f"[{_KATAKANA}]")
 _CJK_OR_OTHER = re.compile(f"[{_HAN}]+|[{_HIRAGANA}]+|[{_KATAKANA}]+|[^{_HAN}{_HIRAGANA}{_KATAKANA}]+")
 BREAK_ITEM = "|"  # stands between two CJK pieces that must not make a phrase (normalize drops it)
 
@@ -262,9 +264,9 @@ def segment_cjk(run: str, offset: int, *, japanese: bool) -> Iterator[tuple[int,
     for piece in _CJK_OR_OTHER.finditer(run):
         text, start = piece.group(), offset + piece.start()
         first = text[0]
-        if re.match(f"[{_HIRAGANA}]", first):
+        if _HIRAGANA_CHAR.match(first):
             yield start, start + len(text), BREAK_ITEM
-        elif re.match(f"[{_KATAKANA}]", first) or len(text) <= 2:
+        elif _KATAKANA_CHAR.match(first) or len(text) <= 2:
             yield start, start + len(text), text
         else:
             for i in range(len(text) - 1):
