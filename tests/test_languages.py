@@ -46,10 +46,11 @@ POOLS = {
            ["パスワード", "アカウント", "ログイン", "会員登録", "認証", "メールアドレス", "設定", "画面"],
            ["返金", "支払", "請求書", "クレジットカード", "金額", "振込", "領収書", "銀行"]),
 }
-# function words written between the content words (each is in stopwords-iso's list of its language,
-# or in EXTRA_STOP_WORDS for Turkish "mi")
+# function words written between the content words: each is in stopwords-iso's list of its language (or in
+# EXTRA_STOP_WORDS for Turkish "mi"), except Japanese hiragana endings, which the Japanese reading treats
+# as breaks (test_function_words_are_stop_words checks this)
 FUNCTION = {
-    "de": ["das", "und", "hat", "ist", "nicht", "ich", "die", "der", "mein", "noch", "wurde", "mit", "bitte"],
+    "de": ["das", "und", "hat", "ist", "nicht", "ich", "die", "der", "mein", "noch", "wurde", "mit", "auch"],
     "ru": ["что", "на", "и", "не", "я", "мой", "уже", "это", "как", "был", "по"],
     "ar": ["هل", "في", "من", "على", "أن", "إلى", "لم", "هذا", "عن", "قد", "لا"],
     "tr": ["ve", "mi", "bir", "bu", "da", "ama", "çok", "ne", "için", "gibi", "daha"],
@@ -203,3 +204,10 @@ def test_streaming_mode_uses_the_languages_of_the_first_documents(tmp_path: Path
         assert not any(word in stop for entry in cluster["name_terms"] for word in entry["term"].split(" "))
     page = (run / "ingest.html").read_text(encoding="utf-8")
     assert "languages of the first 60 documents (detected per text): de 100%" in page
+
+
+def test_function_words_are_stop_words() -> None:
+    analyzer = Analyzer(stop_words=load_stop_words(None, list(FUNCTION)), stem=False)
+    for language, words in FUNCTION.items():
+        for word in words:
+            assert analyzer.terms(word) == [], (language, word)
