@@ -174,6 +174,8 @@ Boilerplate = Annotated[bool, typer.Option(
     "--boilerplate/--keep-boilerplate", help="Remove lines repeated across many texts before vectorizing.")]
 StopWords = Annotated[Path | None, typer.Option("--stop-words", metavar="FILE", help="Extra stop words, one per line.")]
 Stem = Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")]
+Language = Annotated[str | None, typer.Option(
+    "--language", metavar="CODE", help="Language of every document (ISO 639-1, e.g. de); default: detected.")]
 PhrasesInSpace = Annotated[bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases.")]
 LsaComponents = Annotated[int, typer.Option("--lsa-components", metavar="N", help="LSA dimensions; 0 turns LSA off.")]
 MinDf = Annotated[int | None, typer.Option(
@@ -277,6 +279,7 @@ def run(
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
+    language: Language = None,
     phrases_in_space: PhrasesInSpace = False,
     lsa_components: LsaComponents = 100,
     min_df: MinDf = None,
@@ -318,6 +321,7 @@ def sweep(
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
+    language: Language = None,
     phrases_in_space: PhrasesInSpace = False,
     lsa_components: LsaComponents = 100,
     min_df: MinDf = None,

@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from pilewise.errors import PilewiseError
+from pilewise.vectors.languages import SUPPORTED
 
 # option name -> (lowest allowed, highest allowed, the CLI flag that sets it)
 LIMITS: dict[str, tuple[float, float, str]] = {
@@ -70,6 +71,7 @@ class RunOptions:
     boilerplate: bool = True  # remove repeated lines (signatures, footers) before vectorizing
     stop_words_file: Path | None = None
     stem: bool = False
+    language: str | None = None  # one language (ISO 639-1) for every document; None: detected per document
     bigrams_in_space: bool = False
     lsa_components: int = 100
     min_df: int | None = None
@@ -147,6 +149,9 @@ CHECKS: tuple[Check, ...] = (
           lambda o: f"--delimiter {o.delimiter!r} is not one character; pass e.g. --delimiter ';' or --delimiter tab"),
     Check(lambda o: o.encoding is not None and not _known_encoding(o.encoding),
           lambda o: f"--encoding {o.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, latin-1, shift_jis"),
+    Check(lambda o: o.language is not None and o.language not in SUPPORTED,
+          lambda o: f"--language {o.language!r} is not supported; pass an ISO 639-1 code, one of: "
+                    f"{', '.join(SUPPORTED)}"),
     _choice_check("method", METHODS, "--method"),
     _choice_check("mode", MODES, "--mode"),
     _choice_check("period", PERIODS, "--period"),

@@ -9,7 +9,7 @@ import csv
 import json
 import os
 import platform
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import asdict
 from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
@@ -191,7 +191,12 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
                       "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
         "trend": _trend_record(result, cluster.cluster_id),
+        "languages": _language_shares(result.languages.clusters[cluster.cluster_id]) if result.languages else [],
     }
+
+
+def _language_shares(shares: Sequence[tuple[str, float]]) -> list[dict[str, Any]]:
+    return [{"language": code, "share": _round(share, 4)} for code, share in shares]
 
 
 def _trend_record(result: RunResult, c: int) -> dict[str, Any] | None:
@@ -298,6 +303,8 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
                   "folds": result.rules.folds, "features": result.rules.features,
                   "rows": int(min(result.collection.copies.size, RULES_ROWS))},
         "trends": trends_document(result),
+        "languages": _language_shares(result.languages.collection) if result.languages else [],
+        "languages_forced": bool(result.languages and result.languages.forced),
         "names_from_run": result.naming.source_run,
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],

@@ -122,7 +122,9 @@ def render_run_site(
         common, entries=[{"source": shown(e.source), "status": e.status, "reason": e.reason, "detail": shown(e.detail)}
                          for e in result.ingested.entries], notes=result.ingested.notes,
         files_found=result.ingested.files_found, boilerplate=result.boilerplate.lines,
-        boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up=""))
+        boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up="",
+        languages=[(code, f"{share:.1%}") for code, share in result.languages.collection] if result.languages else [],
+        languages_forced=bool(result.languages and result.languages.forced)))
     members_by_cluster = _members_nearest_first(result)
     for cluster, card in zip(result.clusters, cards, strict=True):
         members = members_by_cluster[cluster.cluster_id]
@@ -253,6 +255,11 @@ def _kwic_groups(cluster: ClusterSummary, with_pages: bool, shown: Callable[[str
     return [{"term": term, "lines": lines} for term, lines in groups.items()]
 
 
+def _language_line(shares: Sequence[tuple[str, float]]) -> str:
+    """"de 80%, en 20%": a cluster's languages for its card."""
+    return ", ".join(f"{code} {share:.0%}" for code, share in shares)
+
+
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     largest = max(c.share for c in result.clusters)
     naming = result.naming.clusters[cluster.cluster_id]
@@ -270,6 +277,8 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "headline_note": _headline_note(cluster, result),
         "mixed": cluster.mixed,
         "mixed_reason": cluster.mixed_reason,
+        "languages": _language_line(result.languages.clusters[cluster.cluster_id])
+        if result.languages is not None and result.languages.mixed else "",
         "size": cluster.size,
         "share": cluster.share,
         "bar": round(100 * cluster.share / largest, 1),
