@@ -14,6 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
+from pilewise.assign.saved import save_model
 from pilewise.clustering.hierarchy import Tree, ward_tree
 from pilewise.clustering.kmeans import Clustering
 from pilewise.clustering.levels import build_levels, centroid_tree
@@ -102,7 +103,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
                 if not named_early:
                     held.enter_context(_claim_name(run_folder, "runs", "--name", wait=True))
                 with reporter.stage("writing site"), writing_to(out):
-                    _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+                    _write_atomically(run_folder, lambda folder: _write_run_and_model(folder, result, reporter))
                     root_index = refresh_site(out, warn=reporter.warn)
             finally:
                 if isinstance(result.ingested.documents, DocumentShelf):
@@ -115,6 +116,12 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
         skipped=len(result.ingested.skipped()),
         clusters=len(result.clusters),
     )
+
+
+def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
+    """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    _write_run(folder, result, reporter)
+    save_model(folder, result)
 
 
 @dataclass(frozen=True)
