@@ -160,7 +160,8 @@ TitleColumn = Annotated[str | None, typer.Option(
 IdColumn = Annotated[str | None, typer.Option(
     "--id-column", metavar="COLUMN", help="Table column holding document ids.")]
 Period = Annotated[str, typer.Option(
-    "--period", metavar="day|week|month|auto", help="Periods of the trend counts; auto: from the span of the dates.")]
+    "--period", metavar="day|week|month|quarter|year|auto",
+    help="Periods of the trend counts; auto: the finest with at most 60 periods over the span.")]
 DateColumn = Annotated[str | None, typer.Option("--date-column", metavar="COLUMN", help="Table column holding dates.")]
 Delimiter = Annotated[str | None, typer.Option(
     "--delimiter", metavar="CHAR", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]

@@ -412,7 +412,8 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period)
+        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
+                              mixed=[c.mixed for c in clusters])
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
@@ -437,12 +438,13 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     )
 
 
-def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str) -> Trends | None:
+def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,
+                 mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and trend readings of every cluster, when any document carries a date."""
     dates = [doc.date for doc in documents]
     if not any(dates):
         return None
-    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period)
+    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period, mixed=mixed)
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

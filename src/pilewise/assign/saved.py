@@ -209,6 +209,8 @@ def _read_json(path: Path) -> dict[str, Any]:
 def _read_arrays(path: Path) -> dict[str, np.ndarray]:
     """Every array of arrays.npz, loaded without pickle; an object array is refused, never unpickled."""
     found: dict[str, np.ndarray] = {}
+    if not zipfile.is_zipfile(path):  # np.load would take any other file for a pickle, and refuse it as such
+        raise _damaged(path, "is missing or is not an .npz archive of arrays")
     try:
         with np.load(path, allow_pickle=False) as data:
             for name in ARRAYS:
@@ -222,7 +224,7 @@ def _read_arrays(path: Path) -> dict[str, np.ndarray]:
                 found[name] = array
     except KeyError as err:
         raise _damaged(path, f"lacks the array {err}") from None
-    except (OSError, zipfile.BadZipFile, EOFError) as err:
+    except (OSError, zipfile.BadZipFile, EOFError, ValueError) as err:
         raise _damaged(path, f"cannot be read ({err.__class__.__name__})") from None
     return found
 
