@@ -26,7 +26,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 
 METHODS = ("kmeans", "ward")
 MODES = ("auto", "memory", "stream")
-PERIODS = ("auto", "day", "week", "month")
+PERIODS = ("auto", "day", "week", "month", "quarter", "year")
 # --mode auto streams when the files to read hold at least this many bytes (about 250,000 short
 # texts; the in-memory path measured 956 MB for 100,000 texts of 20-120 words, docs/performance.md)
 STREAM_ABOVE_BYTES = 100 * 1024 * 1024
@@ -63,7 +63,7 @@ class RunOptions:
     title_column: str | None = None
     id_column: str | None = None
     date_column: str | None = None
-    period: str = "auto"  # trend periods: day, week, month, or auto (from the span of the dates)
+    period: str = "auto"  # trend periods: day, week, month, quarter, year, or auto (from the span of the dates)
     delimiter: str | None = None  # table separator; None: sniffed
     encoding: str | None = None  # forced text encoding; None: detected
     records_key: str | None = None  # key of a JSON object holding the list of records; None: found

@@ -15,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
+from pilewise.assign.saved import save_model
 from pilewise.clustering.hierarchy import Tree, ward_tree
 from pilewise.clustering.kmeans import Clustering
 from pilewise.clustering.levels import build_levels, centroid_tree
@@ -104,7 +105,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
                 if not named_early:
                     held.enter_context(_claim_name(run_folder, "runs", "--name", wait=True))
                 with reporter.stage("writing site"), writing_to(out):
-                    _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+                    _write_atomically(run_folder, lambda folder: _write_run_and_model(folder, result, reporter))
                     root_index = refresh_site(out, warn=reporter.warn)
             finally:
                 if isinstance(result.ingested.documents, DocumentShelf):
@@ -117,6 +118,12 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
         skipped=len(result.ingested.skipped()),
         clusters=len(result.clusters),
     )
+
+
+def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
+    """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    _write_run(folder, result, reporter)
+    save_model(folder, result)
 
 
 @dataclass(frozen=True)
@@ -429,7 +436,8 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period)
+        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
+                              mixed=[c.mixed for c in clusters])
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
@@ -456,12 +464,13 @@ def compute_run(options: RunOptions, reporter: Reporter, work: Path | None = Non
     )
 
 
-def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str) -> Trends | None:
+def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,
+                 mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and trend readings of every cluster, when any document carries a date."""
     dates = [doc.date for doc in documents]
     if not any(dates):
         return None
-    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period)
+    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period, mixed=mixed)
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

@@ -210,6 +210,7 @@ def _trend_record(result: RunResult, c: int) -> dict[str, Any] | None:
         "test": "Cochran-Armitage trend in the share of each period's dated documents",
         "z": _round(trend.z, 4), "p_value": _round(trend.p_value, 6), "q_value": _round(trend.q_value, 6),
         "dated": trend.dated, "latest_share": _round(trend.latest_share, 4),
+        "share_change": _round(trend.share_change, 4), "caution": trend.caution,
         "periods": [{"start": p.start, "count": p.count, "share": _round(p.share, 4)} for p in trend.periods],
     }
 
