@@ -42,10 +42,13 @@ def test_layout_keeps_neighbourhoods_is_seeded_and_fits_the_box() -> None:
     assert trustworthiness(rows, first, n_neighbors=5) > 0.9
 
 
-def test_layout_of_a_handful_of_rows() -> None:
+def test_layout_of_a_handful_of_rows_and_of_empty_texts() -> None:
     for n in (1, 2, 3):
         points = docmap.layout(np.eye(4)[:n], seed=0)
         assert points.shape == (n, 2) and np.isfinite(points).all()
+    rows, _ = _planted(per_group=10)
+    rows[0] = 0.0  # a text with no kept term is a zero row of the space
+    assert np.isfinite(docmap.layout(rows, seed=0)).all()
 
 
 def test_svg_has_one_titled_mark_per_row_links_and_numbers_at_the_centres() -> None:
