@@ -153,6 +153,11 @@ def test_without_scripts_the_index_reads_fully(browser: Any, run_folder: Path) -
         assert page.locator(f"article#cluster-{rows.nth(i).locator('a').first.inner_text()}").count() == 1
         assert (run_folder / rows.nth(i).locator("a").nth(1).get_attribute("href")).is_file()
     assert page.is_visible("section.over-time svg[role=img]")
+    # keyboard focus is visible (WCAG 2.1 §2.4.7): the first link reached by Tab has an outline
+    page.keyboard.press("Tab")
+    outline = page.evaluate("() => { const s = getComputedStyle(document.activeElement); "
+                            "return [document.activeElement.tagName, s.outlineStyle, parseFloat(s.outlineWidth)]; }")
+    assert outline[0] == "A" and outline[1] != "none" and outline[2] >= 2
     # the planted late topic (baking, only in the last three months) is listed first, with its evidence
     first = page.locator("ul.first-list li").first.inner_text()
     assert re.match(r"(new|rising) Cluster \d: .*proofing", first) and "adjusted p" in first, first
