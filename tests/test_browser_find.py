@@ -142,6 +142,25 @@ def test_no_console_error_and_no_request_outside_the_run(browser: Any, run_folde
 
 
 @pytest.mark.browser
+def test_policy_lets_the_runs_own_scripts_run_from_disk_and_no_other(browser: Any, run_folder: Path) -> None:
+    # the pages' own policy, on a copy of the index given an inline and a remote script: Chromium treats
+    # file:// pages' 'self' as the file:// scheme (the search above runs), while inline and remote stay blocked
+    probe = run_folder / "probe.html"
+    page_text = (run_folder / "index.html").read_text(encoding="utf-8")
+    probe.write_text(page_text.replace("</head>", "<script>window.__inline = 1</script>"
+                                       '<script src="http://127.0.0.1:9/x.js"></script></head>'), encoding="utf-8")
+    try:
+        watched = Watched(browser)
+        page = watched.open(probe)
+        assert page.evaluate("() => [window.__inline, typeof window.pilewiseSearch]") == [None, "object"]
+        assert [url for url in watched.requests if not url.startswith("file:")] == []
+        assert any("Content Security Policy" in line for line in watched.console)
+        watched.context.close()
+    finally:
+        probe.unlink()
+
+
+@pytest.mark.browser
 def test_without_scripts_the_index_reads_fully(browser: Any, run_folder: Path) -> None:
     watched = Watched(browser, scripts=False)
     page = watched.open(run_folder / "index.html")
