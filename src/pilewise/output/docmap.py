@@ -1,16 +1,16 @@
 """A map of the documents: a 2-D layout of the clustering space and its SVG, one mark per distinct text.
 
 The layout is t-SNE (van der Maaten and Hinton 2008, "Visualizing Data using t-SNE", JMLR 9; scikit-learn's
-Barnes-Hut `TSNE` with cosine distances, started from the principal components, seeded). A linear
-projection (principal components) was measured first: on the 1,464 texts of the demo collection at k=19
-its 2-D silhouette of the cluster labels was -0.004, i.e. every cluster drawn on top of every other, against
-0.34 for t-SNE at scikit-learn's defaults and 0.31 at the settings used here (perplexity 20, 400
-iterations), which took 16 s instead of 26 s under a load average of 12 on 2 cores. t-SNE costs seconds, so
-it runs on a seeded sample of at most `MAP_CAP` distinct texts, on one thread: its OpenMP threads, on a busy
-machine, took 26 s for 100 texts that one thread placed in 0.9 s, and one thread makes the result
-independent of the number of cores.
-Copies of one text share one mark (they would sit on one spot). t-SNE keeps neighbourhoods, not distances:
-the gaps between clusters and their drawn sizes mean little, which the page says.
+Barnes-Hut `TSNE` with cosine distances, started from the principal components, seeded). A linear projection
+(principal components) was measured first: on the 1,464 texts of the demo collection at k=19 its 2-D
+silhouette of the cluster labels was -0.004, i.e. every cluster drawn on top of every other, against 0.34 for
+t-SNE at perplexity 30 and 0.31 at the settings used here (perplexity 20, 400 iterations), which took 16 s on
+one thread instead of 26 s (perplexity 30, 500 iterations) under a load average of 12 on 2 cores. t-SNE costs
+seconds, so it runs on a seeded sample of at most `MAP_CAP` distinct texts, on one thread: its OpenMP threads,
+on a busy machine, took 26 s for 100 texts that one thread placed in 0.9 s, and one thread makes the result
+independent of the number of cores. Copies of one text share one mark (they would sit on one spot). t-SNE
+keeps neighbourhoods, not distances: the gaps between clusters and their drawn sizes mean little, which the
+page says.
 """
 
 from __future__ import annotations
@@ -24,7 +24,7 @@ import scipy.sparse as sp
 
 MAP_CAP = 1_500  # marks drawn at most: a seeded sample of distinct texts above it (t-SNE time grows with it)
 TSNE_ITERATIONS = 400  # scikit-learn's default is 1,000; 250 of them are the early exaggeration
-PERPLEXITY = 20.0  # scikit-learn's default is 30; 20 looks at fewer neighbours (measured below)
+PERPLEXITY = 20.0  # scikit-learn's default is 30; 20 looks at fewer neighbours (measured above)
 WIDTH, HEIGHT, MARGIN = 760, 520, 16
 # twelve colours picked for this site, each at least 3:1 against the white panel (WCAG 2.1 §1.4.11,
 # checked in tests/test_docmap.py); beyond twelve clusters colours repeat and the numbers at the
