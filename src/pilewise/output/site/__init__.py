@@ -83,7 +83,8 @@ def doc_page_name(doc_index: int) -> str:
 def render_run_site(
     folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
 ) -> None:
-    """Write index.html, one page per cluster (members paged), document pages and the ingest page."""
+    """Write index.html, one page per cluster (members paged), document pages, the ingest page, the map and
+    the search index."""
     env = _environment()
     _copy_stylesheet(folder)
     docs = result.collection.documents
