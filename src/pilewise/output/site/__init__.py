@@ -23,8 +23,9 @@ from pilewise.describe.rules import RULES_ROWS
 from pilewise.describe.runfolders import FinishedRun, FinishedSweep
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
+from pilewise.output import docmap, search
 from pilewise.output.outfolder import write_text_atomically
-from pilewise.output.plots import trend_bars_svg
+from pilewise.output.plots import trend_bars_svg, trend_rows_svg
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
@@ -82,7 +83,8 @@ def doc_page_name(doc_index: int) -> str:
 def render_run_site(
     folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
 ) -> None:
-    """Write index.html, one page per cluster (members paged), document pages and the ingest page."""
+    """Write index.html, one page per cluster (members paged), document pages, the ingest page, the map and
+    the search index."""
     env = _environment()
     _copy_stylesheet(folder)
     docs = result.collection.documents
@@ -105,8 +107,11 @@ def render_run_site(
         "names_from_run": result.naming.source_run,
         "names_not_carried": result.naming.not_carried,
         "resamples": result.stability.resamples,
+        "finder": True,  # base.html: the search form and the run's two script files
     }
     cards = [_card(c, result) for c in result.clusters]
+    _write_search(folder, result, cards, with_doc_pages)
+    _render_map(folder, result, env, common, cards, with_doc_pages)
     # ids and file names are the user's own and may hold e-mail addresses or phone numbers: pages show
     # them redacted, as titles are (exports keep them as they are, so rows can be joined back)
     shown: Callable[[str], str] = private_text if result.options.redact else str
@@ -117,7 +122,9 @@ def render_run_site(
         names={c.cluster_id: c.shown for c in result.naming.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
-    _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
+    _write(folder / "index.html", env.get_template("run_index.html").render(
+        common, cards=cards, overview=_overview(cards), first=_first_listed(result, cards),
+        over_time=_over_time(result, cards), up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
         common, entries=[{"source": shown(e.source), "status": e.status, "reason": e.reason, "detail": shown(e.detail)}
                          for e in result.ingested.entries], notes=result.ingested.notes,
@@ -171,6 +178,95 @@ def render_run_site(
                 distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../",
                 group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
+
+
+def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any]], with_doc_pages: bool) -> None:
+    """search-index.js (documents by title and text opening, clusters by label and terms) and the script."""
+    docs = result.collection.documents
+    clusters = [search.SearchCluster(card["id"], card["title"], tuple(t.term for t in c.chi2_terms[:20]), card["href"])
+                for card, c in zip(cards, result.clusters, strict=True)]
+    found: list[search.SearchDocument] = []
+    if len(docs) <= search.DOCUMENTS_UP_TO:  # above it the index holds clusters only: build nothing
+        labels = result.clustering.labels[result.collection.text_of_doc]
+        with_text = len(docs) <= search.SNIPPETS_UP_TO
+        for i, doc in enumerate(docs):
+            cluster_id = int(labels[i])
+            # a placeholder cut at the end of the slice may show half; the index keeps only the opening
+            text = display_text(doc.text[: search.SNIPPET_CHARS * 3]) if with_text else ""
+            href = doc_page_name(i) if with_doc_pages else cluster_page_name(cluster_id)
+            found.append(search.SearchDocument(doc.title, text, cluster_id, href))
+    _write(folder / search.INDEX_FILE, search.index_script(clusters, found))
+    script = files("pilewise.output.site").joinpath("static", search.SCRIPT_FILE)
+    (folder / search.SCRIPT_FILE).write_bytes(script.read_bytes())
+
+
+def _render_map(
+    folder: Path, result: RunResult, env: Environment, common: dict[str, Any], cards: Sequence[dict[str, Any]],
+    with_doc_pages: bool,
+) -> None:
+    """map.html: the seeded sample of distinct texts laid out in 2-D, coloured and numbered by cluster."""
+    docs, collection = result.collection.documents, result.collection
+    rows = docmap.sample_rows(int(collection.copies.size), docmap.MAP_CAP, result.options.seed)
+    space = result.vectors.space
+    points = docmap.layout(space[rows], result.options.seed)
+    marks = []
+    for row, (x, y) in zip(rows, points, strict=True):
+        first = int(collection.first_doc_of_text[row])
+        marks.append(docmap.Mark(float(x), float(y), int(result.clustering.labels[row]), docs[first].title,
+                                 doc_page_name(first) if with_doc_pages else None))
+    placed = docmap.cluster_labels(marks, {c["id"]: c["title"] for c in cards}, {c["id"]: c["size"] for c in cards})
+    label = (f"Map of {len(marks):,} of {int(collection.copies.size):,} distinct texts, coloured and numbered by "
+             "cluster (t-SNE layout)")
+    _write(folder / "map.html", env.get_template("map.html").render(
+        common, svg=Markup(docmap.map_svg(marks, placed, label=label)), drawn=len(marks),
+        texts=int(collection.copies.size), cap=docmap.MAP_CAP, sampled=len(marks) < collection.copies.size,
+        legend=[{"id": c.cluster, "colour": c.colour, "label": c.label, "size": c.size,
+                 "href": cluster_page_name(c.cluster), "drawn": sum(m.cluster == c.cluster for m in marks)}
+                for c in placed], seed=result.options.seed, up=""))
+
+
+def _overview(cards: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """One short row per cluster for the table above the cards."""
+    return [{"id": c["id"], "title": c["title"], "href": c["href"], "size": c["size"], "share": c["share"],
+             "stability": c["stability"], "stability_class": c["stability_class"],
+             "stability_word": c["stability_reading"].split(",")[0],  # the reading's first words: "stable"
+             "trend": c["trend"].reading if c["trend"] else ""} for c in cards]
+
+
+def _first_listed(result: RunResult, cards: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The new and rising clusters, new first, with the evidence of each (empty without dates)."""
+    if result.trends is None:
+        return []
+    trends = result.trends
+    listed = []
+    for c in trends.first():
+        trend = trends.clusters[c]
+        before, latest = _share_change(trend.periods, trends.totals)
+        listed.append({"id": c, "title": cards[c]["title"], "href": cards[c]["href"], "reading": trend.reading,
+                       "evidence": trend.evidence, "before": before, "latest": latest})
+    return listed
+
+
+def _share_change(periods: Sequence[Any], totals: Sequence[int]) -> tuple[float, float]:
+    """The cluster's share of the dated documents in the first and in the latest quarter of the periods."""
+    quarter = max(1, len(periods) // 4)
+
+    def share(chosen: Sequence[Any], total: Sequence[int]) -> float:
+        return sum(p.count for p in chosen) / max(sum(total), 1)
+
+    return share(periods[:quarter], totals[:quarter]), share(periods[-quarter:], totals[-quarter:])
+
+
+def _over_time(result: RunResult, cards: Sequence[dict[str, Any]]) -> Markup | None:
+    """All clusters' shares per period as small multiples (one row per cluster); None without dates."""
+    if result.trends is None:
+        return None
+    trends = result.trends
+    rows = [(f"{card['id']} {card['title']}", [p.count for p in t.periods], [p.share for p in t.periods], t.reading)
+            for card, t in zip(cards, trends.clusters, strict=True)]
+    label = (f"Share of each {trends.period}'s dated documents per cluster, {trends.starts[0]} to "
+             f"{trends.starts[-1]}; each row scaled to its own peak")
+    return Markup(trend_rows_svg(trends.starts, rows, label=label))
 
 
 def _render_levels(folder: Path, result: RunResult, env: Environment, common: dict[str, Any]) -> None:
@@ -443,7 +539,8 @@ def render_root_index(
         mine = [{"other": p["b"] if p["a"] == name else p["a"], "k": p["kb"] if p["a"] == name else p["ka"], **p}
                 for p in listed if name in (p["a"], p["b"])]
         write_text_atomically(out / "runs" / name / "comparisons.html", env.get_template("comparisons.html").render(
-            run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up=""))
+            run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up="",
+            finder=(run.folder / search.INDEX_FILE).is_file()))  # runs written before search have none
     _copy_stylesheet(out, atomic=True)
     page = out / "index.html"
     write_text_atomically(page, env.get_template("root_index.html").render(
