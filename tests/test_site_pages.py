@@ -19,6 +19,7 @@ from pilewise.describe.compare import MOVED_PER_PAIR, MovedDoc, moved_pairs
 from pilewise.describe.snippets import ELLIPSIS, clip_text
 from pilewise.options import RunOptions
 from pilewise.output.exports import describe_file, file_key
+from pilewise.output.site import _after_badge
 from pilewise.pipeline import compare_runs, run_collection
 
 
@@ -232,6 +233,11 @@ def test_moved_pairs_list_a_bounded_number_of_documents() -> None:
 
 
 def test_no_badge_word_is_repeated_beside_it(site: Path) -> None:
+    # readings whose sentence opens with only part of the badge ("split and merged": "split into ...")
+    assert _after_badge("split into 0 and 6; in 0 it merged with 2", "split and merged") == (
+        "into 0 and 6; in 0 it merged with 2")
+    assert _after_badge("merged from 0 (75%) and 1", "merged from parts of") == "0 (75%) and 1"
+    assert _after_badge("mostly went to 2", "reshaped") == "mostly went to 2"
     page = _soup(site / "compare" / "k3--k5" / "index.html")
     badges = page.select("table.fates span.reading")
     assert badges

@@ -414,8 +414,12 @@ MOVED_PAIRS_ON_PAGE = 200  # pairs of clusters listed on a comparison page, the 
 
 
 def _after_badge(text: str, reading: str) -> str:
-    """A fate's sentence without its opening words when the badge beside it already says them ("kept" "kept as 3")."""
-    return text[len(reading):].lstrip(" :") if text.startswith(reading + " ") else text
+    """A fate's sentence without the opening words the badge beside it already says ("kept" "kept as 3": "as 3")."""
+    words, badge = text.split(" "), reading.split(" ")
+    same = 0
+    while same < min(len(words) - 1, len(badge)) and words[same] == badge[same]:
+        same += 1
+    return " ".join(words[same:])
 
 
 def _moved_row(m: dict[str, Any], pages_b: str | None) -> dict[str, Any]:
