@@ -64,6 +64,7 @@ SITE_FILES: dict[str, str] = {
     ".pilewise": "the mark that pilewise wrote this folder (it replaces only folders so marked)",
 }
 LATE_FILES = ("comparisons.html", ".pilewise")  # written after the pages, when the run is moved into place
+REWRITTEN_LAST = ("manifest.json",)  # written again after the pages (its timings): its size is not listed
 
 
 def members_csv_name(cluster_id: int) -> str:
@@ -86,13 +87,14 @@ def listed_files(folder: Path, *, data_only: bool = False, late: tuple[str, ...]
     """The files under `folder` (and `late`, files written later), one entry per key, in the order of the dicts.
 
     Each entry: ``name`` (the first file, for a link), ``last`` (the last file when several share the key,
-    else ""), ``count``, ``bytes`` (their total size; 0 for late files) and ``what``.
+    else ""), ``count``, ``bytes`` (their total size; 0 for late files and REWRITTEN_LAST) and ``what``.
     """
     found: dict[str, list[tuple[str, int]]] = {}
     for path in sorted(folder.rglob("*")):
         if path.is_file():
             relative = path.relative_to(folder).as_posix()
-            found.setdefault(file_key(relative), []).append((relative, path.stat().st_size))
+            size = 0 if relative in REWRITTEN_LAST else path.stat().st_size  # pages stay byte-reproducible
+            found.setdefault(file_key(relative), []).append((relative, size))
     for name in late:
         found.setdefault(file_key(name), [(name, 0)])
     order = list(DATA_FILES) + ([] if data_only else list(SITE_FILES))
