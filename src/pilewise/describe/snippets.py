@@ -39,7 +39,7 @@ def clip_text(text: str, limit: int) -> str:
         return flat
     room = limit - len(ELLIPSIS)
     cut = _word_cut(flat, room)
-    if cut < room // 2:  # one long word (or a long run without breaks): cut inside it
+    if cut == 0 or cut < room // 2:  # one long word (or a long run without breaks): cut inside it
         cut = _grapheme_cut(flat, room)
     return flat[:cut].rstrip() + ELLIPSIS
 
@@ -59,7 +59,7 @@ def _grapheme_cut(flat: str, room: int) -> int:
     cut = room
     while cut > 0 and (_extends(flat[cut]) or flat[cut - 1] in _JOINERS):
         cut -= 1
-    return cut or room  # a text of marks only: any cut will do
+    return cut  # 0 when even the first cluster does not fit: the ellipsis alone
 
 
 def _extends(ch: str) -> bool:
