@@ -19,6 +19,9 @@ HOSTILE_BODY = (
 )
 
 
+OWN_SCRIPTS = {"pilewise-sort.js"}
+
+
 def _hostile_collection(folder: Path) -> Path:
     folder.mkdir()
     table = folder / "tickets.csv"

@@ -21,9 +21,11 @@ from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.describe.runfolders import FinishedRun, FinishedSweep
+from pilewise.describe.snippets import clip_text
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
 from pilewise.output import docmap, search
+from pilewise.output.exports import LATE_FILES, listed_files, members_csv_name
 from pilewise.output.outfolder import write_text_atomically
 from pilewise.output.plots import trend_bars_svg, trend_rows_svg
 
@@ -32,7 +34,11 @@ MEMBERS_PER_PAGE = 500
 MEMBERS_LISTED = 5_000  # members listed per cluster (nearest first, 10 pages); assignments.csv has them all
 MARKED_TERMS = 12
 GROUP_LISTED = 50  # copies and near-duplicates linked from a document page
+SNIPPET_CHARS = 160  # a member's excerpt in lists, cut at a word boundary
+LABEL_CHARS = 60  # a document's label in the menu, the page title and previous/next links
 STYLESHEET = "pilewise.css"
+SORT_SCRIPT = "pilewise-sort.js"  # sorts tables of class "sortable"; the pages read the same without it
+STATIC_FILES = (STYLESHEET, SORT_SCRIPT)
 
 CAUTION = (
     "These pages contain the documents' own text. Share them only as your data-protection rules allow. "
@@ -56,12 +62,13 @@ def _environment() -> Environment:
 
 
 def _copy_stylesheet(folder: Path, *, atomic: bool = False) -> None:
-    """The stylesheet beside the pages; `atomic` for folders that readers may be looking at."""
-    source = files("pilewise.output.site").joinpath("static", STYLESHEET)
-    if atomic:
-        write_text_atomically(folder / STYLESHEET, source.read_text(encoding="utf-8"))
-    else:
-        (folder / STYLESHEET).write_bytes(source.read_bytes())
+    """The static files (STATIC_FILES: stylesheet, scripts) beside the pages; `atomic` for folders readers may see."""
+    for name in STATIC_FILES:
+        source = files("pilewise.output.site").joinpath("static", name)
+        if atomic:
+            write_text_atomically(folder / name, source.read_text(encoding="utf-8"))
+        else:
+            (folder / name).write_bytes(source.read_bytes())
 
 
 @dataclass(frozen=True)
@@ -109,6 +116,7 @@ def render_run_site(
         "resamples": result.stability.resamples,
         "finder": True,  # base.html: the search form and the run's two script files
     }
+    common["exports"] = listed_files(folder, data_only=True)  # the exports are written before the pages
     cards = [_card(c, result) for c in result.clusters]
     _write_search(folder, result, cards, with_doc_pages)
     _render_map(folder, result, env, common, cards, with_doc_pages)
@@ -132,9 +140,10 @@ def render_run_site(
         boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up="",
         languages=[(code, f"{share:.1%}") for code, share in result.languages.collection] if result.languages else [],
         languages_forced=bool(result.languages and result.languages.forced)))
-    members_by_cluster = _members_nearest_first(result)
-    for cluster, card in zip(result.clusters, cards, strict=True):
-        members = members_by_cluster[cluster.cluster_id]
+    # every member when documents have pages (their previous/next links follow this order), else the listed ones
+    members_by_cluster = _members_nearest_first(result, None if with_doc_pages else MEMBERS_LISTED)
+    for position, (cluster, card) in enumerate(zip(result.clusters, cards, strict=True)):
+        members = members_by_cluster[cluster.cluster_id][:MEMBERS_LISTED]
         pages = max(1, -(-len(members) // MEMBERS_PER_PAGE))
         for page in range(1, pages + 1):
             chunk = members[(page - 1) * MEMBERS_PER_PAGE : page * MEMBERS_PER_PAGE]
@@ -152,6 +161,9 @@ def render_run_site(
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
                 "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
                 "listed": len(members),
+                "members_csv": members_csv_name(cluster.cluster_id),
+                "prev_cluster": _cluster_link(cards[position - 1]) if position > 0 else None,
+                "next_cluster": _cluster_link(cards[position + 1]) if position + 1 < len(cards) else None,
                 "up": "",
             }
             _write(folder / cluster_page_name(cluster.cluster_id, page),
@@ -164,20 +176,29 @@ def render_run_site(
         for j, text_index in enumerate(result.collection.text_of_doc):
             if result.collection.copies[text_index] > 1:
                 members_of_text.setdefault(int(text_index), []).append(j)
+        ranks = {i: (c, r) for c, members in members_by_cluster.items() for r, (i, _) in enumerate(members)}
         numbered = enumerate(docs)
         for i, doc in track(numbered) if track else numbered:
             t = result.collection.text_of_doc[i]
             cluster_id = int(result.clustering.labels[t])
             segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
             group = [j for j in members_of_text.get(int(t), []) if j != i][:GROUP_LISTED]
+            order, rank = members_by_cluster[ranks[i][0]], ranks[i][1]
             _write(folder / doc_page_name(i), template.render(
                 common, doc=doc, doc_id=shown(doc.doc_id), source=shown(doc.source), segments=segments,
+                label=doc_label(doc.title), self_href=doc_page_name(i).removeprefix("docs/"),
+                marked=sum(s.marked for s in segments), marked_terms=MARKED_TERMS, rank=rank + 1,
+                prev_member=_doc_link(order[rank - 1][0], docs) if rank > 0 else None,
+                next_member=_doc_link(order[rank + 1][0], docs) if rank + 1 < len(order) else None,
                 cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id),
                 cluster_title=result.naming.clusters[cluster_id].name or result.clusters[cluster_id].headline,
                 distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../",
                 group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
+    # last, so that it lists every file written before it (and the few written when the run is put in place)
+    _write(folder / "files.html", env.get_template("files.html").render(
+        common, files=listed_files(folder, late=(*LATE_FILES, "files.html")), up=""))
 
 
 def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any]], with_doc_pages: bool) -> None:
@@ -425,12 +446,34 @@ def _member_row(
         "title": doc.title,
         "distance": distance,
         "href": doc_page_name(doc_index) if with_pages else None,
-        "snippet": " ".join(display_text(doc.text[:400]).split())[:160],
+        "snippet": snippet(doc.text),
     }
 
 
-def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float]]]:
-    """The MEMBERS_LISTED documents of every cluster nearest to its centroid, nearest first (copies together)."""
+def snippet(text: str, limit: int = SNIPPET_CHARS) -> str:
+    """A document's opening words for lists, redaction labels shown, cut at a word boundary with an ellipsis."""
+    head = text[: 8 * limit]  # enough for `limit` characters unless the text opens with long whitespace runs
+    if len(text) > len(head) and len(" ".join(head.split())) <= limit:
+        head = text
+    return clip_text(display_text(head), limit)
+
+
+def doc_label(title: str) -> str:
+    """A document's short label (menu, page title, previous/next links): its title cut at a word boundary."""
+    return clip_text(title, LABEL_CHARS) or "(untitled)"
+
+
+def _cluster_link(card: dict[str, Any]) -> dict[str, Any]:
+    return {"id": card["id"], "href": card["href"], "title": clip_text(card["title"], LABEL_CHARS)}
+
+
+def _doc_link(doc_index: int, docs: Sequence[Document]) -> dict[str, str]:
+    """A link from one document page to another (both live in docs/)."""
+    return {"href": doc_page_name(doc_index).removeprefix("docs/"), "title": doc_label(docs[doc_index].title)}
+
+
+def _members_nearest_first(result: RunResult, cap: int | None) -> dict[int, list[tuple[int, float]]]:
+    """Each cluster's first `cap` documents (all when None), nearest to its centroid first (ties in reading order)."""
     import numpy as np
 
     labels = result.clustering.labels[result.collection.text_of_doc]
@@ -439,7 +482,7 @@ def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float
     starts = np.searchsorted(labels[order], np.arange(len(result.clusters) + 1))
     return {
         c.cluster_id: [(int(i), float(distances[i]))
-                       for i in order[starts[c.cluster_id] : starts[c.cluster_id + 1]][:MEMBERS_LISTED]]
+                       for i in order[starts[c.cluster_id] : starts[c.cluster_id + 1]][:cap]]
         for c in result.clusters
     }
 
@@ -472,7 +515,24 @@ def _write(path: Path, content: str) -> None:
     path.write_text(content, encoding="utf-8")
 
 
-MOVED_ON_PAGE = 500
+MOVED_PAIRS_ON_PAGE = 200  # pairs of clusters listed on a comparison page, the largest first; compare.json has all
+
+
+def _after_badge(text: str, reading: str) -> str:
+    """A fate's sentence without the opening words the badge beside it already says ("kept" "kept as 3": "as 3")."""
+    words, badge = text.split(" "), reading.split(" ")
+    same = 0
+    while same < min(len(words) - 1, len(badge)) and words[same] == badge[same]:
+        same += 1
+    return " ".join(words[same:])
+
+
+def _moved_row(m: dict[str, Any], pages_b: str | None) -> dict[str, Any]:
+    """A moved document as the comparison page shows it: ids and titles with personal data redacted."""
+    row_b = m.get("row_b", -1)
+    href = pages_b + doc_page_name(row_b) if pages_b is not None and isinstance(row_b, int) and row_b >= 0 else None
+    return {"doc_id": private_text(str(m["doc_id"])), "title": doc_label(private_text(str(m.get("title") or ""))),
+            "href": href}
 
 
 def _shade(share: float) -> str:
@@ -498,15 +558,23 @@ def render_comparison(folder: Path, out: Path, document: dict[str, Any], run_a: 
                                                                                    strict=True)]}
         for row in table["rows"]
     ]
-    # ids are the user's own; the page shows them as the run pages do, with personal data redacted
-    moved = [{**m, "doc_id": private_text(str(m["doc_id"]))} for m in document["moved"]["documents"][:MOVED_ON_PAGE]]
+    # documents link to their pages in run B when B wrote document pages (it does up to DOC_PAGE_CAP documents)
+    pages_b = _href(folder, run_b) + "/" if (run_b / "docs").is_dir() else None
+    pairs = [{**p, "headline_a": clip_text(p["headline_a"], LABEL_CHARS),
+              "headline_b": clip_text(p["headline_b"], LABEL_CHARS),
+              "documents": [_moved_row(m, pages_b) for m in p["documents"]]}
+             for p in document["moved"].get("pairs", [])[:MOVED_PAIRS_ON_PAGE]]
+    fates = {side: [{**f, "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
+             for side in ("fates_a", "fates_b")}
     homes = [out / "index.html", *(f.resolve().parent.parent / "index.html" for f in (run_a, run_b)
                                    if f.resolve().parent.name == "runs")]
     home = next((_href(folder, h) for h in homes if h.is_file()), None)
     page = folder / "index.html"
     write_text_atomically(page, _environment().get_template("compare.html").render(
-        doc=document, a=a, b=b, ka=len(table["clusters_a"]), kb=len(table["clusters_b"]), rows=rows,
-        moved=moved, home=home, href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
+        doc=document, fates_a=fates["fates_a"], fates_b=fates["fates_b"], a=a, b=b, ka=len(table["clusters_a"]),
+        kb=len(table["clusters_b"]), rows=rows,
+        pairs=pairs, pairs_total=len(document["moved"].get("pairs", [])), home=home,
+        href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
         caution=CAUTION, css=STYLESHEET, up=""))
     return page
 
