@@ -15,10 +15,10 @@ import time
 from pathlib import Path
 
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
+from tests import open_sets
 
 from pilewise.options import RunOptions
 from pilewise.pipeline import run_collection
-from tests import open_sets
 
 LOADERS = {"mini_newsgroups": open_sets.load_mini_newsgroups, "reuters": open_sets.load_reuters_sample,
            "foldoc": open_sets.load_foldoc}
@@ -50,8 +50,8 @@ def main() -> None:
                     rows = list(csv.DictReader(handle))
                 labels[engine] = [int(r["cluster"]) for r in rows]
                 gold = [corpus.labels[int(r["doc_id"][1:])] for r in rows]
-                print(f"{args.corpus} seed {seed} {engine}: NMI {normalized_mutual_info_score(gold, labels[engine]):.3f}"
-                      f" in {seconds:.1f} s ({len(rows)} documents, k={k})")
+                nmi = normalized_mutual_info_score(gold, labels[engine])
+                print(f"{args.corpus} seed {seed} {engine}: NMI {nmi:.3f} in {seconds:.1f} s ({len(rows)} documents, k={k})")
             print(f"{args.corpus} seed {seed}: ARI between engines "
                   f"{adjusted_rand_score(labels['local'], labels['spark']):.3f}")
 

@@ -12,8 +12,10 @@ every k of a grid (2 to 30, then every third k up to 1.5 times the number of gol
   (``clustering.quality.null_space``: each column of the space shuffled on its own, rows back to unit length);
 - ``inertia``: k-means' within-cluster sum of squares;
 - ``stability_1``, ``stability``: mean clusterwise bootstrap stability (10 resamples, at most 5,000 rows)
-  when each resample is re-clustered with 1 k-means start (pilewise before issue 11) and with the run's
-  starts (``stability.RESAMPLE_STARTS``, after it).
+  when each resample is re-clustered with 1 k-means start (pilewise before issue 11; left out with
+  ``--no-one-start``) and with the run's starts (``stability.RESAMPLE_STARTS``, after it);
+- ``null_stability``: the same stability for the k-means clustering of the null reference at k, the bar
+  of ``recommend_k`` when no k reaches ``sweep.STABLE``.
 
 Then it applies each candidate rule of ``RULES`` to those figures and prints, per collection, the k each
 rule picks and the NMI at that k, beside the true number of labels and the best NMI over the grid.
@@ -21,7 +23,7 @@ rule picks and the NMI at that k, beside the true number of labels and the best 
 How to run
 ----------
     bash corpora/fetch.sh --all
-    python benchmarks/measure_k.py                        # every collection (about 25 min on 2 busy cores)
+    python benchmarks/measure_k.py --no-one-start         # every collection (about 25 min on 2 busy cores)
     python benchmarks/measure_k.py --collections foldoc
     python benchmarks/measure_k.py --collections wordnet_glosses fortunes --sample 3000 --coarse --resamples 5 \
         --out benchmarks/.out/k-large.json                   # the large ones on a coarser grid
@@ -65,7 +67,8 @@ def k_grid(k_true: int, n: int, coarse: bool = False) -> list[int]:
     return [k for k in ks if k < n]
 
 
-def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples: int = RESAMPLES) -> dict[str, Any]:
+def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples: int = RESAMPLES,
+          one_start: bool = True) -> dict[str, Any]:
     prepared = prepare(load_sample(name, sample))
     space = pilewise_space(prepared, 0)
     weights = prepared.copies
@@ -79,8 +82,12 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples:
         null_clustering = kmeans_clusters(null, weights, k=k, seed=0, n_init=STARTS)
         null_quality = assess(null, null_clustering.labels, k=k, seed=0)
         stabilities = {}
-        for key, starts in (("stability_1", 1), ("stability", RESAMPLE_STARTS)):
-            result = bootstrap_stability(space[rows], weights[rows], clustering.labels[rows], k=k,
+        runs = [("stability", space, clustering.labels, RESAMPLE_STARTS),
+                ("null_stability", null, null_clustering.labels, RESAMPLE_STARTS)]
+        if one_start:
+            runs.append(("stability_1", space, clustering.labels, 1))
+        for key, rows_of, labels, starts in runs:
+            result = bootstrap_stability(rows_of[rows], weights[rows], labels[rows], k=k,
                                          resamples=resamples, seed=0, cluster_fn=kmeans_cluster_fn(k, starts))
             stabilities[key] = result.mean
             stabilities[key + "_min"] = float(np.nanmin([c.mean_jaccard for c in result.clusters]))
@@ -90,7 +97,8 @@ def per_k(name: str, sample: int | None = None, coarse: bool = False, resamples:
                        "davies_bouldin": quality.davies_bouldin, **stabilities,
                        "seconds": time.perf_counter() - started})
         print(f"{name} k={k} nmi={points[-1]['nmi']:.3f} sil={quality.silhouette:.3f} "
-              f"null={null_quality.silhouette:.3f} stab={stabilities['stability']:.2f}", file=sys.stderr, flush=True)
+              f"null={null_quality.silhouette:.3f} stab={stabilities['stability']:.2f} "
+              f"null_stab={stabilities['null_stability']:.2f}", file=sys.stderr, flush=True)
     return {"collection": name, "documents": prepared.documents, "distinct": int(weights.size),
             "k_true": prepared.k_true, "points": points, "coarse": coarse}
 
@@ -122,7 +130,8 @@ def stability_purity(name: str, resamples: int = 20, sample: int | None = None) 
 
 def _sweep_points(points: list[dict[str, Any]], stability: str) -> list[SweepPoint]:
     return [SweepPoint(p["k"], p["silhouette"], p["calinski_harabasz"], p["davies_bouldin"], p[stability],
-                       p[stability + "_min"], p["inertia"], p["null_silhouette"]) for p in points]
+                       p[stability + "_min"], p["inertia"], p["null_silhouette"], p.get("null_" + stability))
+            for p in points]
 
 
 def _argmax(points: list[dict[str, Any]], score: Callable[[dict[str, Any]], float]) -> int:
@@ -201,7 +210,11 @@ def render(results: list[dict[str, Any]]) -> str:
     for rule, pick in RULES.items():
         cells = []
         for r in results:
-            k = pick(r["points"])
+            try:
+                k = pick(r["points"])
+            except KeyError:  # a figure this run did not measure (--no-one-start)
+                cells.append("not measured")
+                continue
             at = {p["k"]: p for p in r["points"]}[k]
             cells.append(f"{k} ({at['nmi']:.2f})")
         lines.append(f"| {rule} | " + " | ".join(cells) + " |")
@@ -216,6 +229,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--sample", type=int, help="documents kept of each collection (default: SAMPLES)")
     parser.add_argument("--coarse", action="store_true", help="every k to 10, then every third k")
     parser.add_argument("--resamples", type=int, help="bootstrap resamples (default 10 per k, 20 for --purity)")
+    parser.add_argument("--no-one-start", action="store_true",
+                        help="skip the stability with 1 start per resample (the rule before issue 11)")
     parser.add_argument("--purity", action="store_true",
                         help="measure per-cluster stability against purity instead (benchmarks/.out/purity.json)")
     args = parser.parse_args(argv)
@@ -230,7 +245,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     results = []
     for name in args.collections:
-        results.append(per_k(name, args.sample, args.coarse, args.resamples or RESAMPLES))
+        results.append(per_k(name, args.sample, args.coarse, args.resamples or RESAMPLES, not args.no_one_start))
         args.out.parent.mkdir(parents=True, exist_ok=True)
         args.out.write_text(json.dumps(results, indent=2) + "\n", encoding="utf-8")
     print(render(results))

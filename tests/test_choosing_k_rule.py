@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -12,8 +13,18 @@ from scipy.stats import spearmanr
 from helpers import invoke, write_topic_folder
 from open_sets import CorpusNotFetchedError, load_foldoc, load_mini_newsgroups
 from pilewise.clustering.kmeans import kmeans_clusters
-from pilewise.clustering.stability import bootstrap_stability, kmeans_cluster_fn
-from pilewise.clustering.sweep import MIN_CLUSTER_TEXTS, PATTERN, PLATEAU, SweepPoint, recommend_k, sweep_kmeans
+from pilewise.clustering.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn
+from pilewise.clustering.sweep import (
+    MIN_CLUSTER_TEXTS,
+    PATTERN,
+    PLATEAU,
+    STABLE,
+    SweepPoint,
+    null_stability,
+    recommend_k,
+    sweep_clusterings,
+    sweep_kmeans,
+)
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import VectorSettings, vectorize
 
@@ -48,12 +59,73 @@ def test_unstable_k_and_k_with_tiny_clusters_are_never_chosen() -> None:
     assert k == 4 and runner_up == 2
 
 
-def test_with_no_stable_k_the_size_bound_still_applies() -> None:
-    # Nothing reaches PATTERN: the rule falls back to every k that passes the size bound, and says so.
+def test_with_no_stable_k_and_no_null_measured_the_size_bound_still_applies() -> None:
+    # No k reaches STABLE and no null stability is known: every k that passes the size bound is kept, and the
+    # reason says so (docs/method.md, "Choosing k").
     points = [point(2, 0.2, 0.1, 0.3), point(3, 0.3, 0.1, 0.3), point(4, 0.9, 0.1, 0.3)]
     k, _, reason = recommend_k(points, texts=3 * MIN_CLUSTER_TEXTS)
     assert k == 3
-    assert f"no k reached mean stability {PATTERN}" in reason
+    assert f"no k reached {STABLE}, and none beat the shuffled vectors' stability" in reason
+
+
+def null_point(k: int, excess: float, stability: float, null_stability: float) -> SweepPoint:
+    return replace(point(k, 0.1 + excess, 0.1, stability), null_stability=null_stability)
+
+
+def test_without_a_stable_k_each_k_must_beat_the_null_stability_instead_of_a_fixed_bar() -> None:
+    # Issue 11, WordNet glosses (benchmarks/measure_k.py): only k = 2 passed the fixed bar PATTERN (0.64), every
+    # larger k read 0.4-0.57 yet above the same k-means on shuffled vectors, so the rule collapsed to k = 2.
+    # With no k at STABLE, the bar is the null's stability at the same k. Here k = 2 passes PATTERN but not its
+    # null, k = 6 does not beat its null; the pick is recomputed independently over the others.
+    excesses = {2: 0.01, 3: 0.03, 4: 0.05, 5: 0.07, 6: 0.2, 7: 0.09, 8: 0.1}
+    stabilities = {2: 0.65, 3: 0.5, 4: 0.5, 5: 0.5, 6: 0.5, 7: 0.5, 8: 0.5}
+    nulls = {2: 0.9, 3: 0.3, 4: 0.3, 5: 0.3, 6: 0.55, 7: 0.3, 8: 0.3}
+    points = [null_point(k, excesses[k], stabilities[k], nulls[k]) for k in excesses]
+    k, runner_up, reason = recommend_k(points, texts=100 * MIN_CLUSTER_TEXTS)
+    kept = [k for k in excesses if stabilities[k] > nulls[k]]  # 3, 4, 5, 7, 8: excess still rising to 0.1 at 8
+    assert k == min(k for k in kept if excesses[k] >= PLATEAU * max(excesses[j] for j in kept)) == 7
+    assert runner_up == 8
+    assert "above the shuffled vectors'" in reason and "(shuffled vectors 0.30)" in reason
+
+
+def test_a_stable_k_in_the_range_keeps_the_fixed_bar() -> None:
+    # The same figures with k = 2 at STABLE: stability then tells partitions apart, the fixed PATTERN bar
+    # applies and only k = 2 passes it (the two-newsgroups case: 0.90 at k = 2, under 0.6 above).
+    points = [null_point(2, 0.01, STABLE, 0.9)] + [null_point(k, 0.02 * k, 0.5, 0.3) for k in range(3, 9)]
+    k, runner_up, reason = recommend_k(points, texts=100 * MIN_CLUSTER_TEXTS)
+    assert (k, runner_up) == (2, None)
+    assert f"mean stability at least {PATTERN} (some k reaches {STABLE})" in reason
+
+
+def test_the_null_stability_is_measured_only_when_no_k_reads_stable() -> None:
+    # Well-separated planted groups read stable, so no null is clustered; a method returning random labels
+    # never reads stable (its clusters do not reappear), so every k gets the null's stability.
+    space = planted(4, 30, 0.1)
+    weights = np.ones(len(space))
+    clusterings = {k: kmeans_clusters(space, weights, k=k, seed=0, n_init=4) for k in (3, 4, 5)}
+    sweep = sweep_clusterings(space, weights, clusterings, seed=0, resamples=3, cluster_fn_for=kmeans_cluster_fn)
+    assert max(p.stability_mean for p in sweep.points) >= STABLE
+    assert all(p.null_stability is None for p in sweep.points)
+
+    def random_labels(k: int) -> ClusterFn:
+        return lambda rows, _weights, seed: np.random.default_rng(seed).integers(0, k, size=rows.shape[0])
+
+    sweep = sweep_clusterings(space, weights, clusterings, seed=0, resamples=3, cluster_fn_for=random_labels)
+    assert max(p.stability_mean for p in sweep.points) < STABLE
+    assert all(p.null_stability is not None and 0.0 <= p.null_stability <= 1.0 for p in sweep.points)
+
+
+def test_planted_groups_are_more_stable_than_their_structureless_null() -> None:
+    # Hennig (2007): well-separated groups are found again in nearly every resample (>= 0.85, "highly
+    # stable"); the same rows with each dimension shuffled (quality.null_space) hold no groups, so k-means at
+    # the same k cuts them differently from resample to resample (below STABLE).
+    space = planted(6, 40, 0.1)
+    weights = np.ones(len(space))
+    labels = kmeans_clusters(space, weights, k=6, seed=0, n_init=4).labels
+    data = bootstrap_stability(space, weights, labels, k=6, resamples=5, seed=0, cluster_fn=kmeans_cluster_fn(6))
+    null = null_stability(space, weights, 6, seed=0, resamples=5, cluster_fn=kmeans_cluster_fn(6))
+    assert data.mean >= 0.85
+    assert null < STABLE
 
 
 def planted(k: int, per: int, spread: float, dims: int = 30, seed: int = 0) -> np.ndarray:

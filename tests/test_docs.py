@@ -22,7 +22,7 @@ def test_every_command_and_option_is_in_the_usage_doc() -> None:
     usage = _doc("usage.md")
     command = typer.main.get_command(app)
     commands = getattr(command, "commands", {})
-    assert set(commands) == {"run", "demo", "compare", "sweep"}
+    assert set(commands) == {"run", "demo", "compare", "sweep", "assign"}
     for name, sub in commands.items():
         assert f"## `pilewise {name}" in usage, name
         for param in sub.params:

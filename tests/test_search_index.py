@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
+
+import pytest
 
 from pilewise.output.search import (
     DOCUMENTS_UP_TO,
@@ -46,3 +49,29 @@ def test_very_large_runs_search_clusters_only() -> None:
     docs = [SearchDocument("t", "x", 0, "c.html")] * (DOCUMENTS_UP_TO + 1)
     data = _data(index_script([SearchCluster(0, "a", ("a",), "c.html")], docs))
     assert data["docs"] == [] and data["searched"] == "clusters only" and data["documents"] == DOCUMENTS_UP_TO + 1
+
+
+def test_a_run_writes_its_index_and_every_result_link_exists(
+    topic_folder: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from bs4 import BeautifulSoup
+
+    from pilewise.options import RunOptions
+    from pilewise.output import site
+    from pilewise.pipeline import run_collection
+
+    run = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "out", quiet=True)).run_folder
+    data = _data((run / "search-index.js").read_text(encoding="utf-8"))
+    assert (run / "pilewise-search.js").is_file()
+    assert data["documents"] == len(data["docs"]) == 60  # every document, titled as its page
+    for title, _, cluster, href in data["docs"]:
+        page = BeautifulSoup((run / href).read_text(encoding="utf-8"), "html.parser")
+        assert page.h1.get_text() == title and f"Cluster {cluster}" in page.find("p", class_="cid").get_text()
+    assert [c[3] for c in data["clusters"]] == ["cluster-00.html", "cluster-01.html", "cluster-02.html"]
+    # without document pages (above the cap) results lead to the document's cluster page
+    monkeypatch.setattr(site, "DOC_PAGE_CAP", 10)
+    run = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "out2", quiet=True)).run_folder
+    data = _data((run / "search-index.js").read_text(encoding="utf-8"))
+    assert not (run / "docs").exists()
+    assert {href for *_, href in data["docs"]} == {"cluster-00.html", "cluster-01.html", "cluster-02.html"}
+    assert all(href == f"cluster-{cluster:02d}.html" for _, _, cluster, href in data["docs"])

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+import random
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -10,13 +12,21 @@ import pytest
 import scipy.sparse as sp
 from sklearn.cluster import KMeans
 
+from pilewise.clustering.kmeans import clustering_from_labels
 from pilewise.clustering.stability import (
     STABILITY_READINGS,
+    ClusterStability,
+    StabilityResult,
     best_jaccard,
     bootstrap_stability,
     kmeans_cluster_fn,
+    mixed_stability_reading,
     stability_reading,
 )
+from pilewise.describe.summaries import describe_clusters
+from pilewise.options import RunOptions
+from pilewise.pipeline import compute_run
+from pilewise.progress import Reporter
 
 
 def _blobs(per_blob: int = 50, dims: int = 5, blobs: int = 4, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
@@ -206,3 +216,53 @@ def test_cluster_fn_must_return_one_label_per_row() -> None:
 
     with pytest.raises(ValueError, match="it must return one label per row"):
         bootstrap_stability(np.eye(4), np.ones(4), np.array([0, 0, 1, 1]), k=2, resamples=1, seed=0, cluster_fn=broken)
+
+
+# --- a mixed cluster is never read "stable" (issue 11) ----------------------------------------------------------
+
+
+@pytest.mark.parametrize(("value", "reading"), [
+    (0.91, "mixed, yet it reappears in resamples: a repeatable grab-bag, not one theme"),
+    (0.6, "mixed, yet it reappears in resamples: a repeatable grab-bag, not one theme"),
+    (0.55, "should not be trusted"),  # below fpc's 0.6 the usual reading already warns
+    (float("nan"), "not defined"),
+])
+def test_a_mixed_clusters_stability_reading(value: float, reading: str) -> None:
+    # Seen on the chat categories: clusters flagged mixed read 0.64-0.91, "stable" by fpc's rules of thumb.
+    assert mixed_stability_reading(value) == reading
+
+
+def test_a_grab_bag_cluster_that_reappears_is_read_mixed_not_stable(tmp_path: Path) -> None:
+    # Construction (as tests/test_descriptions.py): five topics with disjoint words, a cluster made of 8 notes
+    # of each topic (no word in more than 20% of it: mixed by THEME_MIN_SHARE); every cluster is given the
+    # same stability, 0.9 ("highly stable" by fpc's rules of thumb). Only the grab-bag's reading changes.
+    rng = random.Random(3)
+    words = [["soil", "compost", "seedling", "mulch", "greenhouse", "pruning", "trowel", "hedge"],
+             ["chain", "saddle", "pedal", "spoke", "brake", "gear", "puncture", "handlebar"],
+             ["oven", "flour", "dough", "whisk", "simmer", "saucepan", "recipe", "butter"],
+             ["mast", "keel", "rudder", "anchor", "jib", "hull", "tiller", "mooring"],
+             ["drizzle", "thunder", "humidity", "forecast", "barometer", "hail", "gust", "frost"]]
+    folder = tmp_path / "notes"
+    folder.mkdir()
+    for t, vocabulary in enumerate(words):
+        for i in range(24):
+            body = " ".join(rng.choice(vocabulary) for _ in range(25))
+            (folder / f"{t}-{i:02d}.txt").write_text(f"Entry {i} of log {t}\n{body}.\n", encoding="utf-8")
+    result = compute_run(RunOptions(source=folder, k=5, quiet=True), Reporter(quiet=True))
+    docs = result.collection.documents
+    raw = np.zeros(result.collection.copies.size, dtype=int)
+    seen = [0] * 5
+    for text in range(raw.size):
+        topic = int(docs[int(result.collection.first_doc_of_text[text])].doc_id.split("-")[0])
+        raw[text] = 0 if seen[topic] < 8 else 1 + topic
+        seen[topic] += 1
+    weights = result.collection.copies.astype(float)
+    clustering = clustering_from_labels(result.vectors.space, weights, raw, k=6)
+    stability = StabilityResult(tuple(ClusterStability(c, 0.9, 0.0, 5, stability_reading(0.9)) for c in range(6)),
+                                resamples=5, seed=0, mean=0.9)
+    clusters = describe_clusters(result.collection, result.vectors, clustering, result.quality, result.analyzer,
+                                 top_terms=15, stability=stability)
+    grab = next(c for c in clusters if c.size == 40)
+    assert grab.mixed
+    assert grab.stability_reading == mixed_stability_reading(0.9)
+    assert all(c.stability_reading == "highly stable" for c in clusters if not c.mixed)

@@ -92,7 +92,7 @@ def test_bulk_tokenizing_gives_the_same_tokens_as_nltk() -> None:
     analyzer = Analyzer(stop_words=frozenset(), stem=False)
     assert analyzer.tokens(text) == RegexpTokenizer(TOKEN_PATTERN).tokenize(text.lower())
     assert "o'neil" in analyzer.tokens(text) and "re-potted" in analyzer.tokens(text)
-    assert [t for _, _, t in analyzer.spans(text)] == analyzer.terms(text)
+    assert [t for _, _, t in analyzer.spans(text) if t] == analyzer.terms(text)  # "" items stand for gaps
 
 
 def test_phrase_counts_follow_the_text_order() -> None:

@@ -160,7 +160,8 @@ TitleColumn = Annotated[str | None, typer.Option(
 IdColumn = Annotated[str | None, typer.Option(
     "--id-column", metavar="COLUMN", help="Table column holding document ids.")]
 Period = Annotated[str, typer.Option(
-    "--period", metavar="day|week|month|auto", help="Periods of the trend counts; auto: from the span of the dates.")]
+    "--period", metavar="day|week|month|quarter|year|auto",
+    help="Periods of the trend counts; auto: the finest with at most 60 periods over the span.")]
 DateColumn = Annotated[str | None, typer.Option("--date-column", metavar="COLUMN", help="Table column holding dates.")]
 Delimiter = Annotated[str | None, typer.Option(
     "--delimiter", metavar="CHAR", help="Table separator, e.g. ';' or 'tab'; default: guessed from the file.")]
@@ -174,6 +175,8 @@ Boilerplate = Annotated[bool, typer.Option(
     "--boilerplate/--keep-boilerplate", help="Remove lines repeated across many texts before vectorizing.")]
 StopWords = Annotated[Path | None, typer.Option("--stop-words", metavar="FILE", help="Extra stop words, one per line.")]
 Stem = Annotated[bool, typer.Option("--stem/--no-stem", help="Snowball-stem words before counting.")]
+Language = Annotated[str | None, typer.Option(
+    "--language", metavar="CODE", help="Language of every document (ISO 639-1, e.g. de); default: detected.")]
 PhrasesInSpace = Annotated[bool, typer.Option("--phrases-in-space", help="Also cluster on two-word phrases.")]
 LsaComponents = Annotated[int, typer.Option("--lsa-components", metavar="N", help="LSA dimensions; 0 turns LSA off.")]
 MinDf = Annotated[int | None, typer.Option(
@@ -282,6 +285,7 @@ def run(
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
+    language: Language = None,
     phrases_in_space: PhrasesInSpace = False,
     lsa_components: LsaComponents = 100,
     min_df: MinDf = None,
@@ -325,6 +329,7 @@ def sweep(
     boilerplate: Boilerplate = True,
     stop_words: StopWords = None,
     stem: Stem = False,
+    language: Language = None,
     phrases_in_space: PhrasesInSpace = False,
     lsa_components: LsaComponents = 100,
     min_df: MinDf = None,
@@ -356,6 +361,43 @@ def compare(
 ) -> None:
     """Compare two runs: agreement figures, which clusters were kept, split or merged, which documents moved."""
     typer.echo(str(compare_runs(run_a, run_b, out).resolve()))
+
+
+@app.command(cls=PlainUsage, short_help="Place new documents in a saved run's clusters (OUT/assigned/NAME/).")
+@user_errors
+def assign(
+    run_folder: Annotated[Path, typer.Argument(
+        metavar="RUN", help="A run's folder (e.g. pilewise-site/runs/k5), or a run's name under OUT/runs.")],
+    source: SourceArg,
+    out: Annotated[Path | None, typer.Option(
+        "--out", metavar="OUT", help="Site folder; default: the one holding RUN (pilewise-site for a name).")] = None,
+    name: Annotated[str, typer.Option(
+        "--name", metavar="NAME", help="Folder name under OUT/assigned; default from SOURCE and the time.")] = "",
+    text_column: TextColumn = None,
+    title_column: TitleColumn = None,
+    id_column: IdColumn = None,
+    date_column: DateColumn = None,
+    delimiter: Delimiter = None,
+    encoding: Encoding = None,
+    records_key: RecordsKey = None,
+    follow_links: FollowLinks = False,
+    max_file_mb: MaxFileMb = 100.0,
+    max_doc_chars: MaxDocChars = 1_000_000,
+    max_documents: MaxDocuments = 2_000_000,
+    quiet: QuietOption = False,
+) -> None:
+    """Read SOURCE as `run` reads it and place every document in the nearest cluster of the saved run RUN, with
+    its distance and fit; write OUT/assigned/NAME/."""
+    from pilewise.assign.command import assign_source
+
+    reading = RunOptions(source=source, k=2, text_column=text_column, title_column=title_column,
+                         id_column=id_column, date_column=date_column, delimiter=delimiter, encoding=encoding,
+                         records_key=records_key, follow_links=follow_links, max_file_mb=max_file_mb,
+                         max_doc_chars=max_doc_chars, max_documents=max_documents, quiet=quiet)
+    outcome = assign_source(run_folder, reading, out=out, name=name)
+    if not quiet:
+        typer.echo(f"{outcome.documents:,} documents placed; {outcome.none_share:.0%} fit no cluster", err=True)
+    typer.echo(str(outcome.index_page.resolve()))
 
 
 @app.command(cls=PlainUsage, short_help="Write the invented demo collection and cluster it.")

@@ -20,6 +20,7 @@ if TYPE_CHECKING:  # stage types for annotations only: model stays importable by
     from pilewise.describe.trends import Trends
     from pilewise.ingest.dedup import Boilerplate
     from pilewise.options import RunOptions
+    from pilewise.vectors.languages import LanguageMix
     from pilewise.vectors.text import Analyzer
     from pilewise.vectors.tfidf import Vectorized
 
@@ -197,3 +198,4 @@ class RunResult:
     timings: dict[str, float]
     trends: Trends | None = None  # None: no document has a readable date
     population: Population | None = None  # None: the pages describe every document
+    languages: LanguageMix | None = None  # None: not detected (streaming mode without --language)

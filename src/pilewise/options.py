@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from pilewise.errors import PilewiseError
+from pilewise.vectors.languages import SUPPORTED
 
 # option name -> (lowest allowed, highest allowed, the CLI flag that sets it)
 LIMITS: dict[str, tuple[float, float, str]] = {
@@ -26,7 +27,7 @@ LIMITS: dict[str, tuple[float, float, str]] = {
 METHODS = ("kmeans", "ward")
 MODES = ("auto", "memory", "stream")
 ENGINES = ("local", "spark")
-PERIODS = ("auto", "day", "week", "month")
+PERIODS = ("auto", "day", "week", "month", "quarter", "year")
 # --mode auto streams when the files to read hold at least this many bytes (about 250,000 short
 # texts; the in-memory path measured 956 MB for 100,000 texts of 20-120 words, docs/performance.md)
 STREAM_ABOVE_BYTES = 100 * 1024 * 1024
@@ -63,7 +64,7 @@ class RunOptions:
     title_column: str | None = None
     id_column: str | None = None
     date_column: str | None = None
-    period: str = "auto"  # trend periods: day, week, month, or auto (from the span of the dates)
+    period: str = "auto"  # trend periods: day, week, month, quarter, year, or auto (from the span of the dates)
     delimiter: str | None = None  # table separator; None: sniffed
     encoding: str | None = None  # forced text encoding; None: detected
     records_key: str | None = None  # key of a JSON object holding the list of records; None: found
@@ -71,6 +72,7 @@ class RunOptions:
     boilerplate: bool = True  # remove repeated lines (signatures, footers) before vectorizing
     stop_words_file: Path | None = None
     stem: bool = False
+    language: str | None = None  # one language (ISO 639-1) for every document; None: detected per document
     bigrams_in_space: bool = False
     lsa_components: int = 100
     min_df: int | None = None
@@ -152,6 +154,9 @@ CHECKS: tuple[Check, ...] = (
           lambda o: f"--delimiter {o.delimiter!r} is not one character; pass e.g. --delimiter ';' or --delimiter tab"),
     Check(lambda o: o.encoding is not None and not _known_encoding(o.encoding),
           lambda o: f"--encoding {o.encoding!r} is not a known encoding; pass e.g. utf-8, cp1252, latin-1, shift_jis"),
+    Check(lambda o: o.language is not None and o.language not in SUPPORTED,
+          lambda o: f"--language {o.language!r} is not supported; pass an ISO 639-1 code, one of: "
+                    f"{', '.join(SUPPORTED)}"),
     _choice_check("method", METHODS, "--method"),
     _choice_check("mode", MODES, "--mode"),
     _choice_check("engine", ENGINES, "--engine"),

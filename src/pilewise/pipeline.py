@@ -7,6 +7,7 @@ them into a temporary folder that replaces the run's folder only when complete.
 from __future__ import annotations
 
 import hashlib
+import itertools
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
@@ -15,6 +16,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from pilewise.assign.saved import save_model
 from pilewise.clustering.hierarchy import Tree, ward_tree
 from pilewise.clustering.kmeans import Clustering
 from pilewise.clustering.levels import build_levels, centroid_tree
@@ -58,6 +60,7 @@ from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
 from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run, write_comparison
 from pilewise.progress import Reporter
+from pilewise.vectors.languages import detect_languages, language_mix, present_languages, shares
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
@@ -106,7 +109,7 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
                 if not named_early:
                     held.enter_context(_claim_name(run_folder, "runs", "--name", wait=True))
                 with reporter.stage("writing site"), writing_to(out):
-                    _write_atomically(run_folder, lambda folder: _write_run(folder, result, reporter))
+                    _write_atomically(run_folder, lambda folder: _write_run_and_model(folder, result, reporter))
                     root_index = refresh_site(out, warn=reporter.warn)
             finally:
                 if isinstance(result.ingested.documents, DocumentShelf):
@@ -129,6 +132,12 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
                     options, reporter, lambda on_spark: write(compute_run(options, reporter, work, on_spark)))
                 return outcome
             return write(compute_run(options, reporter, work))
+
+
+def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
+    """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    _write_run(folder, result, reporter)
+    save_model(folder, result)
 
 
 @dataclass(frozen=True)
@@ -231,6 +240,7 @@ class Prepared:
     redacted: dict[str, int]
     fingerprint: str
     streamed: bool = False
+    text_languages: tuple[str, ...] = ()  # language of every distinct text; () where not detected
 
 
 def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int, work: Path | None = None) -> Prepared:
@@ -296,7 +306,11 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                          f"groups; {near.representative.size:,} texts to cluster")
     check_k(k_needed, int(collection.copies.size),
             "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
-    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    text_languages = detect_languages(texts, options.language)
+    present = present_languages(text_languages, collection.copies) or ("en",)
+    reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
+                        languages=present)
     with reporter.stage("vectorizing"):
         settings = VectorSettings(
             min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
@@ -308,7 +322,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             copies=collection.copies, workers=options.workers or default_workers(),
         )
     return Prepared(ingested, collection, analyzer, vectors, collection.copies.astype(float), boilerplate,
-                    redacted, fingerprint(ingested.documents))
+                    redacted, fingerprint(ingested.documents), text_languages=text_languages)
 
 
 def _prepare_streamed(
@@ -324,17 +338,26 @@ def _prepare_streamed(
                  f"{CHUNK_DOCUMENTS:,} documents")
     if not options.redact:
         reporter.warn(REDACTION_OFF)
-    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file), stem=options.stem)
+    # the stop words and stemmers must be known before the first chunk: languages are detected on the first
+    # documents (or named by --language), which are then streamed with the rest
+    documents = _capped(source, options.max_documents)
+    first = list(itertools.islice(documents, STREAM_LANGUAGE_SAMPLE))
+    sample = detect_languages([doc.text for doc in first], options.language)
+    present = present_languages(sample, np.ones(len(sample))) or ("en",)
+    language_note = _languages_line(sample, np.ones(len(sample)), forced=options.language is not None).replace(
+        "languages (", f"languages of the first {len(sample):,} documents (", 1)
+    analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
+                        languages=present)
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, lsa_components=options.lsa_components,
                               seed=options.seed)
     streamed = prepare_streamed(
-        _capped(source, options.max_documents), work, analyzer, settings, redact=options.redact,
+        itertools.chain(first, documents), work, analyzer, settings, redact=options.redact,
         workers=options.workers or default_workers(), reporter=reporter, progress=lambda: source.bytes_done,
         total_bytes=source.total_bytes, boilerplate=options.boilerplate,
     )
     streaming_note = ("streaming mode: read and vectorized in chunks; terms counted in a hashed vocabulary; "
                       "near-duplicate grouping not done (exact duplicates are)")
-    notes = (*source.notes, streaming_note, *(() if options.boilerplate else (BOILERPLATE_OFF,)))
+    notes = (*source.notes, streaming_note, language_note, *(() if options.boilerplate else (BOILERPLATE_OFF,)))
     ingested = Ingested(streamed.shelf, tuple(source.entries), notes, source.files_found)
     for note in ingested.notes:
         reporter.say(note)
@@ -354,6 +377,14 @@ def _boilerplate_line(boilerplate: Boilerplate, removed: int, changed: int, kept
     line = (f"{len(boilerplate.lines)} boilerplate line(s) found; {removed:,} removed from {changed:,} distinct "
             "texts before vectorizing")
     return line + (f"; {kept:,} kept where they are most of their text" if kept else "")
+
+
+STREAM_LANGUAGE_SAMPLE = 2_000  # documents whose languages choose a streamed run's stop words and stemmers
+
+
+def _languages_line(codes: Sequence[str], weights: np.ndarray, *, forced: bool) -> str:
+    found = ", ".join(f"{code} {share:.0%}" for code, share in shares(codes, weights)[:6])
+    return f"languages ({'--language' if forced else 'detected per text'}): {found}"
 
 
 def _redaction_line(redacted: dict[str, int]) -> str:
@@ -455,7 +486,8 @@ def _described(
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period)
+        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
+                              mixed=[c.mixed for c in clusters])
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):
@@ -477,15 +509,18 @@ def _described(
         collection=prepared.collection, vectors=prepared.vectors, clustering=clustering, quality=quality,
         stability=stability, clusters=clusters, analyzer=prepared.analyzer, levels=levels, sweep=sweep,
         fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends, population=population,
+        languages=language_mix(prepared.text_languages, weights, clustering.labels, k,
+                               forced=options.language is not None) if prepared.text_languages else None,
     )
 
 
-def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str) -> Trends | None:
+def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,
+                 mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and trend readings of every cluster, when any document carries a date."""
     dates = [doc.date for doc in documents]
     if not any(dates):
         return None
-    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period)
+    return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period, mixed=mixed)
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

@@ -63,8 +63,10 @@ def sweep_k(
         return sweep_kmeans(space, weights, ks, seed=seed, n_init=starts,
                             resamples=min(resamples, SWEEP_RESAMPLES), on_k=say)
     cache: dict[int, Tree] = {}
+    null_cache: dict[int, Tree] = {}  # trees of the shuffled rows, never mixed with the data's
     k_max = min(k_max, tree.n_leaves)
     clusterings = {k: _cluster_at(space, weights, k, tree, seed=seed, starts=starts)
                    for k in range(k_min, k_max + 1)}
     return sweep_clusterings(space, weights, clusterings, seed=seed, resamples=min(resamples, SWEEP_RESAMPLES),
-                             cluster_fn_for=lambda k: _stability_fn(method, k, cache), on_k=say), clusterings
+                             cluster_fn_for=lambda k: _stability_fn(method, k, cache), on_k=say,
+                             null_cluster_fn_for=lambda k: _stability_fn(method, k, null_cache)), clusterings

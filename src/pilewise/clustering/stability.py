@@ -102,6 +102,23 @@ def stability_reading(value: float) -> str:
     return NOT_DEFINED  # unreachable: the last lower bound is -inf
 
 
+def mixed_stability_reading(value: float) -> str:
+    """Reading of a mixed cluster's stability (one with no common theme, `describe.summaries.mixed_reason`).
+
+    Stability measures whether k-means finds the same group again, not whether the group is one theme: a
+    grab-bag of leftovers can come back in every resample (on the chat categories, mixed clusters read 0.64
+    to 0.91). So a mixed cluster is never read "stable": from 0.6 up its reading says that the same mix
+    reappears; below 0.6 the usual reading already warns.
+    """
+    reading = stability_reading(value)
+    if math.isnan(value) or value < PATTERN_FLOOR:
+        return reading
+    return "mixed, yet it reappears in resamples: a repeatable grab-bag, not one theme"
+
+
+PATTERN_FLOOR = 0.6  # the lower bound of "a pattern" in STABILITY_READINGS
+
+
 def bootstrap_stability(
     space: np.ndarray | sp.csr_matrix,
     weights: np.ndarray,
@@ -112,6 +129,7 @@ def bootstrap_stability(
     seed: int,
     cluster_fn: ClusterFn,
     track: Callable[[range], Iterable[int]] | None = None,
+    subsample: float | None = None,
 ) -> StabilityResult:
     """Clusterwise bootstrap stability (Hennig 2007): mean Jaccard similarity to the best-matching cluster.
 
@@ -141,6 +159,9 @@ def bootstrap_stability(
         Called as ``cluster_fn(rows, row_weights, resample_seed)``; returns one integer label per row.
     track : callable, optional
         Wraps the loop over the resamples (a progress bar).
+    subsample : float, optional
+        Draw this share of the rows without replacement instead of a bootstrap draw (Hennig's "subsetting"
+        scheme); measured against the bootstrap in docs/method.md, not used by runs.
 
     Returns
     -------
@@ -158,7 +179,8 @@ def bootstrap_stability(
     values = np.full((resamples, k), np.nan)
     for i in track(range(resamples)) if track else range(resamples):
         rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(i,)))
-        rows = np.unique(rng.integers(0, n, size=n))
+        rows = (np.unique(rng.integers(0, n, size=n)) if subsample is None
+                else np.sort(rng.choice(n, max(1, round(subsample * n)), replace=False)))
         resample_seed = int(rng.integers(0, 2**31 - 1))
         new_labels = np.asarray(cluster_fn(space[rows], weights[rows], resample_seed))
         if new_labels.shape != (rows.size,):

@@ -9,7 +9,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from pilewise.clustering.kmeans import Clustering, farthest_row, kmeans_clusters
-from pilewise.clustering.quality import assess
+from pilewise.clustering.quality import assess, null_space
 from pilewise.clustering.stability import ClusterFn, bootstrap_stability, kmeans_cluster_fn, stability_rows
 from pilewise.errors import PilewiseError
 
@@ -22,8 +22,11 @@ MIN_CLUSTER_TEXTS = 15  # at most (distinct texts / 15) clusters: beyond that, s
 PLATEAU = 0.75  # the smallest k that reaches this share of the best excess over the null reference
 
 RECOMMENDATION_RULE = (
-    f"keep the k whose mean cluster stability is at least {PATTERN} (Hennig's 'pattern') and whose clusters hold "
-    f"{MIN_CLUSTER_TEXTS} distinct texts on average; score each by its silhouette minus the silhouette of the same "
+    f"keep the k whose clusters hold {MIN_CLUSTER_TEXTS} distinct texts on average and, when some k of the range "
+    f"reaches mean cluster stability {STABLE} (Hennig's 'stable'), whose mean stability is at least {PATTERN} "
+    "(Hennig's 'pattern'); when none does, whose mean stability is above that of the same clustering of the "
+    "vectors with each dimension shuffled (a structureless null of the same data); score each by its silhouette "
+    "minus the silhouette of the same "
     f"vectors with each dimension shuffled; take the best k when the score falls below {PLATEAU:.0%} of its best "
     f"by the end of the range (a peak), else the smallest k reaching {PLATEAU:.0%} of the best (the score still "
     "rises, as it does on most text); the runner-up is the next best score"
@@ -42,6 +45,7 @@ class SweepPoint:
     stability_min: float
     inertia: float
     null_silhouette: float | None = None
+    null_stability: float | None = None  # measured only when no k of the range reaches STABLE
 
 
 @dataclass(frozen=True)
@@ -120,11 +124,14 @@ def sweep_clusterings(
     resamples: int,
     cluster_fn_for: Callable[[int], ClusterFn],
     on_k: Callable[[int], None] | None = None,
+    null_cluster_fn_for: Callable[[int], ClusterFn] | None = None,
 ) -> Sweep:
     """Silhouette, Calinski-Harabasz, Davies-Bouldin and mean stability of each clustering; recommend one k.
 
     Stability is Hennig's bootstrap on at most STABILITY_ROWS rows (a seeded sample), re-clustering
-    each resample with ``cluster_fn_for(k)``.
+    each resample with ``cluster_fn_for(k)``. When no k reaches STABLE, the same is measured on the null
+    reference of those rows (`null_stability`), clustered with ``null_cluster_fn_for(k)`` (default:
+    `cluster_fn_for`; pass a separate one when the function caches per resample seed, as Ward's does).
     """
     sample = stability_rows(weights.size, seed)
     points: list[SweepPoint] = []
@@ -140,8 +147,39 @@ def sweep_clusterings(
         points.append(SweepPoint(k, quality.silhouette, quality.calinski_harabasz, quality.davies_bouldin,
                                  float(np.mean(values)), float(np.min(values)), clustering.inertia,
                                  quality.null_silhouette))
+    if points and max(p.stability_mean for p in points) < STABLE:
+        points = with_null_stability(space[sample], weights[sample], points, seed=seed, resamples=resamples,
+                                     cluster_fn_for=null_cluster_fn_for or cluster_fn_for)
     k_best, runner_up, reason = recommend_k(points, int(weights.size))
     return Sweep(tuple(points), k_best, reason, resamples, int(sample.size), runner_up_k=runner_up)
+
+
+def null_stability(
+    rows: np.ndarray | sp.csr_matrix, weights: np.ndarray, k: int, *, seed: int, resamples: int, cluster_fn: ClusterFn,
+) -> float:
+    """Mean cluster stability at k of `rows` with each dimension shuffled (`quality.null_space`).
+
+    The null is clustered once with `cluster_fn` (the run's method), then bootstrapped like the data: what
+    stability chance gives at this k with these columns. k-means cuts even structureless data the same way
+    in most resamples at small k (on FOLDOC's null 0.98 at k = 2, 0.31 at k = 20), so a fixed bar favours
+    the smallest k; this figure is the bar each k has to pass when no k reads "stable".
+    """
+    null = null_space(rows, seed=seed)
+    _, labels = np.unique(np.asarray(cluster_fn(null, weights, seed)), return_inverse=True)
+    labels = labels.ravel().astype(np.int64)
+    result = bootstrap_stability(null, weights, labels, k=int(labels.max()) + 1, resamples=resamples, seed=seed,
+                                 cluster_fn=cluster_fn)
+    return result.mean
+
+
+def with_null_stability(
+    rows: np.ndarray | sp.csr_matrix, weights: np.ndarray, points: Sequence[SweepPoint], *, seed: int,
+    resamples: int, cluster_fn_for: Callable[[int], ClusterFn],
+) -> list[SweepPoint]:
+    """The points with `null_stability` measured at each k (on the rows the data's stability used)."""
+    return [replace(p, null_stability=null_stability(rows, weights, p.k, seed=seed, resamples=resamples,
+                                                     cluster_fn=cluster_fn_for(p.k)))
+            for p in points]
 
 
 def excess(point: SweepPoint) -> float:
@@ -157,13 +195,16 @@ def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | No
     On text, the silhouette and its excess over the null reference keep growing slowly with k (docs/method.md,
     "Choosing k"), so the highest score sits at the top of the range; the smallest k reaching PLATEAU of it
     is where most of the gain has been made. When the score peaks instead (it falls below PLATEAU of its best
-    by the largest k kept), the peak is taken. Stability keeps k whose clusters reappear in resamples, the
-    size bound keeps k whose clusters are more than a handful of texts.
+    by the largest k kept), the peak is taken. The size bound keeps k whose clusters are more than a handful
+    of texts. Stability keeps k whose clusters reappear in resamples: against Hennig's fixed PATTERN bar when
+    some k of the range reads STABLE (stability then tells partitions apart), else against the stability of
+    a structureless null at the same k (`null_stability`): with many moderately separated themes no k reads
+    stable, and a fixed bar would leave only the smallest k, which k-means cuts repeatably in any data.
 
     Parameters
     ----------
     points : sequence of SweepPoint
-        One per k, in increasing k.
+        One per k, in increasing k; `null_stability` set when no k reaches STABLE.
     texts : int
         Distinct texts clustered.
 
@@ -172,11 +213,7 @@ def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | No
     k, runner_up, reason : int, int or None, str
     """
     sized = [p for p in points if texts / p.k >= MIN_CLUSTER_TEXTS] or list(points[:1])
-    kept = [p for p in sized if p.stability_mean >= PATTERN]
-    level = f"mean stability at least {PATTERN}, at least {MIN_CLUSTER_TEXTS} texts a cluster"
-    if not kept:
-        kept = sized
-        level = f"at least {MIN_CLUSTER_TEXTS} texts a cluster (no k reached mean stability {PATTERN})"
+    kept, level = stability_filter(points, sized)
     best = max(kept, key=lambda p: (excess(p), -p.k))
     top = max(kept, key=lambda p: p.k)
     peaked = top.k != best.k and excess(top) < PLATEAU * excess(best)
@@ -189,7 +226,22 @@ def recommend_k(points: Sequence[SweepPoint], texts: int) -> tuple[int, int | No
     runner_up = others[0].k if others else None
     null = "undefined" if chosen.null_silhouette is None else f"{chosen.null_silhouette:.3f}"
     silhouette = "undefined" if chosen.silhouette is None else f"{chosen.silhouette:.3f}"
+    null_stab = "" if chosen.null_stability is None else f" (shuffled vectors {chosen.null_stability:.2f})"
     reason = (f"k={chosen.k}: silhouette {silhouette} against {null} for shuffled vectors, {how}, among the k with "
-              f"{level}; mean stability {chosen.stability_mean:.2f}; runner-up "
+              f"{level}; mean stability {chosen.stability_mean:.2f}{null_stab}; runner-up "
               f"k={runner_up if runner_up is not None else 'none'}")
     return chosen.k, runner_up, reason
+
+
+def stability_filter(points: Sequence[SweepPoint], sized: list[SweepPoint]) -> tuple[list[SweepPoint], str]:
+    """The sized points that pass the stability bar of RECOMMENDATION_RULE, and the bar in words."""
+    size = f"at least {MIN_CLUSTER_TEXTS} texts a cluster"
+    if any(p.stability_mean >= STABLE for p in points):
+        kept = [p for p in sized if p.stability_mean >= PATTERN]
+        if kept:
+            return kept, f"mean stability at least {PATTERN} (some k reaches {STABLE}), {size}"
+        return sized, f"{size} (no such k reached mean stability {PATTERN})"
+    kept = [p for p in sized if p.null_stability is not None and p.stability_mean > p.null_stability]
+    if kept:
+        return kept, f"mean stability above the shuffled vectors' (no k reaches {STABLE}), {size}"
+    return sized, f"{size} (no k reached {STABLE}, and none beat the shuffled vectors' stability)"

@@ -22,6 +22,7 @@ from pilewise.errors import PilewiseError
 SHARE_MIN = 0.2  # a cluster of the other run is a partner when it holds this share of the members
 KEEP_MIN = 0.8  # "kept": one partner holds this share of the members and draws this share of its own from them
 MOVED_LISTED = 5_000  # moved documents listed in compare.json; the total is always recorded
+MOVED_PER_PAIR = 10  # documents shown for each pair of clusters they moved between; every pair is counted
 
 READINGS_A = ("kept", "split", "merged", "split and merged", "dissolved", "reshaped", "no shared documents")
 """Readings of a cluster of run A: what became of it in run B."""
@@ -54,6 +55,8 @@ class MovedDoc:
     headline_a: str
     cluster_b: int
     headline_b: str
+    title: str = ""  # the title in run B (else A); "" when the runs record none
+    row_b: int = -1  # its row in run B's assignments.csv (the number of its page in B)
 
 
 @dataclass(frozen=True)
@@ -101,6 +104,8 @@ def compare_labelings(
     name_b: str = "B",
     headlines_a: Mapping[int, str] | None = None,
     headlines_b: Mapping[int, str] | None = None,
+    titles_a: Sequence[str] = (),
+    titles_b: Sequence[str] = (),
 ) -> Comparison:
     """Compare two clusterings over the documents they share.
 
@@ -114,6 +119,8 @@ def compare_labelings(
         Run names used in the plain readings.
     headlines_a, headlines_b : mapping cluster -> headline, optional
         Headlines for the moved documents and the per-cluster listing; "" when absent.
+    titles_a, titles_b : sequences of length n_a and n_b, optional
+        Document titles, shown with the moved documents (B's first); "" when absent.
 
     Returns
     -------
@@ -171,7 +178,8 @@ def compare_labelings(
     # Grouped by cluster of A, then of B, in A's reading order within a group.
     moved_at = moved_at[np.lexsort((moved_at, pos_b[moved_at], pos_a[moved_at]))]
     moved = tuple(
-        MovedDoc(shared_ids[i], ids_a_t[pos_a[i]], heads_a[pos_a[i]], ids_b_t[pos_b[i]], heads_b[pos_b[i]])
+        MovedDoc(shared_ids[i], ids_a_t[pos_a[i]], heads_a[pos_a[i]], ids_b_t[pos_b[i]], heads_b[pos_b[i]],
+                 title=_title(titles_b, int(rows_b[i])) or _title(titles_a, int(rows_a[i])), row_b=int(rows_b[i]))
         for i in moved_at
     )
     n_shared = len(shared_ids)
@@ -341,7 +349,8 @@ def compare_finished_runs(run_a: FinishedRun, run_b: FinishedRun, rows_a: Assign
     headlines_a = {c.cluster_id: c.shown for c in run_a.clusters if c.cluster_id >= 0}
     headlines_b = {c.cluster_id: c.shown for c in run_b.clusters if c.cluster_id >= 0}
     comparison = compare_labelings(rows_a.ids, rows_a.labels, rows_b.ids, rows_b.labels, name_a=name_a,
-                                   name_b=name_b, headlines_a=headlines_a, headlines_b=headlines_b)
+                                   name_b=name_b, headlines_a=headlines_a, headlines_b=headlines_b,
+                                   titles_a=rows_a.titles, titles_b=rows_b.titles)
     notes: list[str] = []
     if run_a.fingerprint and run_a.fingerprint == run_b.fingerprint:
         notes.append("both runs read the same input (equal fingerprints)")
@@ -394,10 +403,35 @@ def comparison_document(c: Comparison) -> dict[str, Any]:
         "moved": {
             "total": len(c.moved),
             "listed": min(len(c.moved), MOVED_LISTED),
-            "documents": [{"doc_id": m.doc_id, "cluster_a": m.cluster_a, "headline_a": m.headline_a,
-                           "cluster_b": m.cluster_b, "headline_b": m.headline_b} for m in c.moved[:MOVED_LISTED]],
+            "per_pair": MOVED_PER_PAIR,
+            "pairs": moved_pairs(c.moved),
+            "documents": [_moved_record(m) for m in c.moved[:MOVED_LISTED]],
         },
     }
+
+
+def moved_pairs(moved: Sequence[MovedDoc]) -> list[dict[str, Any]]:
+    """The moved documents grouped by the pair of clusters they moved between, the largest group first.
+
+    Each group: both clusters and headlines, ``count`` (every document of the pair) and ``documents``,
+    the first MOVED_PER_PAIR of them in run A's reading order. Ties in size go by cluster of A, then of B.
+    """
+    groups: dict[tuple[int, int], list[MovedDoc]] = {}
+    for m in moved:
+        groups.setdefault((m.cluster_a, m.cluster_b), []).append(m)
+    ordered = sorted(groups.items(), key=lambda item: (-len(item[1]), item[0]))
+    return [{"cluster_a": a, "headline_a": docs[0].headline_a, "cluster_b": b, "headline_b": docs[0].headline_b,
+             "count": len(docs), "documents": [_moved_record(m) for m in docs[:MOVED_PER_PAIR]]}
+            for (a, b), docs in ordered]
+
+
+def _moved_record(m: MovedDoc) -> dict[str, Any]:
+    return {"doc_id": m.doc_id, "title": m.title, "row_b": m.row_b, "cluster_a": m.cluster_a,
+            "headline_a": m.headline_a, "cluster_b": m.cluster_b, "headline_b": m.headline_b}
+
+
+def _title(titles: Sequence[str], row: int) -> str:
+    return titles[row] if row < len(titles) else ""
 
 
 def _unique_index(ids: Sequence[str], run: str) -> dict[str, int]:

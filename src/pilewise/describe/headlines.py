@@ -3,9 +3,12 @@
 Among the members nearest each centroid, the title holding the most weight of the cluster's
 distinguishing terms is the headline. Titles that say nothing about content (ids and order numbers,
 URLs, manual-page header lines, titles that follow one template with varying numbers) are passed over;
-reply and forward prefixes ("Re:", "Fwd:", "Out of Office:") are cut off before a title is judged. When
-no title carries a term, the headline is the sentence of those members' texts with the highest weight
-of the terms. No two clusters get the same headline.
+reply and forward prefixes ("Re:", "Fwd:", "Out of Office:") are cut off before a title is judged, and a
+title that is a quotation's attribution ("... writes:") or the first line of a sentence that runs on
+(wrapped text) is passed over. When no title carries a term, the headline is the sentence of those
+members' texts with the highest weight of the terms; fragments (ending in a comma, semicolon or colon)
+and copyright and credit lines are passed over, and sentences repeated in several members (a template's
+formula, a footer) or holding a web address come last. No two clusters get the same headline.
 """
 
 from __future__ import annotations
@@ -25,6 +28,8 @@ SHOUTING_FACTOR = 0.5  # weight kept by a sentence written all in capitals
 PLAIN_WORDS_MIN = 0.7  # and at least this share of its tokens are plain words (not options, numbers, paths)
 HEADLINE_CHARS = 150  # a longer sentence is cut on a word boundary
 TEMPLATE_MIN_TITLES = 3  # a title shape shared by this many candidate documents, with varying parts
+RUN_ON_WORDS = 6  # a first line this long, followed by more text without a blank line, is wrapped running text
+WRAPPED_SHARE = 0.5  # when this share of first-line titles run on, every first line followed by text is wrapped
 
 _PREFIX = re.compile(
     r"^\s*(?:(?:re|aw|sv|fw|fwd|wg|tr|antw|out of office(?: reply)?|automatic reply|auto(?:matic)?[- ]?reply)"
@@ -39,7 +44,7 @@ _SENTENCE_END = re.compile(r"(?<=[.!?])\s+(?=[\"'(\[]?[A-Z0-9])")
 _PARAGRAPH = re.compile(r"\n\s*\n")
 _HEADING = re.compile(r"^(?=(?:\S+\s*){1,4}$)[^\Wa-z\d_][^a-z]*$")  # up to 4 words, upper case: "SEE ALSO"
 # bullets, dashes and stray punctuation before a sentence (an option's "-v" or "--help" is kept, and refused)
-_LEAD = re.compile(r"^(?:[^\w\"'(\[-]|-+(?=\s))+\s*")
+_LEAD = re.compile(r"^(?:[^\w\"'(\[<-]|-+(?=\s))+\s*")
 _QUOTE_MARK = re.compile(r"^\s*(?:>\s?)+")
 _ATTRIBUTION = re.compile(r"\b(?:writes|wrote|said|schrieb|a écrit)\s*:\s*$", re.IGNORECASE)
 _OPTION = re.compile(r"^-{1,2}[\w?]")
@@ -47,6 +52,12 @@ _RULER = re.compile(r"\s(?:-{2,}|={3,}|_{3,}|\*{3,}|~{3,})(?:\s.*)?$")  # a sign
 _FIELD = re.compile(r"^[A-Z][\w-]*:(?:\s|$)")  # "Format: ...", "Upstream-Name: ..."
 _BROKEN_WORD = re.compile(r"([^\W\d_])[-‐]\n\s*(?=[a-z])")  # "clus-" at a line's end, "ters" on the next
 _PLAIN_WORD = re.compile(r"^[^\W\d_]+(?:['’-][^\W\d_]+)*$")
+# a line that stops before its sentence does: a comma, semicolon, colon or hyphen, or a word that needs a next one
+_RUNS_ON = re.compile(r"(?:[,;:-]|\b(?:a|an|and|at|by|for|from|in|into|of|on|or|the|to|with|I))$")
+_FRAGMENT_END = re.compile(r"[,;:]$")  # a list's introduction or an item of it, not a statement
+_CREDIT = re.compile(r"^(?:copyright\b|©|\(c\)\s)", re.IGNORECASE)
+_YEAR = re.compile(r"\b(?:19|20)\d\d\b")
+_LONE_DOT = re.compile(r"^\s*\.\s*$")  # a paragraph break in Debian control-style files (copyright files)
 
 
 @dataclass(frozen=True)
@@ -83,6 +94,10 @@ def title_problem(title: str) -> str | None:
         return "no title"
     if _MAN_HEADER.match(title):
         return "a manual-page header line"
+    if _ATTRIBUTION.search(title):
+        return "a quotation's attribution line"
+    if _RUNS_ON.search(title):
+        return "a line cut before its sentence ends"
     words = _URL.sub(" ", title).split()
     content = [w.strip(".,:;!?\"'()[]<>") for w in words]
     if len([w for w in content if _CONTENT_WORD.match(w)]) < 2:
@@ -136,8 +151,8 @@ def _units(paragraph: str) -> list[str]:
     for line in paragraph.splitlines():
         line = _QUOTE_MARK.sub("", line)  # "> quoted text" of a reply reads as text
         stripped = line.strip()
-        if _ATTRIBUTION.search(stripped):
-            units.append([])  # "In article <id>, someone writes:" says who, not what
+        if _ATTRIBUTION.search(stripped) or _LONE_DOT.match(stripped):
+            units.append([])  # "In article <id>, someone writes:" says who, not what; " ." ends a paragraph
         elif _HEADING.match(stripped) or _FIELD.match(stripped):
             units.extend([[stripped], []])
         else:
@@ -161,46 +176,114 @@ def shorten(text: str, limit: int = HEADLINE_CHARS) -> str:
     return (cut if len(cut) > limit // 2 else text[:limit]) + "…"
 
 
+def same_line(line: str, title: str) -> bool:
+    """Whether a text's line is the title, spaces collapsed and redaction placeholders shown as labels (titles
+    are kept in display form, texts with placeholders)."""
+    return " ".join(display_text(line).split()) == " ".join(display_text(title).split())
+
+
+def runs_on(text: str, title: str, *, wrapped: bool = False) -> bool:
+    """Whether `title` is the text's first line and its sentence goes on in the next line (wrapped text).
+
+    The next line must follow without a blank line, and either begin in lower case or with a digit ("<Sale
+    Tilney Plc> said it has purchased" / "80 pct of ..."), or the title line be as long as running text
+    (RUN_ON_WORDS words or more: "Deputy oil ministers from six Gulf" / "Arab states will meet ..."). A short
+    line followed by a capitalized one ("Meeting notes" / "We met ...") is taken as a title, unless the
+    collection's first lines are `wrapped` text (`first_lines_wrapped`): then any next line will do.
+    """
+    head, _, rest = text.lstrip().partition("\n")
+    if not same_line(head, title) or head.rstrip().endswith((".", "!", "?", ":")):
+        return False
+    following = rest.split("\n", 1)[0].strip()
+    if not following:
+        return False
+    return wrapped or following[0].islower() or following[0].isdigit() or len(head.split()) >= RUN_ON_WORDS
+
+
+def first_lines_wrapped(
+    candidates: Sequence[Sequence[int]], title_of: Callable[[int], str], text_of: Callable[[int], str],
+) -> bool:
+    """Whether at least WRAPPED_SHARE of all candidates' titles are first lines that run on (`runs_on`).
+
+    Then the titles are no titles at all but the first lines of wrapped paragraphs (news wires, mailing-list
+    bodies), and even "Financial Corp of Santa" / "Barbara ..." is one.
+    """
+    docs = [d for group in candidates for d in group]
+    running = sum(runs_on(text_of(d)[:SENTENCE_SCAN_CHARS], title_of(d)) for d in docs)
+    return bool(docs) and running >= WRAPPED_SHARE * len(docs)
+
+
 def _title_options(
-    candidates: Sequence[int], title_of: Callable[[int], str], weights: dict[str, float],
-    keys_of: Callable[[str], list[str]], templates: frozenset[str],
+    candidates: Sequence[int], title_of: Callable[[int], str], text_of: Callable[[int], str],
+    weights: dict[str, float], keys_of: Callable[[str], list[str]], templates: frozenset[str], wrapped: bool,
 ) -> list[_Option]:
     options = []
     for doc_index in candidates:
         raw = title_of(doc_index)
         title = strip_reply_prefix(raw)
-        if title_problem(title) is None and title_shape(raw) not in templates:
+        if (title_problem(title) is None and title_shape(raw) not in templates
+                and not runs_on(text_of(doc_index)[:SENTENCE_SCAN_CHARS], raw, wrapped=wrapped)):
             options.append(_Option(title, "title", doc_index, carried_weight(title, weights, keys_of)))
     return options
 
 
-def without_title_line(text: str, title: str) -> str:
-    """The text without its first non-empty line when that line is the title (a title made from it)."""
+def without_title_line(text: str, title: str, *, wrapped: bool = False, templated: bool = False) -> str:
+    """The text without its first non-empty line when that line is the title (a title made from it), unless
+    the line's sentence runs on into the next line: then the whole sentence stays a candidate. A `templated`
+    title ("Entry 19 of the kitchen log") is a title whatever follows it."""
+    if not templated and runs_on(text, title, wrapped=wrapped):
+        return text
     head, _, rest = text.lstrip().partition("\n")
-    shown = title.rstrip("…")
-    same = " ".join(head.split()) == " ".join(title.split()) or (title.endswith("…") and head.startswith(shown))
+    shown = display_text(title).rstrip("…")
+    same = same_line(head, title) or (title.endswith("…") and display_text(head).startswith(shown))
     return rest if same else text
 
 
 def _sentence_options(
     candidates: Sequence[int], title_of: Callable[[int], str], text_of: Callable[[int], str],
-    weights: dict[str, float], keys_of: Callable[[str], list[str]],
+    weights: dict[str, float], keys_of: Callable[[str], list[str]], templates: frozenset[str], *,
+    every: bool = False, wrapped: bool = False,
 ) -> list[_Option]:
+    """The usable sentences of the candidates' texts that carry a term (`every`: all usable sentences)."""
     options = []
     low, high = SENTENCE_WORDS
     for doc_index in candidates:
-        text = without_title_line(text_of(doc_index)[:SENTENCE_SCAN_CHARS], title_of(doc_index))
+        title = title_of(doc_index)
+        text = without_title_line(text_of(doc_index)[:SENTENCE_SCAN_CHARS], title, wrapped=wrapped,
+                                  templated=title_shape(title) in templates)
         for sentence in sentences(text):
             words = sentence.split()
             if (not low <= len(words) <= high or title_problem(sentence) is not None or _OPTION.match(sentence)
+                    or sentence_problem(sentence) is not None
                     or plain_word_share(display_text(sentence)) < PLAIN_WORDS_MIN):
                 continue
             score = carried_weight(sentence, weights, keys_of)
             if sentence.upper() == sentence:
                 score *= SHOUTING_FACTOR  # a sentence in capitals (a disclaimer) reads badly as a headline
-            if score > 0:
+            if score > 0 or every:
                 options.append(_Option(shorten(display_text(sentence)), "sentence", doc_index, score))
     return options
+
+
+def sentence_problem(sentence: str) -> str | None:
+    """Why a sentence (already judged as a title would be) cannot stand for a cluster, or None when it can."""
+    if _FRAGMENT_END.search(sentence.rstrip(" .")):
+        return "a fragment: it ends in a comma, semicolon or colon"
+    if _CREDIT.match(sentence) or len(_YEAR.findall(sentence)) >= 2:
+        return "a copyright or credit line"
+    return None
+
+
+def repeated_sentences(options: Sequence[_Option], least: int = TEMPLATE_MIN_TITLES) -> frozenset[str]:
+    """Sentences (without case) found in at least `least` different documents among the candidates.
+
+    A sentence many texts share is a formula of their template or a footer ("GNU coreutils online help:
+    ..."), true of every member and of other clusters alike, so it says little about any one cluster.
+    """
+    holders: dict[str, set[int]] = {}
+    for option in options:
+        holders.setdefault(option.text.casefold(), set()).add(option.doc_index)
+    return frozenset(text for text, docs in holders.items() if len(docs) >= least)
 
 
 def choose_headlines(
@@ -228,22 +311,33 @@ def choose_headlines(
     list of Headline
         In cluster order. Per cluster the order of preference is: titles that carry a term (most weight
         first, then nearest), sentences that carry a term (most weight, then nearest), the other usable
-        titles (nearest first), and last the top terms themselves. Clusters choose in order (largest
+        titles (nearest first), sentences found in several candidate documents (`repeated_sentences`) or
+        holding a web address, and last the top terms themselves. Clusters choose in order (largest
         first), each taking its best option that no earlier cluster took (compared without case).
     """
     templates = template_shapes([title_of(d) for group in candidates for d in group])
+    # every usable sentence of every cluster's candidates, unweighted, to find those many documents share
+    wrapped = first_lines_wrapped(candidates, title_of, text_of)
+    everywhere = [o for group in candidates
+                  for o in _sentence_options(group, title_of, text_of, {}, keys_of, templates, every=True,
+                                             wrapped=wrapped)]
+    repeated = repeated_sentences(everywhere)
     taken: set[str] = set()
     chosen = []
     for group, cluster_terms in zip(candidates, terms, strict=True):
         weights = term_weights(cluster_terms)
-        titles = _title_options(group, title_of, weights, keys_of, templates)
+        titles = _title_options(group, title_of, text_of, weights, keys_of, templates, wrapped)
         rank = {d: i for i, d in enumerate(group)}
         carrying = sorted((o for o in titles if o.score > 0), key=lambda o: (-o.score, rank[o.doc_index]))
-        said = sorted(_sentence_options(group, title_of, text_of, weights, keys_of), key=lambda o: -o.score)  # stable
+        said = sorted(_sentence_options(group, title_of, text_of, weights, keys_of, templates, wrapped=wrapped),
+                      key=lambda o: -o.score)  # stable
+        # a sentence many documents share, or one that points to a web address, says little of its own
+        own = [o for o in said if o.text.casefold() not in repeated and not _URL.search(o.text)]
+        shared = [o for o in said if o.text.casefold() in repeated or _URL.search(o.text)]
         plain = [o for o in titles if o.score <= 0]
         fallback = _Option("terms: " + ", ".join(t.term for t in cluster_terms[:4]) if cluster_terms else "(no terms)",
                            "terms", -1, 0.0)
-        pick = next((o for o in (*carrying, *said, *plain) if o.text.casefold() not in taken), fallback)
+        pick = next((o for o in (*carrying, *own, *plain, *shared) if o.text.casefold() not in taken), fallback)
         taken.add(pick.text.casefold())
         chosen.append(Headline(pick.text, pick.source, pick.doc_index))
     return chosen

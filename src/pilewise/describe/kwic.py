@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import unicodedata
 
 from pilewise.ingest.redact import display_text
 from pilewise.vectors.text import Analyzer
@@ -31,10 +32,12 @@ def find_term(spans: list[tuple[int, int, str]], key: str) -> tuple[int, int] | 
 
 
 def kwic_window(text: str, start: int, end: int, width: int = CONTEXT_CHARS) -> tuple[str, str, str]:
-    """Left context, match and right context; each context is exactly `width` characters.
+    """Left context, match and right context; each context fills exactly `width` columns.
 
     Whitespace runs become one space and redaction placeholders their labels; the left context is
-    right-aligned so that every match starts in the same column.
+    right-aligned so that every match starts in the same column. A wide character (Chinese, Japanese,
+    Korean: East Asian Width W or F, Unicode Standard Annex #11) takes two columns, a combining mark none,
+    every other character one, as terminals and monospace fonts draw them.
     """
     left = _flat(display_text(text[max(0, start - 4 * width) : start]))
     if len(left) < width and start > 4 * width:  # long whitespace runs: look further back
@@ -42,8 +45,29 @@ def kwic_window(text: str, start: int, end: int, width: int = CONTEXT_CHARS) -> 
     right = _flat(display_text(text[end : end + 4 * width]))
     if len(right) < width and len(text) > end + 4 * width:
         right = _flat(display_text(text[end:]))
-    left, right = left[-width:].rjust(width), right[:width].ljust(width)
-    return left, _flat(text[start:end]), right
+    return _fit_end(left, width), _flat(text[start:end]), _fit_start(right, width)
+
+
+def _columns(char: str) -> int:
+    """Columns a character takes in a monospace line (UAX #11 East Asian Width; marks take none)."""
+    if unicodedata.combining(char):
+        return 0
+    return 2 if unicodedata.east_asian_width(char) in ("W", "F") else 1
+
+
+def _fit_start(text: str, width: int) -> str:
+    """The start of `text` that fits `width` columns, padded with spaces on the right to exactly `width`."""
+    used = 0
+    for i, char in enumerate(text):
+        if used + _columns(char) > width:
+            return text[:i] + " " * (width - used)
+        used += _columns(char)
+    return text + " " * (width - used)
+
+
+def _fit_end(text: str, width: int) -> str:
+    """The end of `text` that fits `width` columns, padded with spaces on the left to exactly `width`."""
+    return _fit_start(text[::-1], width)[::-1]
 
 
 def kwic_line(text: str, analyzer: Analyzer, key: str, width: int = CONTEXT_CHARS) -> tuple[str, str, str] | None:

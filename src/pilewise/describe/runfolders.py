@@ -13,7 +13,7 @@ from __future__ import annotations
 import csv
 import json
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -75,6 +75,7 @@ class Assignments:
 
     ids: list[str]
     labels: list[int]
+    titles: list[str] = field(default_factory=list)  # empty when the file has no title column
 
 
 @dataclass(frozen=True)
@@ -144,6 +145,7 @@ def read_assignments(run: FinishedRun) -> Assignments:
     path = run.folder / "assignments.csv"
     ids: list[str] = []
     labels: list[int] = []
+    titles: list[str] = []
     try:
         with path.open(encoding="utf-8", newline="") as handle:
             reader = csv.reader(handle)
@@ -152,11 +154,14 @@ def read_assignments(run: FinishedRun) -> Assignments:
                 raise DamagedRun(path, "has no doc_id and cluster columns")
             id_col, cluster_col = header.index("doc_id"), header.index("cluster")
             width = max(id_col, cluster_col) + 1
+            title_col = header.index("title") if "title" in header else None
             for line_number, row in enumerate(reader, start=2):
                 if len(row) < width or not row[cluster_col].lstrip("-").isdigit():
                     raise DamagedRun(path, f"has no cluster number on line {line_number}")
                 ids.append(read_spreadsheet_cell(row[id_col]))
                 labels.append(int(row[cluster_col]))
+                if title_col is not None:
+                    titles.append(read_spreadsheet_cell(row[title_col]) if title_col < len(row) else "")
     except UnicodeDecodeError:
         raise DamagedRun(path, "is not UTF-8 (saved from a spreadsheet?)") from None
     except (OSError, csv.Error) as err:
@@ -166,7 +171,7 @@ def read_assignments(run: FinishedRun) -> Assignments:
     if run.documents is not None and run.documents != len(ids):
         raise DamagedRun(path, f"lists {len(ids):,} documents where manifest.json says {run.documents:,} "
                                "(cut short or edited)")
-    return Assignments(ids, labels)
+    return Assignments(ids, labels, titles)
 
 
 def read_names(path: Path) -> tuple[dict[int, tuple[str, str]], str | None]:

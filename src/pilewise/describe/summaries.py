@@ -17,7 +17,7 @@ import scipy.sparse as sp
 
 from pilewise.clustering.kmeans import Clustering, cluster_sums
 from pilewise.clustering.levels import Levels
-from pilewise.clustering.stability import StabilityResult
+from pilewise.clustering.stability import StabilityResult, mixed_stability_reading
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
 from pilewise.describe.kwic import kwic_line
 from pilewise.describe.names import suggested_name_from
@@ -146,7 +146,7 @@ def describe_clusters(
                 mean_distance=float(mean_distance[c]),
                 silhouette=None if silhouette is None or np.isnan(silhouette) else float(silhouette),
                 stability=_stability_value(stability, c),
-                stability_reading=stability.clusters[c].reading if stability else "",
+                stability_reading=_stability_reading(stability, c, mixed=bool(reason)),
                 headline_source=headlines[c].source,
                 headline_doc=headlines[c].doc_index,
                 mixed=bool(reason),
@@ -286,6 +286,14 @@ def term_holders(
         at = order[np.searchsorted(codes[order], found[hit])]
         holders.update(row_of[hit], at, distances[row_of[hit]])
     return holders
+
+
+def _stability_reading(stability: StabilityResult | None, c: int, *, mixed: bool) -> str:
+    """The reading of cluster c's stability; a mixed cluster is never read "stable" (see mixed_stability_reading)."""
+    if stability is None:
+        return ""
+    cluster = stability.clusters[c]
+    return mixed_stability_reading(cluster.mean_jaccard) if mixed else cluster.reading
 
 
 def _stability_value(stability: StabilityResult | None, c: int) -> float | None:

@@ -18,12 +18,19 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-PERIODS = ("day", "week", "month")
+PERIODS = ("day", "week", "month", "quarter", "year")
+MAX_PERIODS = 60  # auto picks the finest period giving at most this many bars (a chart stays readable)
 MIN_DATED = 10  # fewer dated members than this: "too few" (common practice: a trend needs some counts)
 MIN_PERIODS = 3  # a trend needs at least three periods holding documents
 SIGNIFICANCE = 0.05  # on the Benjamini-Hochberg adjusted p-value (the false discovery rate)
 NEW_SHARE = 0.75  # "new": at least this share of the cluster's dated documents in the latest quarter ...
 NEW_BACKGROUND = 0.5  # ... while the collection holds at most this share of its dated documents there
+# effect-size floor: "rising" or "falling" also needs the fitted share to change over the whole span by at least
+# this fraction of the cluster's mean share; with tens of thousands of documents the test finds drifts too small
+# to matter (docs/method.md, "Themes over time")
+MIN_RELATIVE_CHANGE = 0.25
+MIXED_CAUTION = ("this cluster is mixed (no common theme), so its counts add up several themes; read its trend as "
+                 "the sum of those themes, not as one theme growing or fading")
 
 
 @dataclass(frozen=True)
@@ -46,6 +53,8 @@ class ClusterTrend:
     z: float | None  # Cochran-Armitage statistic; positive when the share grows
     p_value: float | None
     q_value: float | None  # Benjamini-Hochberg adjusted p-value across the tested clusters
+    share_change: float | None = None  # fitted change of the share over the span, relative to the mean share
+    caution: str = ""  # a note on reading the trend (a mixed cluster's counts mix several themes)
 
     @property
     def evidence(self) -> str:
@@ -53,6 +62,10 @@ class ClusterTrend:
         if self.reading == "too few":
             return f"{self.dated} dated documents: too few to read a trend"
         tested = f"Cochran-Armitage z = {self.z:+.2f}, adjusted p = {self.q_value:.3g}" if self.z is not None else ""
+        if self.share_change is not None:
+            tested += f"; fitted share change over the span {self.share_change:+.0%} of its mean share"
+            if self.reading == "steady" and self.q_value is not None and self.q_value < SIGNIFICANCE:
+                tested += f", below the {MIN_RELATIVE_CHANGE:.0%} that a trend needs"
         if self.reading == "new":
             return f"{self.latest_share:.0%} of its dated documents fall in the latest quarter of the span; {tested}"
         return tested
@@ -96,30 +109,38 @@ def parse_dates(values: Sequence[str]) -> tuple[np.ndarray, int, int]:
 
 
 def choose_period(first: np.datetime64, last: np.datetime64) -> str:
-    """Days up to two months of span, weeks up to about 14 months, months above: roughly 8 to 60 periods."""
-    span = int((last - first).astype(int))
-    if span <= 62:
-        return "day"
-    if span <= 7 * 60:
-        return "week"
-    return "month"
+    """The finest of day, week, month, quarter and year that splits the span into at most MAX_PERIODS periods."""
+    for period in PERIODS[:-1]:
+        ends = period_starts(np.array([first, last], dtype="datetime64[D]"), period)
+        if _all_starts(ends[0], ends[1], period).size <= MAX_PERIODS:
+            return period
+    return PERIODS[-1]
 
 
 def period_starts(days: np.ndarray, period: str) -> np.ndarray:
-    """The first day of each day's period (ISO weeks start on Monday; months on their first day)."""
+    """The first day of each day's period (ISO weeks start on Monday; months, quarters (January, April, July,
+    October) and years on their first day)."""
     if period == "day":
         return days
     if period == "week":
         # 1970-01-01 was a Thursday: days since the epoch + 3 count from a Monday
         offset = (days.astype("datetime64[D]").astype(np.int64) + 3) % 7
         return days - offset.astype("timedelta64[D]")
-    return days.astype("datetime64[M]").astype("datetime64[D]")
+    if period == "year":
+        return days.astype("datetime64[Y]").astype("datetime64[D]")
+    months = days.astype("datetime64[M]")
+    if period == "quarter":  # months since 1970-01, a quarter's first month: a multiple of 3
+        months = months - (months.astype(np.int64) % 3).astype("timedelta64[M]")
+    return months.astype("datetime64[D]")
 
 
 def _all_starts(first: np.datetime64, last: np.datetime64, period: str) -> np.ndarray:
     """Every period start from the first to the last, empty periods included."""
-    if period == "month":
-        return np.arange(first.astype("datetime64[M]"), last.astype("datetime64[M]") + 1).astype("datetime64[D]")
+    if period in ("month", "quarter"):
+        step = 3 if period == "quarter" else 1
+        return np.arange(first.astype("datetime64[M]"), last.astype("datetime64[M]") + 1, step).astype("datetime64[D]")
+    if period == "year":
+        return np.arange(first.astype("datetime64[Y]"), last.astype("datetime64[Y]") + 1).astype("datetime64[D]")
     step = 7 if period == "week" else 1
     return np.arange(first, last + 1, step, dtype="datetime64[D]")
 
@@ -154,10 +175,28 @@ def adjust_p_values(p_values: Sequence[float]) -> np.ndarray:
     return np.asarray(stats.false_discovery_control(np.asarray(p_values, dtype=float), method="bh"))
 
 
-def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None) -> Trends | None:
+def fitted_share_change(counts: np.ndarray, totals: np.ndarray) -> float:
+    """The change of the share over the span on the least-squares line fitted to the period shares (weighted
+    by the period totals, the line the Cochran-Armitage statistic tests), relative to the pooled share.
+
+    0 when the share cannot be fitted (one period holding documents, or no member at all).
+    """
+    n, x = np.asarray(totals, dtype=float), np.asarray(counts, dtype=float)
+    held = np.flatnonzero(n > 0)
+    if held.size < 2 or x.sum() <= 0:
+        return 0.0
+    s = np.arange(n.size, dtype=float)
+    mean_s, pooled = (n * s).sum() / n.sum(), x.sum() / n.sum()
+    slope = float((s - mean_s) @ (x - n * pooled)) / float((n * (s - mean_s) ** 2).sum())
+    return slope * float(held[-1] - held[0]) / pooled
+
+
+def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None,
+                   mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and a trend reading for each of the k clusters; None when no date can be read.
 
     ``dates[i]`` and ``labels[i]`` belong to document i (every copy of a text counts, as everywhere).
+    ``mixed[c]`` marks a cluster without a common theme, whose trend gets a caution.
     """
     days, undated, unreadable = parse_dates(dates)
     known = ~np.isnat(days)
@@ -185,21 +224,24 @@ def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str
         latest_share = float(table[c, latest].sum() / dated) if dated else 0.0
         z, p = tests.get(c, (None, None))
         q = float(adjusted[c]) if c in adjusted else None
+        change = fitted_share_change(table[c], totals) if c in tests else None
         clusters.append(ClusterTrend(
-            reading=_reading(z, q, latest_share, background, tested=c in tests),
+            reading=_reading(z, q, latest_share, background, tested=c in tests, change=change),
             periods=tuple(PeriodCount(str(start), int(count), float(count / total) if total else 0.0)
                           for start, count, total in zip(starts, table[c], totals, strict=True)),
-            dated=dated, latest_share=latest_share, z=z, p_value=p, q_value=q,
+            dated=dated, latest_share=latest_share, z=z, p_value=p, q_value=q, share_change=change,
+            caution=MIXED_CAUTION if c < len(mixed) and mixed[c] else "",
         ))
     return Trends(period, chosen_by, tuple(str(s) for s in starts), tuple(int(t) for t in totals), tuple(clusters),
                   dated=int(known.sum()), undated=undated, unreadable=unreadable)
 
 
-def _reading(z: float | None, q: float | None, latest_share: float, background: float, *, tested: bool) -> str:
+def _reading(z: float | None, q: float | None, latest_share: float, background: float, *, tested: bool,
+             change: float | None = None) -> str:
     if not tested or z is None or q is None:
         return "too few"
     if latest_share >= NEW_SHARE and background <= NEW_BACKGROUND:
         return "new"
-    if q < SIGNIFICANCE:
+    if q < SIGNIFICANCE and (change is None or abs(change) >= MIN_RELATIVE_CHANGE):
         return "rising" if z > 0 else "falling"
     return "steady"

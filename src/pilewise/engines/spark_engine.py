@@ -41,6 +41,7 @@ from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Collection, Document, Ingested, Population
 from pilewise.options import RunOptions, check_k, kmeans_starts, table_delimiter
 from pilewise.progress import Reporter
+from pilewise.vectors.languages import detect_languages, present_languages, shares
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import (
     LSA_FIT_ROWS,
@@ -101,10 +102,11 @@ class _Tokenize:
 
     stop_words: frozenset[str]
     stem: bool
+    languages: tuple[str, ...]
     boilerplate: Boilerplate
 
     def bags(self, rows: Iterable[tuple[bytes, tuple[int, str, int]]]) -> Iterator[Bag]:
-        analyzer = Analyzer(stop_words=self.stop_words, stem=self.stem)
+        analyzer = Analyzer(stop_words=self.stop_words, stem=self.stem, languages=self.languages)
         batch = list(rows)
         texts = [text for _, (_, text, _) in batch]
         if self.boilerplate.lines:
@@ -186,15 +188,21 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
     settings = VectorSettings(min_df=options.min_df, max_df=options.max_df, bigrams_in_space=options.bigrams_in_space,
                               lsa_components=options.lsa_components, seed=options.seed)
     with reporter.stage("vectorizing on Spark"):
+        sample_texts = [row[1][1] for row in texts.takeSample(False, BOILERPLATE_SAMPLE, options.seed)]
+        # stop words and stemmers must be known before tokenizing: languages are detected on the sample (as
+        # streaming mode detects them on its first documents), or named by --language
+        sampled_languages = detect_languages(sample_texts, options.language)
+        present = present_languages(sampled_languages, np.ones(len(sample_texts))) or ("en",)
+        reporter.say(f"languages of a sample of {len(sample_texts):,} texts: " + ", ".join(
+            f"{code} {share:.0%}" for code, share in shares(sampled_languages, np.ones(len(sample_texts)))))
         boilerplate = NO_BOILERPLATE
         if options.boilerplate:
-            boilerplate = find_boilerplate([row[1][1] for row in texts.takeSample(False, BOILERPLATE_SAMPLE,
-                                                                                   options.seed)])
+            boilerplate = find_boilerplate(sample_texts)
             if boilerplate.lines:
                 reporter.say(f"{len(boilerplate.lines)} boilerplate line(s) found in a sample of "
                              f"{min(n_texts, BOILERPLATE_SAMPLE):,} texts; removed before vectorizing")
-        stop_words = load_stop_words(options.stop_words_file)
-        bags = texts.mapPartitions(_Tokenize(stop_words, options.stem, boilerplate).bags).persist(keep)
+        stop_words = load_stop_words(options.stop_words_file, present)
+        bags = texts.mapPartitions(_Tokenize(stop_words, options.stem, present, boilerplate).bags).persist(keep)
         min_df, max_df = term_limits(settings, float(n_docs))
         kept = (bags.flatMap(lambda row: ((term, row[2]) for term in row[3]))
                 .reduceByKey(lambda a, b: a + b)
@@ -246,7 +254,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
     counts = sp.csr_matrix(
         (np.concatenate([row[4] for row in rows]), np.concatenate([row[3] for row in rows]),
          np.concatenate([[0], np.cumsum([row[3].size for row in rows])])), shape=(n, len(terms)), dtype=np.int32)
-    analyzer = Analyzer(stop_words=stop_words, stem=options.stem)
+    analyzer = Analyzer(stop_words=stop_words, stem=options.stem, languages=present)
     if options.stem:  # surface forms for stems, from the sample (executors' analyzers are not brought back)
         for doc in sample_docs:
             analyzer.terms(doc.text)
@@ -258,7 +266,8 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         "lsa_fitted_on_rows": len(fit_sample), "engine": "spark", "described_texts": n,
     }
     vectors = Vectorized(counts=counts, terms=terms, is_phrase=is_phrase,
-                         space=np.vstack([row[5] for row in rows]), facts=facts)
+                         space=np.vstack([row[5] for row in rows]), facts=facts, space_columns=space_columns,
+                         idf=idf, lsa=svd.components_)
     clustering = Clustering(labels=np.array([row[6] for row in rows], dtype=np.int64), centroids=unit,
                             distances=np.array([row[7] for row in rows]), inertia=cost)
     collection = Collection(sample_docs, np.arange(n), np.arange(n), copies)

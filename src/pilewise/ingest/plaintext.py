@@ -4,16 +4,20 @@ from __future__ import annotations
 
 import codecs
 import re
+from collections import Counter
+from collections.abc import Iterable
+from dataclasses import dataclass, field
 
 import charset_normalizer
 
 TITLE_CHARS = 120
 
 
-def decode_bytes(raw: bytes, encoding: str | None = None) -> tuple[str, str]:
+def decode_bytes(raw: bytes, encoding: str | None = None, voted: str | None = None) -> tuple[str, str]:
     """Decode bytes as UTF-8, else as the detected encoding, else Latin-1; say which when not UTF-8.
 
-    A given `encoding` (--encoding) is used as it is; bytes it cannot decode read as U+FFFD.
+    A given `encoding` (--encoding) is used as it is; bytes it cannot decode read as U+FFFD. `voted` is
+    the encoding `vote_encoding` chose for this file, used when the bytes are not UTF-8.
     """
     if encoding is not None:
         text = raw.decode(encoding, errors="replace")
@@ -22,18 +26,110 @@ def decode_bytes(raw: bytes, encoding: str | None = None) -> tuple[str, str]:
         return raw.decode("utf-8-sig"), ""
     except UnicodeDecodeError:
         pass
+    if voted is not None:
+        return raw.decode(voted, errors="replace"), f"not UTF-8; decoded as {voted} (the vote of the folder)"
     detected = detect_encoding(raw[:1_000_000])
     if detected is not None:
         return raw.decode(detected, errors="replace"), f"not UTF-8; decoded as {detected}"
     return raw.decode("latin-1"), "not UTF-8 and no encoding detected; decoded as latin-1"
 
 
+CP1252_TOLERANCE = 0.1  # measured: a French sentence scored 0.032 as cp1257, 0.095 as cp1252
+VOTE_SAMPLE_BYTES = 65_536  # bytes of each file read for the vote
+VOTE_MESS_MARGIN = 0.2  # a file keeps its own detected encoding only when it reads this much cleaner
+
+
+@dataclass(frozen=True)
+class EncodingVote:
+    """The encoding of a folder's non-UTF-8 files, decided by a vote, and the encoding chosen for each file.
+
+    Attributes
+    ----------
+    encoding : str or None
+        The encoding detected on all non-UTF-8 files' samples together (None: all files are UTF-8).
+    votes : tuple of (str, int)
+        Every detected encoding and its number of files, most first.
+    of_file : dict
+        The encoding chosen for each non-UTF-8 file, by its key: the folder's, unless the file reads
+        clearly cleaner (charset-normalizer's mess ratio lower by VOTE_MESS_MARGIN) as its own detection.
+    """
+
+    encoding: str | None
+    votes: tuple[tuple[str, int], ...]
+    of_file: dict[str, str] = field(default_factory=dict)
+
+    def note(self) -> str:
+        """One line for the ingest page: what was decided and how sure (the share of files that agree)."""
+        if self.encoding is None:
+            return ""
+        files = sum(n for _, n in self.votes)
+        agree = sum(1 for enc in self.of_file.values() if enc == self.encoding)
+        tally = ", ".join(f"{n} {enc}" for enc, n in self.votes)
+        return (f"encoding: {files} file(s) are not UTF-8; the folder's encoding is {self.encoding} "
+                f"({agree} of {files} read as it; detected per file: {tally}); pass --encoding to force one")
+
+
+def vote_encoding(samples: Iterable[tuple[str, bytes]]) -> EncodingVote:
+    """Decide the encoding of a folder from the first bytes of each of its files (key, bytes).
+
+    UTF-8 files do not vote. The folder's encoding is the one detected on all non-UTF-8 samples together
+    (the votes per file are reported beside it, as how sure the decision is); each file is read in it
+    unless it does not decode in it or reads clearly cleaner in its own detected encoding (files that
+    differ stay per file).
+    """
+    detected: dict[str, str] = {}
+    raws: dict[str, bytes] = {}
+    for key, raw in samples:
+        if _is_utf8_start(raw):
+            continue
+        found = detect_encoding(raw)
+        if found is not None:
+            detected[key], raws[key] = found, raw
+    if not detected:
+        return EncodingVote(None, ())
+    counts = Counter(detected.values())
+    votes = tuple(sorted(counts.items(), key=lambda item: (-item[1], item[0])))
+    # one detection on all samples together: far more evidence than any one short file (per file,
+    # charset-normalizer took short Shift_JIS texts for cp949 and French cp1252 for cp1257)
+    together = detect_encoding(b"\n".join(raws[key] for key in sorted(raws))[:1_000_000])
+    chosen = together if together is not None else votes[0][0]
+    of_file = {key: _file_choice(raws[key], chosen, own) for key, own in detected.items()}
+    return EncodingVote(chosen, votes, of_file)
+
+
+def _is_utf8_start(raw: bytes) -> bool:
+    """True when `raw` (maybe cut inside a character at its end) is UTF-8."""
+    try:
+        raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        return err.start >= len(raw) - 3 and err.reason == "unexpected end of data"
+    return True
+
+
+def _file_choice(raw: bytes, folder: str, own: str) -> str:
+    """The folder's encoding for one file, unless the file does not decode in it or reads clearly cleaner
+    in its own detected encoding."""
+    from charset_normalizer.md import mess_ratio
+
+    if own == folder:
+        return folder
+    try:
+        as_folder = raw.decode(folder)
+    except UnicodeDecodeError:
+        return own
+    as_own = raw.decode(own, errors="replace")
+    if mess_ratio(as_own[:_MESS_SAMPLE], 1.0) + VOTE_MESS_MARGIN < mess_ratio(as_folder[:_MESS_SAMPLE], 1.0):
+        return own
+    return folder
+
+
 def detect_encoding(raw: bytes) -> str | None:
     """The encoding charset-normalizer finds for `raw` (a codec Python knows), else None.
 
-    Where it scores windows-1252 exactly as well as its first answer (same mess and coherence),
-    windows-1252 is taken: the detector then has no evidence either way and lists the tied code
-    pages by name (cp1250 before cp1252), so "naïve" would read as "naďve". The WHATWG Encoding
+    Where it scores windows-1252 about as well as its first answer (mess ratio within CP1252_TOLERANCE,
+    coherence as high), windows-1252 is taken: the detector then has little evidence either way and lists
+    the tied code pages by name (cp1250 before cp1252), or rates a short French sentence a little cleaner
+    as Baltic cp1257, so "naïve" would read as "naďve". The WHATWG Encoding
     Standard makes windows-1252 the legacy default that browsers fall back on, and it is what
     Western spreadsheet exports write, which makes it the better prior for a tie.
     """
@@ -43,7 +139,8 @@ def detect_encoding(raw: bytes) -> str | None:
         return None
     chosen = str(best.encoding)
     for match in matches:
-        if match.encoding == "cp1252" and (match.chaos, match.coherence) == (best.chaos, best.coherence):
+        if match.encoding == "cp1252" and match.chaos <= best.chaos + CP1252_TOLERANCE \
+                and match.coherence >= best.coherence:
             chosen = "cp1252"
     if chosen.startswith(_DOS_AND_MAC_PAGES) and _reads_as_cp1252_as_well(raw, chosen):
         chosen = "cp1252"

@@ -21,7 +21,14 @@ from pathlib import Path
 from bs4 import BeautifulSoup
 
 from pilewise.errors import PilewiseError
-from pilewise.ingest.plaintext import clean_text, decode_bytes, first_line_title
+from pilewise.ingest.plaintext import (
+    VOTE_SAMPLE_BYTES,
+    EncodingVote,
+    clean_text,
+    decode_bytes,
+    first_line_title,
+    vote_encoding,
+)
 from pilewise.ingest.tables import TABLE_SUFFIXES, ColumnChoice, TableReport, iter_table
 from pilewise.model import Document, Ingested, IngestEntry
 
@@ -125,6 +132,9 @@ class SourceStream:
         found = 0
         ids = _UniqueIds()
         paths = [(planned.path, planned.rel) for planned in self._planned]
+        vote = vote_encoding(self._vote_samples()) if self._columns.encoding is None else EncodingVote(None, ())
+        if vote.encoding is not None:
+            self.notes.append(vote.note())
         for planned, _ in zip(self._planned, track(paths) if track else paths, strict=True):
             start = self.bytes_done
             ids.start_file(planned.rel)
@@ -146,7 +156,8 @@ class SourceStream:
                     self.bytes_done = start + min(progress.bytes_read, planned.size)
                     yield ids.unique(doc)
             else:
-                read, file_entries = _read_file(planned.path, planned.rel, self._limits, self._columns.encoding)
+                read, file_entries = _read_file(planned.path, planned.rel, self._limits, self._columns.encoding,
+                                                voted=vote.of_file.get(planned.rel))
                 self.entries.extend(file_entries)
                 self.bytes_done = start + planned.size
                 if read is not None:
@@ -164,6 +175,21 @@ class SourceStream:
                 f"no documents found in {where} ({reasons or 'nothing readable'}); point SOURCE at "
                 "a folder of .txt/.md/.html/.eml files or a .csv/.tsv/.json/.jsonl/.parquet table"
             )
+
+
+    def _vote_samples(self) -> Iterator[tuple[str, bytes]]:
+        """The first bytes of every text and HTML file, for the folder's encoding vote (mail declares its own)."""
+        for planned in self._planned:
+            if planned.skipped is not None or planned.kind in ("table", "mbox") \
+                    or planned.path.suffix.lower() in MAIL_SUFFIXES:
+                continue
+            try:
+                with planned.path.open("rb") as handle:
+                    raw = handle.read(VOTE_SAMPLE_BYTES)
+            except OSError:
+                continue  # reading the file itself reports it
+            if not _looks_binary(raw):
+                yield planned.rel, raw
 
 
 class _UniqueIds:
@@ -403,18 +429,19 @@ def _starts_like_mbox(path: Path) -> bool:
 
 
 def _read_file(
-    path: Path, rel: str, limits: ReadLimits, encoding: str | None = None
+    path: Path, rel: str, limits: ReadLimits, encoding: str | None = None, voted: str | None = None
 ) -> tuple[Document | None, list[IngestEntry]]:
-    """One text, HTML or mail file: its document, if any, and its report entries; `encoding` is --encoding."""
+    """One text, HTML or mail file: its document, if any, and its report entries; `encoding` is --encoding,
+    `voted` the encoding the folder's vote chose for this file (`plaintext.vote_encoding`)."""
     try:
         raw = path.read_bytes()
     except OSError as err:
         return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
-    return document_from_bytes(raw, rel, path.suffix.lower(), limits, encoding)
+    return document_from_bytes(raw, rel, path.suffix.lower(), limits, encoding, voted)
 
 
 def document_from_bytes(
-    raw: bytes, rel: str, suffix: str, limits: ReadLimits, encoding: str | None = None
+    raw: bytes, rel: str, suffix: str, limits: ReadLimits, encoding: str | None = None, voted: str | None = None
 ) -> tuple[Document | None, list[IngestEntry]]:
     """The document of one text, HTML or mail file's bytes (`suffix` lower-case, with its dot), if any, and
     its report entries; shared by the local reader and the Spark engine's reader of file folders."""
@@ -424,7 +451,7 @@ def document_from_bytes(
         date = ""
         if _looks_binary(raw):
             return None, [IngestEntry(rel, "skipped", "binary", "holds NUL bytes or mostly control bytes")]
-        decoded, note = decode_bytes(raw, encoding=encoding)
+        decoded, note = decode_bytes(raw, encoding=encoding, voted=voted)
         if suffix in HTML_SUFFIXES:
             title, text = html_to_text(decoded)
         else:

@@ -1,4 +1,4 @@
-"""Exports of a run: assignments.csv, clusters.json, manifest.json, ingest-report.csv.
+"""Exports of a run: assignments.csv, clusters.json, manifest.json, ingest-report.csv, members/cluster-NN.csv, ...
 
 The formats are described in docs/outputs.md; a test keeps the two in step.
 """
@@ -9,7 +9,8 @@ import csv
 import json
 import os
 import platform
-from collections.abc import Callable, Iterable
+import re
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import asdict
 from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
@@ -26,6 +27,82 @@ from pilewise.output.outfolder import write_text_atomically
 
 EXPORT_FILES = ("assignments.csv", "clusters.json", "manifest.json", "ingest-report.csv", "levels.json", "cuts.csv",
                 "names.csv", "boilerplate.csv")
+MEMBERS_FOLDER = "members"
+MEMBER_ROWS_BUFFERED = 10_000  # rows held before the per-cluster CSVs are appended to (bounded memory, few open files)
+
+# What each file of a run folder is, by its name with every run of digits written N (`file_key`). The run's
+# pages list the folder's files with these lines; a test fails when a run writes a file missing here.
+DATA_FILES: dict[str, str] = {
+    "names.csv": "cluster, suggested name, your name and note (edit it to name clusters)",
+    "assignments.csv": "every document with its cluster and distance to the centroid",
+    "members/cluster-N.csv": "one cluster's members, with the columns of assignments.csv",
+    "cuts.csv": "every document's cluster at each cut of the tree (columns k2, k3, ...)",
+    "clusters.json": "every figure shown on these pages",
+    "levels.json": "the tree's cuts for a range of k and how each splits at the next",
+    "sweep.json": "every figure of the sweep over k that chose this run's k",
+    "manifest.json": "settings, seed, library versions, input fingerprint, timings",
+    "ingest-report.csv": "every file or row and what became of it",
+    "boilerplate.csv": "lines removed as boilerplate before vectorizing, with how many texts hold each",
+}
+SITE_FILES: dict[str, str] = {
+    "index.html": "the run's overview: every cluster on a card",
+    "cluster-N.html": "a cluster's page: rule, terms, attributes, members nearest first",
+    "cluster-N-members-N.html": "further pages of a cluster's members",
+    "docs/dN.html": "a document's page, the cluster's terms marked",
+    "levels.html": "coarser and finer cuts of the tree",
+    "dendrogram.svg": "the figure of the top of the tree",
+    "tree.html": "one decision tree for the whole clustering",
+    "sweep.html": "choosing k: the figures of the sweep",
+    "sweep-curves.svg": "the figure of the sweep",
+    "ingest.html": "what was read and what was skipped",
+    "comparisons.html": "this run compared with other runs of the same collection (written when the site is refreshed)",
+    "files.html": "this list",
+    "pilewise.css": "the pages' stylesheet",
+    "pilewise-sort.js": "sorts the pages' tables when a header is activated (the pages read the same without it)",
+    "pilewise-search.js": "the search box's script",
+    "search-index.js": "the words the search box looks in",
+    ".pilewise": "the mark that pilewise wrote this folder (it replaces only folders so marked)",
+}
+LATE_FILES = ("comparisons.html", ".pilewise")  # written after the pages, when the run is moved into place
+REWRITTEN_LAST = ("manifest.json",)  # written again after the pages (its timings): its size is not listed
+
+
+def members_csv_name(cluster_id: int) -> str:
+    """The per-cluster CSV of members, relative to the run folder (numbered as the cluster pages are)."""
+    return f"{MEMBERS_FOLDER}/cluster-{cluster_id:02d}.csv"
+
+
+def file_key(relative: str) -> str:
+    """A run file's key in DATA_FILES or SITE_FILES: its relative path with every run of digits written N."""
+    return re.sub(r"[0-9]+", "N", relative)
+
+
+def describe_file(relative: str) -> str:
+    """What a file of a run folder is; "" for a file pilewise does not know (a test keeps this from happening)."""
+    key = file_key(relative)
+    return DATA_FILES.get(key) or SITE_FILES.get(key, "")
+
+
+def listed_files(folder: Path, *, data_only: bool = False, late: tuple[str, ...] = ()) -> list[dict[str, Any]]:
+    """The files under `folder` (and `late`, files written later), one entry per key, in the order of the dicts.
+
+    Each entry: ``name`` (the first file, for a link), ``last`` (the last file when several share the key,
+    else ""), ``count``, ``bytes`` (their total size; 0 for late files and REWRITTEN_LAST) and ``what``.
+    """
+    found: dict[str, list[tuple[str, int]]] = {}
+    for path in sorted(folder.rglob("*")):
+        if path.is_file():
+            relative = path.relative_to(folder).as_posix()
+            size = 0 if relative in REWRITTEN_LAST else path.stat().st_size  # pages stay byte-reproducible
+            found.setdefault(file_key(relative), []).append((relative, size))
+    for name in late:
+        found.setdefault(file_key(name), [(name, 0)])
+    order = list(DATA_FILES) + ([] if data_only else list(SITE_FILES))
+    keys = [k for k in order if k in found] + ([] if data_only else sorted(k for k in found if k not in order))
+    return [{"name": found[k][0][0], "last": found[k][-1][0] if len(found[k]) > 1 else "", "count": len(found[k]),
+             "bytes": sum(size for _, size in found[k]), "what": describe_file(found[k][0][0])} for k in keys]
+
+
 LIBRARIES = ("pilewise", "numpy", "scipy", "scikit-learn", "pandas", "nltk", "jinja2", "beautifulsoup4",
              "charset-normalizer", "typer")
 
@@ -113,22 +190,54 @@ def write_document_tables(
     cuts = result.levels.cuts
     ks = sorted(cuts)
     shown = [c.shown for c in result.naming.clusters]
+    header = spreadsheet_row(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies",
+                              *extra])
+    members = _MemberFiles(assignments.parent, header, [c.cluster_id for c in result.clusters])
     with assignments.open("w", encoding="utf-8", newline="") as handle, \
             cuts_path.open("w", encoding="utf-8", newline="") as cuts_handle:
         writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow(spreadsheet_row(
-            ["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies", *extra]))
+        writer.writerow(header)
         cuts_writer = csv.writer(cuts_handle, lineterminator="\n")
         cuts_writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
         numbered = enumerate(docs)
         for i, doc in track(numbered) if track else numbered:
             t = text_of_doc[i]
             meta = dict(doc.metadata)
-            writer.writerow(spreadsheet_row([
+            row = spreadsheet_row([
                 doc.doc_id, doc.source, doc.title, int(labels[t]), shown[labels[t]], f"{distances[t]:.6f}", doc.date,
                 int(copies[t]), *(meta.get(name, "") for name in extra),
-            ]))
+            ])
+            writer.writerow(row)
             cuts_writer.writerow([spreadsheet_cell(doc.doc_id), *(int(cuts[k][t]) for k in ks)])
+            members.add(int(labels[t]), row)
+    members.flush()
+
+
+class _MemberFiles:
+    """members/cluster-NN.csv for every cluster, appended to in batches: memory and open files stay bounded."""
+
+    def __init__(self, folder: Path, header: list[object], clusters: list[int]) -> None:
+        self.folder = folder
+        self.rows: dict[int, list[list[object]]] = {c: [] for c in clusters}
+        self.held = 0
+        (folder / MEMBERS_FOLDER).mkdir(exist_ok=True)
+        for c in clusters:  # every cluster gets its file, with the header, even before its first row
+            with (folder / members_csv_name(c)).open("w", encoding="utf-8", newline="") as handle:
+                csv.writer(handle, lineterminator="\n").writerow(header)
+
+    def add(self, cluster: int, row: list[object]) -> None:
+        self.rows[cluster].append(row)
+        self.held += 1
+        if self.held >= MEMBER_ROWS_BUFFERED:
+            self.flush()
+
+    def flush(self) -> None:
+        for c, rows in self.rows.items():
+            if rows:
+                with (self.folder / members_csv_name(c)).open("a", encoding="utf-8", newline="") as handle:
+                    csv.writer(handle, lineterminator="\n").writerows(rows)
+                rows.clear()
+        self.held = 0
 
 
 def write_ingest_report(path: Path, result: RunResult) -> None:
@@ -194,7 +303,12 @@ def cluster_record(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]
         "stability": {"mean_jaccard": _round(cluster.stability, 4), "reading": cluster.stability_reading,
                       "resamples_counted": result.stability.clusters[cluster.cluster_id].resamples_counted},
         "trend": _trend_record(result, cluster.cluster_id),
+        "languages": _language_shares(result.languages.clusters[cluster.cluster_id]) if result.languages else [],
     }
+
+
+def _language_shares(shares: Sequence[tuple[str, float]]) -> list[dict[str, Any]]:
+    return [{"language": code, "share": _round(share, 4)} for code, share in shares]
 
 
 def _trend_record(result: RunResult, c: int) -> dict[str, Any] | None:
@@ -208,6 +322,7 @@ def _trend_record(result: RunResult, c: int) -> dict[str, Any] | None:
         "test": "Cochran-Armitage trend in the share of each period's dated documents",
         "z": _round(trend.z, 4), "p_value": _round(trend.p_value, 6), "q_value": _round(trend.q_value, 6),
         "dated": trend.dated, "latest_share": _round(trend.latest_share, 4),
+        "share_change": _round(trend.share_change, 4), "caution": trend.caution,
         "periods": [{"start": p.start, "count": p.count, "share": _round(p.share, 4)} for p in trend.periods],
     }
 
@@ -301,6 +416,8 @@ def clusters_document(result: RunResult) -> dict[str, Any]:
                   "folds": result.rules.folds, "features": result.rules.features,
                   "rows": int(min(result.collection.copies.size, RULES_ROWS))},
         "trends": trends_document(result),
+        "languages": _language_shares(result.languages.collection) if result.languages else [],
+        "languages_forced": bool(result.languages and result.languages.forced),
         "names_from_run": result.naming.source_run,
         "names_not_carried": list(result.naming.not_carried),
         "clusters": [cluster_record(c, result) for c in result.clusters],

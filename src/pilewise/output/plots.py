@@ -89,3 +89,52 @@ def trend_bars_svg(
 
 def _escape(text: str) -> str:
     return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").replace('"', "&quot;")
+
+
+def trend_rows_svg(
+    starts: Sequence[str], rows: Sequence[tuple[str, Sequence[int], Sequence[float], str]], *, label: str,
+    width: int = 760, row_height: int = 26,
+) -> str:
+    """Small multiples: one row of bars per cluster (its share of each period's dated documents), one figure.
+
+    `rows` holds (name, counts, shares, reading) per cluster. Each row is scaled to its own highest share,
+    so that its shape reads (the tooltips give the numbers). Written by hand like `trend_bars_svg`: the same
+    rows give the same bytes.
+    """
+    name_w, reading_w, pad = 230, 70, 4
+    plot_w = width - name_w - reading_w
+    height = row_height * len(rows) + 18
+    step = plot_w / max(len(starts), 1)
+    bar = max(step - (1.0 if step > 3 else 0.0), 0.6)
+    text = f'font-family="DejaVu Sans, sans-serif" font-size="11" fill="{INK}"'
+    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="trend-rows" width="{width}" height="{height}" '
+             f'viewBox="0 0 {width} {height}" role="img" aria-label="{_escape(label)}">',
+             f"<title>{_escape(label)}</title>"]
+    for r, (name, counts, shares, reading) in enumerate(rows):
+        top_y = r * row_height
+        base_y = top_y + row_height - pad
+        peak = max(max(shares, default=0.0), 1e-12)
+        parts.append(f'<text x="0" y="{base_y - 3}" {text}>{_escape(_clip(name, 34))}</text>')
+        parts.append(f'<line x1="{name_w}" y1="{base_y}" x2="{name_w + plot_w:.1f}" y2="{base_y}" stroke="{GRID}" '
+                     'stroke-width="1"/>')
+        for i, (start, count, share) in enumerate(zip(starts, counts, shares, strict=True)):
+            h = (row_height - 2 * pad) * share / peak
+            parts.append(f'<rect x="{name_w + i * step:.1f}" y="{base_y - h:.1f}" width="{bar:.1f}" height="{h:.1f}" '
+                         f'fill="{ACCENT}"><title>{_escape(name)}, {_escape(start)}: {count:,} '
+                         f"({share:.0%} of the period)</title></rect>")
+        parts.append(f'<text x="{width}" y="{base_y - 3}" text-anchor="end" {text}>{_escape(reading)}</text>')
+    if starts:
+        axis_y = height - 4
+        parts.append(f'<text x="{name_w}" y="{axis_y}" {text}>{_escape(starts[0])}</text>')
+        parts.append(f'<text x="{name_w + plot_w:.1f}" y="{axis_y}" text-anchor="end" {text}>'
+                     f"{_escape(starts[-1])}</text>")
+    parts.append("</svg>")
+    return "".join(parts)
+
+
+def _clip(text: str, limit: int) -> str:
+    """`text` cut at a word boundary to at most `limit` characters, with an ellipsis when cut."""
+    if len(text) <= limit:
+        return text
+    cut = text[: limit - 1].rsplit(" ", 1)[0] or text[: limit - 1]
+    return cut + "…"

@@ -54,6 +54,10 @@ class Vectorized:
         The L2-normalized clustering space (LSA of the TF-IDF, or the TF-IDF itself).
     facts : dict
         What was used and measured: min_df, vocabulary sizes, LSA explained variance.
+    space_columns, idf, lsa :
+        What places new texts in the same space (`pilewise assign`): the columns of `counts` in the space,
+        their idf, and the LSA directions (TruncatedSVD.components_, shape (n_dims, n_space_columns); None
+        without LSA).
     """
 
     counts: sp.csr_matrix
@@ -61,6 +65,9 @@ class Vectorized:
     is_phrase: np.ndarray
     space: np.ndarray | sp.csr_matrix
     facts: dict[str, float | int | str | bool]
+    space_columns: np.ndarray | None = None
+    idf: np.ndarray | None = None
+    lsa: np.ndarray | None = None
 
 
 def default_min_df(n_texts: int) -> int:
@@ -462,7 +469,7 @@ def weigh_and_reduce(
     if settings.lsa_components <= 0 or components < 2:
         facts["lsa_components"] = 0
         return Vectorized(counts=counts, terms=kept.terms, is_phrase=kept.is_phrase, space=tfidf_rows(in_space, idf),
-                          facts=facts)
+                          facts=facts, space_columns=space_columns, idf=idf)
     svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
     space: np.ndarray
     if fit_rows is None:
@@ -479,7 +486,8 @@ def weigh_and_reduce(
     facts["lsa_explained_variance"] = round(float(svd.explained_variance_ratio_.sum()), 4)
     if fit_rows is not None:
         facts["lsa_fitted_on_rows"] = int(sample.size)
-    return Vectorized(counts=counts, terms=kept.terms, is_phrase=kept.is_phrase, space=space, facts=facts)
+    return Vectorized(counts=counts, terms=kept.terms, is_phrase=kept.is_phrase, space=space, facts=facts,
+                      space_columns=space_columns, idf=idf, lsa=svd.components_)
 
 
 def vectorize(

@@ -21,17 +21,24 @@ from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.describe.runfolders import FinishedRun, FinishedSweep
+from pilewise.describe.snippets import clip_text
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
+from pilewise.output import docmap, search
+from pilewise.output.exports import LATE_FILES, listed_files, members_csv_name
 from pilewise.output.outfolder import write_text_atomically
-from pilewise.output.plots import trend_bars_svg
+from pilewise.output.plots import trend_bars_svg, trend_rows_svg
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 MEMBERS_PER_PAGE = 500
 MEMBERS_LISTED = 5_000  # members listed per cluster (nearest first, 10 pages); assignments.csv has them all
 MARKED_TERMS = 12
 GROUP_LISTED = 50  # copies and near-duplicates linked from a document page
+SNIPPET_CHARS = 160  # a member's excerpt in lists, cut at a word boundary
+LABEL_CHARS = 60  # a document's label in the menu, the page title and previous/next links
 STYLESHEET = "pilewise.css"
+SORT_SCRIPT = "pilewise-sort.js"  # sorts tables of class "sortable"; the pages read the same without it
+STATIC_FILES = (STYLESHEET, SORT_SCRIPT)
 
 CAUTION = (
     "These pages contain the documents' own text. Share them only as your data-protection rules allow. "
@@ -55,12 +62,13 @@ def _environment() -> Environment:
 
 
 def _copy_stylesheet(folder: Path, *, atomic: bool = False) -> None:
-    """The stylesheet beside the pages; `atomic` for folders that readers may be looking at."""
-    source = files("pilewise.output.site").joinpath("static", STYLESHEET)
-    if atomic:
-        write_text_atomically(folder / STYLESHEET, source.read_text(encoding="utf-8"))
-    else:
-        (folder / STYLESHEET).write_bytes(source.read_bytes())
+    """The static files (STATIC_FILES: stylesheet, scripts) beside the pages; `atomic` for folders readers may see."""
+    for name in STATIC_FILES:
+        source = files("pilewise.output.site").joinpath("static", name)
+        if atomic:
+            write_text_atomically(folder / name, source.read_text(encoding="utf-8"))
+        else:
+            (folder / name).write_bytes(source.read_bytes())
 
 
 @dataclass(frozen=True)
@@ -82,7 +90,8 @@ def doc_page_name(doc_index: int) -> str:
 def render_run_site(
     folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
 ) -> None:
-    """Write index.html, one page per cluster (members paged), document pages and the ingest page."""
+    """Write index.html, one page per cluster (members paged), document pages, the ingest page, the map and
+    the search index."""
     env = _environment()
     _copy_stylesheet(folder)
     docs = result.collection.documents
@@ -105,8 +114,12 @@ def render_run_site(
         "names_from_run": result.naming.source_run,
         "names_not_carried": result.naming.not_carried,
         "resamples": result.stability.resamples,
+        "finder": True,  # base.html: the search form and the run's two script files
     }
+    common["exports"] = listed_files(folder, data_only=True)  # the exports are written before the pages
     cards = [_card(c, result) for c in result.clusters]
+    _write_search(folder, result, cards, with_doc_pages)
+    _render_map(folder, result, env, common, cards, with_doc_pages)
     # ids and file names are the user's own and may hold e-mail addresses or phone numbers: pages show
     # them redacted, as titles are (exports keep them as they are, so rows can be joined back)
     shown: Callable[[str], str] = private_text if result.options.redact else str
@@ -117,15 +130,20 @@ def render_run_site(
         names={c.cluster_id: c.shown for c in result.naming.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
-    _write(folder / "index.html", env.get_template("run_index.html").render(common, cards=cards, up=""))
+    _write(folder / "index.html", env.get_template("run_index.html").render(
+        common, cards=cards, overview=_overview(cards), first=_first_listed(result, cards),
+        over_time=_over_time(result, cards), up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
         common, entries=[{"source": shown(e.source), "status": e.status, "reason": e.reason, "detail": shown(e.detail)}
                          for e in result.ingested.entries], notes=result.ingested.notes,
         files_found=result.ingested.files_found, boilerplate=result.boilerplate.lines,
-        boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up=""))
-    members_by_cluster = _members_nearest_first(result)
-    for cluster, card in zip(result.clusters, cards, strict=True):
-        members = members_by_cluster[cluster.cluster_id]
+        boilerplate_share=result.boilerplate.min_share, redacted=result.redacted, up="",
+        languages=[(code, f"{share:.1%}") for code, share in result.languages.collection] if result.languages else [],
+        languages_forced=bool(result.languages and result.languages.forced)))
+    # every member when documents have pages (their previous/next links follow this order), else the listed ones
+    members_by_cluster = _members_nearest_first(result, None if with_doc_pages else MEMBERS_LISTED)
+    for position, (cluster, card) in enumerate(zip(result.clusters, cards, strict=True)):
+        members = members_by_cluster[cluster.cluster_id][:MEMBERS_LISTED]
         pages = max(1, -(-len(members) // MEMBERS_PER_PAGE))
         for page in range(1, pages + 1):
             chunk = members[(page - 1) * MEMBERS_PER_PAGE : page * MEMBERS_PER_PAGE]
@@ -143,6 +161,9 @@ def render_run_site(
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
                 "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
                 "listed": len(members),
+                "members_csv": members_csv_name(cluster.cluster_id),
+                "prev_cluster": _cluster_link(cards[position - 1]) if position > 0 else None,
+                "next_cluster": _cluster_link(cards[position + 1]) if position + 1 < len(cards) else None,
                 "up": "",
             }
             _write(folder / cluster_page_name(cluster.cluster_id, page),
@@ -155,20 +176,118 @@ def render_run_site(
         for j, text_index in enumerate(result.collection.text_of_doc):
             if result.collection.copies[text_index] > 1:
                 members_of_text.setdefault(int(text_index), []).append(j)
+        ranks = {i: (c, r) for c, members in members_by_cluster.items() for r, (i, _) in enumerate(members)}
         numbered = enumerate(docs)
         for i, doc in track(numbered) if track else numbered:
             t = result.collection.text_of_doc[i]
             cluster_id = int(result.clustering.labels[t])
             segments = mark_terms(doc.text, result.analyzer.spans(doc.text), keys_by_cluster[cluster_id])
             group = [j for j in members_of_text.get(int(t), []) if j != i][:GROUP_LISTED]
+            order, rank = members_by_cluster[ranks[i][0]], ranks[i][1]
             _write(folder / doc_page_name(i), template.render(
                 common, doc=doc, doc_id=shown(doc.doc_id), source=shown(doc.source), segments=segments,
+                label=doc_label(doc.title), self_href=doc_page_name(i).removeprefix("docs/"),
+                marked=sum(s.marked for s in segments), marked_terms=MARKED_TERMS, rank=rank + 1,
+                prev_member=_doc_link(order[rank - 1][0], docs) if rank > 0 else None,
+                next_member=_doc_link(order[rank + 1][0], docs) if rank + 1 < len(order) else None,
                 cluster=result.clusters[cluster_id],
                 cluster_href="../" + cluster_page_name(cluster_id),
                 cluster_title=result.naming.clusters[cluster_id].name or result.clusters[cluster_id].headline,
                 distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../",
                 group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
+    # last, so that it lists every file written before it (and the few written when the run is put in place)
+    _write(folder / "files.html", env.get_template("files.html").render(
+        common, files=listed_files(folder, late=(*LATE_FILES, "files.html")), up=""))
+
+
+def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any]], with_doc_pages: bool) -> None:
+    """search-index.js (documents by title and text opening, clusters by label and terms) and the script."""
+    docs = result.collection.documents
+    clusters = [search.SearchCluster(card["id"], card["title"], tuple(t.term for t in c.chi2_terms[:20]), card["href"])
+                for card, c in zip(cards, result.clusters, strict=True)]
+    found: list[search.SearchDocument] = []
+    if len(docs) <= search.DOCUMENTS_UP_TO:  # above it the index holds clusters only: build nothing
+        labels = result.clustering.labels[result.collection.text_of_doc]
+        with_text = len(docs) <= search.SNIPPETS_UP_TO
+        for i, doc in enumerate(docs):
+            cluster_id = int(labels[i])
+            # a placeholder cut at the end of the slice may show half; the index keeps only the opening
+            text = display_text(doc.text[: search.SNIPPET_CHARS * 3]) if with_text else ""
+            href = doc_page_name(i) if with_doc_pages else cluster_page_name(cluster_id)
+            found.append(search.SearchDocument(doc.title, text, cluster_id, href))
+    _write(folder / search.INDEX_FILE, search.index_script(clusters, found))
+    script = files("pilewise.output.site").joinpath("static", search.SCRIPT_FILE)
+    (folder / search.SCRIPT_FILE).write_bytes(script.read_bytes())
+
+
+def _render_map(
+    folder: Path, result: RunResult, env: Environment, common: dict[str, Any], cards: Sequence[dict[str, Any]],
+    with_doc_pages: bool,
+) -> None:
+    """map.html: the seeded sample of distinct texts laid out in 2-D, coloured and numbered by cluster."""
+    docs, collection = result.collection.documents, result.collection
+    rows = docmap.sample_rows(int(collection.copies.size), docmap.MAP_CAP, result.options.seed)
+    space = result.vectors.space
+    points = docmap.layout(space[rows], result.options.seed)
+    marks = []
+    for row, (x, y) in zip(rows, points, strict=True):
+        first = int(collection.first_doc_of_text[row])
+        marks.append(docmap.Mark(float(x), float(y), int(result.clustering.labels[row]), docs[first].title,
+                                 doc_page_name(first) if with_doc_pages else None))
+    placed = docmap.cluster_labels(marks, {c["id"]: c["title"] for c in cards}, {c["id"]: c["size"] for c in cards})
+    label = (f"Map of {len(marks):,} of {int(collection.copies.size):,} distinct texts, coloured and numbered by "
+             "cluster (t-SNE layout)")
+    _write(folder / "map.html", env.get_template("map.html").render(
+        common, svg=Markup(docmap.map_svg(marks, placed, label=label)), drawn=len(marks),
+        texts=int(collection.copies.size), cap=docmap.MAP_CAP, sampled=len(marks) < collection.copies.size,
+        legend=[{"id": c.cluster, "colour": c.colour, "label": c.label, "size": c.size,
+                 "href": cluster_page_name(c.cluster), "drawn": sum(m.cluster == c.cluster for m in marks)}
+                for c in placed], seed=result.options.seed, up=""))
+
+
+def _overview(cards: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """One short row per cluster for the table above the cards."""
+    return [{"id": c["id"], "title": c["title"], "href": c["href"], "size": c["size"], "share": c["share"],
+             "stability": c["stability"], "stability_class": c["stability_class"],
+             "stability_word": c["stability_reading"].split(",")[0],  # the reading's first words: "stable"
+             "trend": c["trend"].reading if c["trend"] else ""} for c in cards]
+
+
+def _first_listed(result: RunResult, cards: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The new and rising clusters, new first, with the evidence of each (empty without dates)."""
+    if result.trends is None:
+        return []
+    trends = result.trends
+    listed = []
+    for c in trends.first():
+        trend = trends.clusters[c]
+        before, latest = _share_change(trend.periods, trends.totals)
+        listed.append({"id": c, "title": cards[c]["title"], "href": cards[c]["href"], "reading": trend.reading,
+                       "evidence": trend.evidence, "before": before, "latest": latest})
+    return listed
+
+
+def _share_change(periods: Sequence[Any], totals: Sequence[int]) -> tuple[float, float]:
+    """The cluster's share of the dated documents in the first and in the latest quarter of the periods."""
+    quarter = max(1, len(periods) // 4)
+
+    def share(chosen: Sequence[Any], total: Sequence[int]) -> float:
+        return sum(p.count for p in chosen) / max(sum(total), 1)
+
+    return share(periods[:quarter], totals[:quarter]), share(periods[-quarter:], totals[-quarter:])
+
+
+def _over_time(result: RunResult, cards: Sequence[dict[str, Any]]) -> Markup | None:
+    """All clusters' shares per period as small multiples (one row per cluster); None without dates."""
+    if result.trends is None:
+        return None
+    trends = result.trends
+    rows = [(f"{card['id']} {card['title']}", [p.count for p in t.periods], [p.share for p in t.periods], t.reading)
+            for card, t in zip(cards, trends.clusters, strict=True)]
+    label = (f"Share of each {trends.period}'s dated documents per cluster, {trends.starts[0]} to "
+             f"{trends.starts[-1]}; each row scaled to its own peak")
+    return Markup(trend_rows_svg(trends.starts, rows, label=label))
 
 
 def _render_levels(folder: Path, result: RunResult, env: Environment, common: dict[str, Any]) -> None:
@@ -253,6 +372,11 @@ def _kwic_groups(cluster: ClusterSummary, with_pages: bool, shown: Callable[[str
     return [{"term": term, "lines": lines} for term, lines in groups.items()]
 
 
+def _language_line(shares: Sequence[tuple[str, float]]) -> str:
+    """"de 80%, en 20%": a cluster's languages for its card."""
+    return ", ".join(f"{code} {share:.0%}" for code, share in shares)
+
+
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     largest = max(c.share for c in result.clusters)
     naming = result.naming.clusters[cluster.cluster_id]
@@ -270,6 +394,8 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "headline_note": _headline_note(cluster, result),
         "mixed": cluster.mixed,
         "mixed_reason": cluster.mixed_reason,
+        "languages": _language_line(result.languages.clusters[cluster.cluster_id])
+        if result.languages is not None and result.languages.mixed else "",
         "size": cluster.size,
         "share": cluster.share,
         "bar": round(100 * cluster.share / largest, 1),
@@ -320,12 +446,34 @@ def _member_row(
         "title": doc.title,
         "distance": distance,
         "href": doc_page_name(doc_index) if with_pages else None,
-        "snippet": " ".join(display_text(doc.text[:400]).split())[:160],
+        "snippet": snippet(doc.text),
     }
 
 
-def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float]]]:
-    """The MEMBERS_LISTED documents of every cluster nearest to its centroid, nearest first (copies together)."""
+def snippet(text: str, limit: int = SNIPPET_CHARS) -> str:
+    """A document's opening words for lists, redaction labels shown, cut at a word boundary with an ellipsis."""
+    head = text[: 8 * limit]  # enough for `limit` characters unless the text opens with long whitespace runs
+    if len(text) > len(head) and len(" ".join(head.split())) <= limit:
+        head = text
+    return clip_text(display_text(head), limit)
+
+
+def doc_label(title: str) -> str:
+    """A document's short label (menu, page title, previous/next links): its title cut at a word boundary."""
+    return clip_text(title, LABEL_CHARS) or "(untitled)"
+
+
+def _cluster_link(card: dict[str, Any]) -> dict[str, Any]:
+    return {"id": card["id"], "href": card["href"], "title": clip_text(card["title"], LABEL_CHARS)}
+
+
+def _doc_link(doc_index: int, docs: Sequence[Document]) -> dict[str, str]:
+    """A link from one document page to another (both live in docs/)."""
+    return {"href": doc_page_name(doc_index).removeprefix("docs/"), "title": doc_label(docs[doc_index].title)}
+
+
+def _members_nearest_first(result: RunResult, cap: int | None) -> dict[int, list[tuple[int, float]]]:
+    """Each cluster's first `cap` documents (all when None), nearest to its centroid first (ties in reading order)."""
     import numpy as np
 
     labels = result.clustering.labels[result.collection.text_of_doc]
@@ -334,7 +482,7 @@ def _members_nearest_first(result: RunResult) -> dict[int, list[tuple[int, float
     starts = np.searchsorted(labels[order], np.arange(len(result.clusters) + 1))
     return {
         c.cluster_id: [(int(i), float(distances[i]))
-                       for i in order[starts[c.cluster_id] : starts[c.cluster_id + 1]][:MEMBERS_LISTED]]
+                       for i in order[starts[c.cluster_id] : starts[c.cluster_id + 1]][:cap]]
         for c in result.clusters
     }
 
@@ -367,7 +515,24 @@ def _write(path: Path, content: str) -> None:
     path.write_text(content, encoding="utf-8")
 
 
-MOVED_ON_PAGE = 500
+MOVED_PAIRS_ON_PAGE = 200  # pairs of clusters listed on a comparison page, the largest first; compare.json has all
+
+
+def _after_badge(text: str, reading: str) -> str:
+    """A fate's sentence without the opening words the badge beside it already says ("kept" "kept as 3": "as 3")."""
+    words, badge = text.split(" "), reading.split(" ")
+    same = 0
+    while same < min(len(words) - 1, len(badge)) and words[same] == badge[same]:
+        same += 1
+    return " ".join(words[same:])
+
+
+def _moved_row(m: dict[str, Any], pages_b: str | None) -> dict[str, Any]:
+    """A moved document as the comparison page shows it: ids and titles with personal data redacted."""
+    row_b = m.get("row_b", -1)
+    href = pages_b + doc_page_name(row_b) if pages_b is not None and isinstance(row_b, int) and row_b >= 0 else None
+    return {"doc_id": private_text(str(m["doc_id"])), "title": doc_label(private_text(str(m.get("title") or ""))),
+            "href": href}
 
 
 def _shade(share: float) -> str:
@@ -393,15 +558,23 @@ def render_comparison(folder: Path, out: Path, document: dict[str, Any], run_a: 
                                                                                    strict=True)]}
         for row in table["rows"]
     ]
-    # ids are the user's own; the page shows them as the run pages do, with personal data redacted
-    moved = [{**m, "doc_id": private_text(str(m["doc_id"]))} for m in document["moved"]["documents"][:MOVED_ON_PAGE]]
+    # documents link to their pages in run B when B wrote document pages (it does up to DOC_PAGE_CAP documents)
+    pages_b = _href(folder, run_b) + "/" if (run_b / "docs").is_dir() else None
+    pairs = [{**p, "headline_a": clip_text(p["headline_a"], LABEL_CHARS),
+              "headline_b": clip_text(p["headline_b"], LABEL_CHARS),
+              "documents": [_moved_row(m, pages_b) for m in p["documents"]]}
+             for p in document["moved"].get("pairs", [])[:MOVED_PAIRS_ON_PAGE]]
+    fates = {side: [{**f, "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
+             for side in ("fates_a", "fates_b")}
     homes = [out / "index.html", *(f.resolve().parent.parent / "index.html" for f in (run_a, run_b)
                                    if f.resolve().parent.name == "runs")]
     home = next((_href(folder, h) for h in homes if h.is_file()), None)
     page = folder / "index.html"
     write_text_atomically(page, _environment().get_template("compare.html").render(
-        doc=document, a=a, b=b, ka=len(table["clusters_a"]), kb=len(table["clusters_b"]), rows=rows,
-        moved=moved, home=home, href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
+        doc=document, fates_a=fates["fates_a"], fates_b=fates["fates_b"], a=a, b=b, ka=len(table["clusters_a"]),
+        kb=len(table["clusters_b"]), rows=rows,
+        pairs=pairs, pairs_total=len(document["moved"].get("pairs", [])), home=home,
+        href_a=_href(folder, run_a) + "/", href_b=_href(folder, run_b) + "/",
         caution=CAUTION, css=STYLESHEET, up=""))
     return page
 
@@ -434,7 +607,8 @@ def render_root_index(
         mine = [{"other": p["b"] if p["a"] == name else p["a"], "k": p["kb"] if p["a"] == name else p["ka"], **p}
                 for p in listed if name in (p["a"], p["b"])]
         write_text_atomically(out / "runs" / name / "comparisons.html", env.get_template("comparisons.html").render(
-            run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up=""))
+            run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up="",
+            finder=(run.folder / search.INDEX_FILE).is_file()))  # runs written before search have none
     _copy_stylesheet(out, atomic=True)
     page = out / "index.html"
     write_text_atomically(page, env.get_template("root_index.html").render(

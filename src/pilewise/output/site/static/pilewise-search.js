@@ -59,7 +59,7 @@
     data.docs.forEach(function (d) {
       if (matches(d[0] + " " + d[1], needles)) {
         found++;
-        if (found <= LIMIT) { list.appendChild(item("document", d[0], "in " + (names[d[2]] || "cluster " + d[2]), d[3])); }
+        if (found <= LIMIT) { list.appendChild(item("document", d[0], "in cluster " + d[2] + (names[d[2]] ? ": " + names[d[2]] : ""), d[3])); }
       }
     });
     status.textContent = found === 0 ? "nothing found" :
@@ -67,6 +67,26 @@
       " (searched: " + data.searched + ")";
   }
 
+  // keyboard: Down from the box moves to the first result, Up/Down move between results, Escape returns
+  function links() { return Array.prototype.slice.call(list.querySelectorAll("a")); }
+  function move(event) {
+    var all = links();
+    var at = all.indexOf(document.activeElement);
+    if (event.key === "ArrowDown" && all.length > 0) {
+      all[Math.min(at + 1, all.length - 1)].focus();
+      event.preventDefault();
+    } else if (event.key === "ArrowUp" && at >= 0) {
+      (at === 0 ? input : all[at - 1]).focus();
+      event.preventDefault();
+    } else if (event.key === "Escape") {
+      input.focus();
+      if (at < 0) { input.value = ""; search(); }
+      event.preventDefault();
+    }
+  }
+
   input.addEventListener("input", search);
+  input.addEventListener("keydown", move);
+  list.addEventListener("keydown", move);
   form.addEventListener("submit", function (event) { event.preventDefault(); search(); });
 })();

@@ -1,0 +1,280 @@
+"""Languages of a collection: detection per document, stop words, Snowball stemmers, and words of scripts
+written without spaces.
+
+Sources: language detection is py3langid (a maintained fork of Lui and Baldwin's langid.py, 2012; its
+model ships inside the wheel, BSD-3-Clause); stop words other than English are the stopwords-iso lists
+(package stopwordsiso, MIT); English stop words stay scikit-learn's list, as before; Chinese words come
+from jieba's dictionary segmenter (MIT, dictionary inside the package); Japanese is read as character
+bigrams of kanji runs plus whole katakana runs, the common practice of information retrieval for CJK text
+(as Lucene's CJK bigram filter does). The heavy parts (the detection model, about 0.4 s and 100 MB; jieba,
+about 1 s and 70 MB) load only when a document needs them, so a pile in plain English loads neither.
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from collections import Counter
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass
+from functools import cache
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    import numpy as np
+
+UNDETERMINED = "und"  # ISO 639-2 code for "undetermined", used where detection is unsure
+# Languages with both a stop-word list (stopwords-iso) and a class in py3langid's model; `--language`
+# accepts these (tests/test_languages.py checks the tuple against both packages).
+SUPPORTED = (
+    "af", "ar", "bg", "bn", "br", "ca", "cs", "da", "de", "el", "en", "eo", "es", "et", "eu", "fa", "fi", "fr",
+    "ga", "gl", "gu", "ha", "he", "hi", "hr", "hu", "hy", "id", "it", "ja", "ko", "ku", "la", "lt", "lv", "mr",
+    "ms", "nl", "no", "pl", "pt", "ro", "ru", "sk", "sl", "so", "st", "sv", "sw", "th", "tl", "tr", "uk", "ur",
+    "vi", "yo", "zh", "zu",
+)
+# Snowball stemmers that nltk ships, by language code (nltk's SnowballStemmer.languages).
+SNOWBALL = {"ar": "arabic", "da": "danish", "de": "german", "en": "english", "es": "spanish", "fi": "finnish",
+            "fr": "french", "hu": "hungarian", "it": "italian", "nl": "dutch", "no": "norwegian",
+            "pt": "portuguese", "ro": "romanian", "ru": "russian", "sv": "swedish"}
+# Question particles of Turkish, written as separate words ("geldi mi"); stopwords-iso's Turkish list
+# lacks them (from memory of Turkish grammar).
+EXTRA_STOP_WORDS = {"tr": ("mi", "mı", "mu", "mü", "misin", "mısın", "musun", "müsün", "miyim", "mıyım")}
+
+DETECT_CHARS = 600  # the start of a text is read: about 0.7 ms per text at 2,000 characters, linear in length
+MIN_CONFIDENCE = 0.7  # below this (py3langid's normalized probability) a document's language is "und"
+MIN_LETTERS = 8  # fewer letters than this: too little to tell, "und"
+PRESENT_SHARE = 0.02  # a language's stop words are used when at least this share of documents is in it
+# A text is taken as English without the model when it is ASCII, has at least ENGLISH_MIN_WORDS words,
+# and scikit-learn's English stop words make at least ENGLISH_STOP_SHARE of them (English running text has
+# about 40-50% function words; German or Turkish text in ASCII has far fewer of these particular words).
+ENGLISH_MIN_WORDS = 5
+ENGLISH_STOP_SHARE = 0.2
+ENGLISH_FOREIGN_LETTERS = 0.05  # non-ASCII letters per word allowed ("café" in an English text)
+_ASCII_WORDS = re.compile(r"[a-z]+(?:'[a-z]+)?")
+_NON_ASCII_LETTER = re.compile(r"[^\W\d_a-zA-Z]")
+
+# Combining marks (Unicode categories Mn, Mc, Me) of the Basic Multilingual Plane: part of the word they
+# follow (decomposed accents, Arabic vowel signs, Devanagari vowel signs), never a break between words.
+COMBINING_MARKS = "".join(
+    chr(c) for c in range(0x300, 0x10000) if unicodedata.category(chr(c)).startswith("M")
+)
+_HAN = "\u3400-\u4dbf\u4e00-\u9fff\uf900-\ufaff"
+_HIRAGANA = "\u3041-\u309f"
+_KATAKANA = "\u30a0-\u30ff\u31f0-\u31ff\uff66-\uff9f"
+CJK = re.compile(f"[{_HAN}{_HIRAGANA}{_KATAKANA}]")
+_KANA = re.compile(f"[{_HIRAGANA}{_KATAKANA}]")
+_HIRAGANA_CHAR = re.compile(f"[{_HIRAGANA}]")
+_KATAKANA_CHAR = re.compile(f"[{_KATAKANA}]")
+_CJK_OR_OTHER = re.compile(f"[{_HAN}]+|[{_HIRAGANA}]+|[{_KATAKANA}]+|[^{_HAN}{_HIRAGANA}{_KATAKANA}]+")
+BREAK_ITEM = "|"  # stands between two CJK pieces that must not make a phrase (normalize drops it)
+
+
+@dataclass(frozen=True)
+class LanguageMix:
+    """Languages of a run's documents: per distinct text, for the collection and per cluster.
+
+    Attributes
+    ----------
+    of_text : tuple of str
+        The language code of every distinct text ("und" when unsure).
+    collection : tuple of (str, float)
+        Every language with its share of documents (copies counted), largest first.
+    clusters : tuple of tuple of (str, float)
+        The same per cluster.
+    forced : bool
+        True when --language set every document's language.
+    """
+
+    of_text: tuple[str, ...]
+    collection: tuple[tuple[str, float], ...]
+    clusters: tuple[tuple[tuple[str, float], ...], ...]
+    forced: bool
+
+    @property
+    def mixed(self) -> bool:
+        """True when more than one language (not counting "und") holds documents."""
+        return sum(1 for code, _ in self.collection if code != UNDETERMINED) > 1
+
+
+_identifier: Any = None
+
+
+def _model() -> Any:
+    """py3langid's identifier restricted to SUPPORTED, loaded on first use (about 0.4 s)."""
+    global _identifier
+    if _identifier is None:
+        from py3langid.langid import MODEL_FILE, LanguageIdentifier
+
+        identifier = LanguageIdentifier.from_model_file(MODEL_FILE, norm_probs=True)
+        identifier.set_languages(list(SUPPORTED))  # short texts are not read as a language we cannot serve
+        _identifier = identifier
+    return _identifier
+
+
+@cache
+def english_stop_words() -> frozenset[str]:
+    """scikit-learn's English stop words (imported on first use: `options` imports this module)."""
+    from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
+
+    return frozenset(ENGLISH_STOP_WORDS)
+
+
+def looks_english(text: str) -> bool:
+    """The cheap test that spares plain English piles the detection model (see ENGLISH_STOP_SHARE)."""
+    words = _ASCII_WORDS.findall(text.lower())
+    if len(words) < ENGLISH_MIN_WORDS or len(_NON_ASCII_LETTER.findall(text)) > ENGLISH_FOREIGN_LETTERS * len(words):
+        return False
+    stop = english_stop_words()
+    return sum(1 for w in words if w in stop or w.endswith("n't")) >= ENGLISH_STOP_SHARE * len(words)
+
+
+def _short_and_plain(text: str) -> bool:
+    """Too few words to tell, in ASCII letters only ("ok thanks", "test")."""
+    return len(_ASCII_WORDS.findall(text.lower())) < ENGLISH_MIN_WORDS and _NON_ASCII_LETTER.search(text) is None
+
+
+def detect_language(text: str) -> str:
+    """The ISO 639-1 code of `text`'s language, or "und" when the text is too short or the model unsure."""
+    sample = text[:DETECT_CHARS]
+    if looks_english(sample):
+        return "en"
+    if sum(1 for ch in sample if ch.isalpha()) < MIN_LETTERS:
+        return UNDETERMINED
+    code, probability = _model().classify(sample)
+    return str(code) if probability >= MIN_CONFIDENCE else UNDETERMINED
+
+
+def detect_languages(texts: Sequence[str], forced: str | None = None) -> tuple[str, ...]:
+    """The language of every text (`forced`, from --language, for all when given).
+
+    Texts that `looks_english` are English without the model. When every other text is short and in ASCII
+    letters, those are "und" and the model is never loaded: a plain English pile runs as fast as before
+    languages were detected. Otherwise every other text goes to the model (`detect_language`).
+    """
+    if forced is not None:
+        return (forced,) * len(texts)
+    codes = ["en" if looks_english(text[:DETECT_CHARS]) else "" for text in texts]
+    rest = [i for i, code in enumerate(codes) if not code]
+    if all(_short_and_plain(texts[i][:DETECT_CHARS]) for i in rest):
+        return tuple(code or UNDETERMINED for code in codes)
+    for i in rest:
+        codes[i] = detect_language(texts[i])
+    return tuple(codes)
+
+
+def shares(codes: Sequence[str], weights: np.ndarray) -> tuple[tuple[str, float], ...]:
+    """Every language with its weighted share, largest first (ties by code, for reproducible output)."""
+    total = float(weights.sum())
+    counts: Counter[str] = Counter()
+    for code, weight in zip(codes, weights.tolist(), strict=True):
+        counts[code] += weight
+    if total <= 0:
+        return ()
+    return tuple(sorted(((code, n / total) for code, n in counts.items()), key=lambda item: (-item[1], item[0])))
+
+
+def present_languages(codes: Sequence[str], weights: np.ndarray) -> tuple[str, ...]:
+    """Languages of at least PRESENT_SHARE of the documents ("und" left out), largest first."""
+    return tuple(code for code, share in shares(codes, weights) if code != UNDETERMINED and share >= PRESENT_SHARE)
+
+
+def language_mix(codes: Sequence[str], weights: np.ndarray, labels: np.ndarray, k: int, *,
+                 forced: bool) -> LanguageMix:
+    """Shares of languages for the collection and for each of the `k` clusters (`labels` per distinct text)."""
+    import numpy as np
+
+    per_cluster = []
+    for c in range(k):
+        rows = np.flatnonzero(labels == c)
+        per_cluster.append(shares([codes[int(i)] for i in rows], weights[rows]))
+    return LanguageMix(tuple(codes), shares(codes, weights), tuple(per_cluster), forced)
+
+
+def stop_words_for(languages: Sequence[str]) -> set[str]:
+    """scikit-learn's English list, plus the stopwords-iso list (and EXTRA_STOP_WORDS) of every other language."""
+    words = set(english_stop_words())
+    others = [code for code in languages if code not in ("en", UNDETERMINED)]
+    if others:
+        import stopwordsiso
+
+        for code in others:
+            words.update(word.lower() for word in stopwordsiso.stopwords(code))
+            words.update(EXTRA_STOP_WORDS.get(code, ()))
+    return words
+
+
+def script_of(word: str) -> str:
+    """"latin", "cyrillic", "arabic" or "other", from the word's first character (for choosing a stemmer)."""
+    point = ord(word[0])
+    if point < 0x250:
+        return "latin"
+    if 0x400 <= point < 0x530:
+        return "cyrillic"
+    if 0x600 <= point < 0x700 or 0x750 <= point < 0x780:
+        return "arabic"
+    return "other"
+
+
+def stemmers_by_script(languages: Sequence[str]) -> dict[str, str]:
+    """For each script, the Snowball language to stem its words with: the most common present language of
+    that script that Snowball has (English for Latin script when none is)."""
+    chosen = {"latin": "english"}
+    seen: set[str] = set()
+    for code in languages:  # largest first
+        name = SNOWBALL.get(code)
+        if name is None:
+            continue
+        script = {"ar": "arabic", "ru": "cyrillic"}.get(code, "latin")
+        if script not in seen:
+            chosen[script] = name
+            seen.add(script)
+    return chosen
+
+
+_jieba: Any = None
+
+
+def _jieba_tokenizer() -> Any:
+    """jieba's segmenter with its shipped dictionary, loaded on the first Chinese text (about 1 s)."""
+    global _jieba
+    if _jieba is None:
+        import logging
+
+        import jieba
+
+        logging.getLogger("jieba").setLevel(logging.WARNING)  # it prints its loading times otherwise
+        tokenizer = jieba.Tokenizer()
+        tokenizer.initialize()
+        _jieba = tokenizer
+    return _jieba
+
+
+def segment_cjk(run: str, offset: int, *, japanese: bool) -> Iterator[tuple[int, int, str]]:
+    """(start, end, item) of the words of a run of Han and kana characters that begins at `offset`.
+
+    Chinese (no kana in the text): jieba's words. Japanese: a kanji run of two characters is one word,
+    a longer one gives its overlapping character bigrams (kept apart by BREAK_ITEM so that they make no
+    phrases), a katakana run is one word (loanwords are written so), and a hiragana run (particles,
+    inflections) is a break.
+    """
+    if not japanese:
+        for word, start, end in _jieba_tokenizer().tokenize(run):
+            yield offset + start, offset + end, word
+        return
+    for piece in _CJK_OR_OTHER.finditer(run):
+        text, start = piece.group(), offset + piece.start()
+        first = text[0]
+        if _HIRAGANA_CHAR.match(first):
+            yield start, start + len(text), BREAK_ITEM
+        elif _KATAKANA_CHAR.match(first) or len(text) <= 2:
+            yield start, start + len(text), text
+        else:
+            for i in range(len(text) - 1):
+                if i:
+                    yield start + i, start + i, BREAK_ITEM
+                yield start + i, start + i + 2, text[i : i + 2]
+
+
+def has_kana(text: str) -> bool:
+    """True when `text` holds hiragana or katakana (then its Han characters are read as Japanese)."""
+    return _KANA.search(text) is not None
