@@ -51,7 +51,8 @@ def main() -> None:
                 labels[engine] = [int(r["cluster"]) for r in rows]
                 gold = [corpus.labels[int(r["doc_id"][1:])] for r in rows]
                 nmi = normalized_mutual_info_score(gold, labels[engine])
-                print(f"{args.corpus} seed {seed} {engine}: NMI {nmi:.3f} in {seconds:.1f} s ({len(rows)} documents, k={k})")
+                print(f"{args.corpus} seed {seed} {engine}: NMI {nmi:.3f} in {seconds:.1f} s "
+                      f"({len(rows)} documents, k={k})")
             print(f"{args.corpus} seed {seed}: ARI between engines "
                   f"{adjusted_rand_score(labels['local'], labels['spark']):.3f}")
 
