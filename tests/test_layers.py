@@ -3,7 +3,8 @@
 Stages, lowest first: ingest < vectors < clustering < describe < output (DEVELOPERS.md, "Architecture").
 Base modules (errors, model, progress, csvcells) may be imported by any module; they import only other
 base modules, except for annotations under ``typing.TYPE_CHECKING``. The top level (cli, pipeline,
-options, the package's ``__init__``/``__main__``, the demo generator and the assign command) may import
+options, the package's ``__init__``/``__main__``, the demo generator, the assign command and the Spark
+engine) may import
 anything. Imports are read with the standard library's ``ast`` module, so lazy imports inside functions count too.
 """
 
@@ -108,7 +109,7 @@ def test_every_module_sits_in_a_known_place() -> None:
     loose = {p.stem for p in PACKAGE.glob("*.py")} - top
     folders = {p.name for p in PACKAGE.iterdir() if p.is_dir() and (p / "__init__.py").is_file()}
     assert loose == set()
-    assert folders == set(STAGES) | {"demo", "assign"}
+    assert folders == set(STAGES) | {"demo", "assign", "engines"}
 
 
 @pytest.mark.parametrize(

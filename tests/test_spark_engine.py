@@ -80,9 +80,10 @@ def test_spark_agrees_with_the_local_engine_on_an_open_corpus(spark: Any, tmp_pa
     spark_labels = [int(row["cluster"]) for row in spark_rows]
     local_labels = [int(by_id[row["doc_id"]]["cluster"]) for row in spark_rows]
     gold = [corpus.labels[int(row["doc_id"][1:])] for row in spark_rows]
-    # Measured on this machine: ARI 1.000 between the engines, NMI 0.xx each (see docs/scale.md); the floors
+    # Measured on this machine, seeds 0-2: ARI 0.85-0.92 between the engines; NMI 0.69-0.77 on Spark against
+    # 0.67-0.70 locally (benchmarks/compare_engines.py, docs/scale.md); the floors
     # leave room for Spark's k-means|| start differing from scikit-learn's k-means++
-    assert adjusted_rand_score(local_labels, spark_labels) >= 0.8
+    assert adjusted_rand_score(local_labels, spark_labels) >= 0.75
     assert normalized_mutual_info_score(gold, spark_labels) >= normalized_mutual_info_score(gold, local_labels) - 0.05
     clusters = read_clusters(on_spark)
     assert clusters["documents"] == len(corpus.texts)
@@ -132,7 +133,7 @@ def test_a_column_that_does_not_exist_is_one_line(spark: Any, tmp_path: Path) ->
     source.write_text("id,body\n1,some text here\n2,other text there\n", encoding="utf-8")
     result = invoke("run", str(source), "--out", str(tmp_path / "o"), "--k", "2", "--engine", "spark",
                     "--text-column", "nope")
-    assert_one_line_error(result, "pilewise: error: --text-column 'nope' is not a column of t.csv; "
+    assert_one_line_error(result, "--text-column 'nope' is not a column of t.csv; "
                                   "pass one of: id, body")
 
 
@@ -153,7 +154,7 @@ def test_options_the_spark_engine_cannot_take_are_refused_before_spark_starts(
     source.write_text("id,body\n1,some text here\n", encoding="utf-8")
     engine = () if "--engine" in extra else ("--engine", "spark")
     result = invoke("run", str(source), "--out", str(tmp_path / "o"), *engine, *extra)
-    assert_one_line_error(result, f"pilewise: error: {message}")
+    assert_one_line_error(result, f"{message}")
 
 
 def test_without_pyspark_the_error_names_the_extra(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
@@ -161,6 +162,6 @@ def test_without_pyspark_the_error_names_the_extra(tmp_path: Path, monkeypatch: 
     source = tmp_path / "t.csv"
     source.write_text("id,body\n1,some text here\n", encoding="utf-8")
     result = invoke("run", str(source), "--out", str(tmp_path / "o"), "--k", "2", "--engine", "spark")
-    assert_one_line_error(result, "pilewise: error: the spark engine needs PySpark and a Java 17 runtime; install "
+    assert_one_line_error(result, "the spark engine needs PySpark and a Java 17 runtime; install "
                                   "them with pip install 'pilewise[spark]' and your system's Java 17 package "
                                   "(Debian: openjdk-17-jre-headless)")
