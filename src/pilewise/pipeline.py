@@ -136,8 +136,8 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
 
 def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
     """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    save_model(folder, result)  # first, so that the pages' list of files names it
     _write_run(folder, result, reporter)
-    save_model(folder, result)
 
 
 @dataclass(frozen=True)

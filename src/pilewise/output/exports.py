@@ -43,12 +43,15 @@ DATA_FILES: dict[str, str] = {
     "manifest.json": "settings, seed, library versions, input fingerprint, timings",
     "ingest-report.csv": "every file or row and what became of it",
     "boilerplate.csv": "lines removed as boilerplate before vectorizing, with how many texts hold each",
+    "model/model.json": "what `pilewise assign` needs besides numbers: vocabulary, settings, versions, cluster names",
+    "model/arrays.npz": "the numbers `pilewise assign` needs: idf, LSA directions, centroids, distance quantiles",
 }
 SITE_FILES: dict[str, str] = {
     "index.html": "the run's overview: every cluster on a card",
     "cluster-N.html": "a cluster's page: rule, terms, attributes, members nearest first",
     "cluster-N-members-N.html": "further pages of a cluster's members",
     "docs/dN.html": "a document's page, the cluster's terms marked",
+    "map.html": "a map of the documents (t-SNE of the clustering space), coloured by cluster",
     "levels.html": "coarser and finer cuts of the tree",
     "dendrogram.svg": "the figure of the top of the tree",
     "tree.html": "one decision tree for the whole clustering",
