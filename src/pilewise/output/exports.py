@@ -43,6 +43,8 @@ DATA_FILES: dict[str, str] = {
     "manifest.json": "settings, seed, library versions, input fingerprint, timings",
     "ingest-report.csv": "every file or row and what became of it",
     "boilerplate.csv": "lines removed as boilerplate before vectorizing, with how many texts hold each",
+    "assignments-parts/": "--engine spark: every document's assignment, CSV parts written by Spark (with its markers)",
+    "assignments-parquet/": "--engine spark: the assignments as Parquet parts written by Spark (with its markers)",
     "model/model.json": "what `pilewise assign` needs besides numbers: vocabulary, settings, versions, cluster names",
     "model/arrays.npz": "the numbers `pilewise assign` needs: idf, LSA directions, centroids, distance quantiles",
 }
@@ -66,6 +68,7 @@ SITE_FILES: dict[str, str] = {
     "search-index.js": "the words the search box looks in",
     ".pilewise": "the mark that pilewise wrote this folder (it replaces only folders so marked)",
 }
+SPARK_FOLDERS = ("assignments-parts/", "assignments-parquet/")
 LATE_FILES = ("comparisons.html", ".pilewise")  # written after the pages, when the run is moved into place
 REWRITTEN_LAST = ("manifest.json",)  # written again after the pages (its timings): its size is not listed
 
@@ -80,9 +83,15 @@ def file_key(relative: str) -> str:
     return re.sub(r"[0-9]+", "N", relative)
 
 
+def _group_key(relative: str) -> str:
+    """The key a file is listed under: a Spark output folder as a whole, else `file_key`."""
+    folder = relative.split("/", 1)[0] + "/"
+    return folder if folder in SPARK_FOLDERS else file_key(relative)
+
+
 def describe_file(relative: str) -> str:
     """What a file of a run folder is; "" for a file pilewise does not know (a test keeps this from happening)."""
-    key = file_key(relative)
+    key = _group_key(relative)  # Spark names its parts (and their checksum files) as it likes
     return DATA_FILES.get(key) or SITE_FILES.get(key, "")
 
 
@@ -97,7 +106,7 @@ def listed_files(folder: Path, *, data_only: bool = False, late: tuple[str, ...]
         if path.is_file():
             relative = path.relative_to(folder).as_posix()
             size = 0 if relative in REWRITTEN_LAST else path.stat().st_size  # pages stay byte-reproducible
-            found.setdefault(file_key(relative), []).append((relative, size))
+            found.setdefault(_group_key(relative), []).append((relative, size))
     for name in late:
         found.setdefault(file_key(name), [(name, 0)])
     order = list(DATA_FILES) + ([] if data_only else list(SITE_FILES))
