@@ -21,6 +21,8 @@ from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 from tests.helpers import assert_one_line_error, invoke, read, read_assignments, read_clusters, read_ingest_report
 from tests.open_sets import CorpusNotFetchedError, load_mini_newsgroups
 
+from pilewise.output.exports import describe_file
+
 pytestmark = pytest.mark.spark
 
 LICENCES = Path("/usr/share/common-licenses")
@@ -95,6 +97,11 @@ def test_spark_agrees_with_the_local_engine_on_an_open_corpus(spark: Any, tmp_pa
         for term in cluster["terms"]["chi2"][:5]:
             assert all(any(part in w for w in words) for part in term["term"].split()), term
     assert (on_spark / "index.html").is_file() and (on_spark / "cluster-00.html").is_file()
+    # the site is complete: every file the run wrote is one the pages describe (Spark's parts included)
+    written = [p.relative_to(on_spark).as_posix() for p in on_spark.rglob("*") if p.is_file()]
+    assert {"assignments.csv", "clusters.json", "model/arrays.npz"} <= set(written)
+    assert any(name.startswith("assignments-parquet/") and name.endswith(".parquet") for name in written)
+    assert [name for name in written if not describe_file(name)] == []
 
 
 def test_spark_reads_a_folder_of_real_files_like_the_local_reader(spark: Any, tmp_path: Path) -> None:
