@@ -99,7 +99,7 @@ def test_spark_agrees_with_the_local_engine_on_an_open_corpus(spark: Any, tmp_pa
     assert (on_spark / "index.html").is_file() and (on_spark / "cluster-00.html").is_file()
     # the site is complete: every file the run wrote is one the pages describe (Spark's parts included)
     written = [p.relative_to(on_spark).as_posix() for p in on_spark.rglob("*") if p.is_file()]
-    assert {"assignments.csv", "clusters.json", "model/arrays.npz"} <= set(written)
+    assert {"assignments.csv", "clusters.json", "model/arrays.npz", "members/cluster-00.csv"} <= set(written)
     assert any(name.startswith("assignments-parquet/") and name.endswith(".parquet") for name in written)
     assert [name for name in written if not describe_file(name)] == []
 

@@ -40,6 +40,7 @@ from pilewise.ingest.redact import redact_document
 from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Collection, Document, Ingested, Population
 from pilewise.options import RunOptions, check_k, kmeans_starts, table_delimiter
+from pilewise.output.exports import MemberFiles
 from pilewise.progress import Reporter
 from pilewise.vectors.languages import detect_languages, present_languages, shares
 from pilewise.vectors.text import Analyzer, load_stop_words
@@ -413,16 +414,21 @@ def _write_assignments(
                                     [*ASSIGNMENT_COLUMNS, *extra])
     escaped.write.option("header", True).option("escape", '"').csv(str(folder / "assignments-parts"))
     written = ["assignments-parquet", "assignments-parts"]
-    if n_docs <= SINGLE_CSV_UP_TO:
+    if n_docs <= SINGLE_CSV_UP_TO:  # also every cluster's members/cluster-NN.csv, as the other modes write
+        header = spreadsheet_row([*ASSIGNMENT_COLUMNS, *extra])
+        members = MemberFiles(folder, header, list(range(len(names))))
         with (folder / "assignments.csv").open("w", encoding="utf-8", newline="") as handle:
             writer = csv.writer(handle, lineterminator="\n")
-            writer.writerow(spreadsheet_row([*ASSIGNMENT_COLUMNS, *extra]))
+            writer.writerow(header)
             for _, row in joined.sortByKey().toLocalIterator():
-                writer.writerow(spreadsheet_row(row))
-        written.append("assignments.csv")
+                escaped = spreadsheet_row(row)
+                writer.writerow(escaped)
+                members.add(int(row[3]), escaped)
+        members.flush()
+        written += ["assignments.csv", "members"]
     else:
         reporter.say(f"{n_docs:,} documents: assignments are in assignments-parts/ and assignments-parquet/ only "
-                     f"(one assignments.csv up to {SINGLE_CSV_UP_TO:,})")
+                     f"(one assignments.csv and the per-cluster members/ files up to {SINGLE_CSV_UP_TO:,})")
     return written
 
 

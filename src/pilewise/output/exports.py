@@ -204,7 +204,7 @@ def write_document_tables(
     shown = [c.shown for c in result.naming.clusters]
     header = spreadsheet_row(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies",
                               *extra])
-    members = _MemberFiles(assignments.parent, header, [c.cluster_id for c in result.clusters])
+    members = MemberFiles(assignments.parent, header, [c.cluster_id for c in result.clusters])
     with assignments.open("w", encoding="utf-8", newline="") as handle, \
             cuts_path.open("w", encoding="utf-8", newline="") as cuts_handle:
         writer = csv.writer(handle, lineterminator="\n")
@@ -225,7 +225,7 @@ def write_document_tables(
     members.flush()
 
 
-class _MemberFiles:
+class MemberFiles:
     """members/cluster-NN.csv for every cluster, appended to in batches: memory and open files stay bounded."""
 
     def __init__(self, folder: Path, header: list[object], clusters: list[int]) -> None:

@@ -161,7 +161,9 @@ def render_run_site(
                 "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
                 "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
                 "listed": len(members),
-                "members_csv": members_csv_name(cluster.cluster_id),
+                # written with the assignments; a Spark run above its single-file cap has only Spark's parts
+                "members_csv": members_csv_name(cluster.cluster_id)
+                if (folder / members_csv_name(cluster.cluster_id)).is_file() else "",
                 "prev_cluster": _cluster_link(cards[position - 1]) if position > 0 else None,
                 "next_cluster": _cluster_link(cards[position + 1]) if position + 1 < len(cards) else None,
                 "up": "",
