@@ -194,8 +194,9 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         # streaming mode detects them on its first documents), or named by --language
         sampled_languages = detect_languages(sample_texts, options.language)
         present = present_languages(sampled_languages, np.ones(len(sample_texts))) or ("en",)
-        reporter.say(f"languages of a sample of {len(sample_texts):,} texts: " + ", ".join(
-            f"{code} {share:.0%}" for code, share in shares(sampled_languages, np.ones(len(sample_texts)))))
+        language_note = f"languages of a sample of {len(sample_texts):,} texts: " + ", ".join(
+            f"{code} {share:.0%}" for code, share in shares(sampled_languages, np.ones(len(sample_texts))))
+        reporter.say(language_note)
         boilerplate = NO_BOILERPLATE
         if options.boilerplate:
             boilerplate = find_boilerplate(sample_texts)
@@ -275,7 +276,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
     sample_note = (f"spark engine: {n_docs:,} documents clustered on Spark; pages describe a seeded sample of "
                    f"{n:,} distinct texts (with the {NEAREST_KEPT} nearest each centroid); sizes, terms and "
                    "assignments are of every document")
-    ingested = Ingested(sample_docs, read.entries, (*read.notes, sample_note), read.files_found)
+    ingested = Ingested(sample_docs, read.entries, (*read.notes, sample_note, language_note), read.files_found)
     reporter.say(sample_note)
     population = Population(
         documents=n_docs, texts=n_texts, skipped=sum(1 for e in read.entries if e.status == "skipped"),
