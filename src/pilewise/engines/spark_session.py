@@ -6,6 +6,7 @@ are checked here, and either missing is one line naming the fix.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 import shutil
@@ -75,8 +76,17 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
     scratch = _ship_code(session)
     try:
         yield session
+    except PilewiseError:
+        raise
+    except Exception as err:  # Py4J and Spark errors (a lost JVM, a failed job): one line, not a traceback
+        first = str(err).strip().splitlines()[0][:300] if str(err).strip() else type(err).__name__
+        raise PilewiseError(
+            f"Spark failed ({first}); if it ran out of memory, raise PILEWISE_SPARK_DRIVER_MEMORY (now "
+            f"{os.environ.get('PILEWISE_SPARK_DRIVER_MEMORY', '4g')}) or run on a cluster with --spark-master"
+        ) from None
     finally:
-        session.stop()
+        with contextlib.suppress(Exception):  # the JVM may already be gone; the error above says why
+            session.stop()
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
 
