@@ -8,6 +8,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from pilewise.errors import PilewiseError
+from pilewise.ingest.reading import ReadLimits
+from pilewise.ingest.tables import ColumnChoice
 from pilewise.vectors.languages import SUPPORTED
 
 # option name -> (lowest allowed, highest allowed, the CLI flag that sets it)
@@ -250,3 +252,13 @@ def check_k(k: int, distinct_documents: int, what: str = "distinct documents fou
             f"k={k} must be at least 2 and less than the {distinct_documents} {what}; "
             f"pass --k between 2 and {distinct_documents - 1}"
         )
+
+
+def reading_settings(options: RunOptions) -> tuple[ReadLimits, ColumnChoice]:
+    """The size limits and column choices that reading SOURCE takes from the options (every command that reads)."""
+    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars,
+                        follow_links=options.follow_links)
+    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column,
+                           delimiter=table_delimiter(options.delimiter) if options.delimiter else None,
+                           encoding=options.encoding, records_key=options.records_key)
+    return limits, columns

@@ -41,10 +41,9 @@ from pilewise.ingest.dedup import (
     near_duplicate_groups,
     strip_texts,
 )
-from pilewise.ingest.reading import ReadLimits, SourceStream, stream_source
+from pilewise.ingest.reading import SourceStream, stream_source
 from pilewise.ingest.redact import redact_document
 from pilewise.ingest.shelf import DocumentShelf
-from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Collection, Document, Ingested, Population, RunResult, fingerprint_record
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
@@ -52,7 +51,7 @@ from pilewise.options import (
     check_k,
     check_k_range,
     kmeans_starts,
-    table_delimiter,
+    reading_settings,
     validate,
 )
 from pilewise.output.exports import write_sweep_json
@@ -249,11 +248,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
     Large collections (--mode stream, or auto above STREAM_ABOVE_BYTES) go chunk by chunk through
     the streaming path, which needs `work`, a scratch folder.
     """
-    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars,
-                        follow_links=options.follow_links)
-    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column,
-                           delimiter=table_delimiter(options.delimiter) if options.delimiter else None,
-                           encoding=options.encoding, records_key=options.records_key)
+    limits, columns = reading_settings(options)
     source = stream_source(options.source, columns, limits)
     large = source.total_bytes >= STREAM_ABOVE_BYTES
     if options.mode == "stream" or (options.mode == "auto" and large):

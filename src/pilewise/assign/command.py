@@ -20,11 +20,10 @@ from pilewise.assign.placing import (
 from pilewise.assign.saved import SavedModel, load_model
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import strip_boilerplate
-from pilewise.ingest.reading import ReadLimits, read_source
+from pilewise.ingest.reading import read_source
 from pilewise.ingest.redact import display_text, redact_document
-from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Ingested
-from pilewise.options import RunOptions, table_delimiter, validate
+from pilewise.options import RunOptions, reading_settings, validate
 from pilewise.output.assigned_site import AssignedCluster, AssignedRow, Assignment, write_assigned_folder
 from pilewise.output.exports import build_time
 from pilewise.output.outfolder import claim_site, inside, name_lock, safe_name, writing_to
@@ -101,11 +100,7 @@ def assign_source(run: Path, reading: RunOptions, *, out: Path | None, name: str
 
 def _read(reading: RunOptions, model: SavedModel) -> Ingested:
     """SOURCE read as `run` reads it, redacted when the run was (the run's own setting)."""
-    limits = ReadLimits(int(reading.max_file_mb * 1024 * 1024), reading.max_doc_chars,
-                        follow_links=reading.follow_links)
-    columns = ColumnChoice(reading.text_column, reading.title_column, reading.id_column, reading.date_column,
-                           delimiter=table_delimiter(reading.delimiter) if reading.delimiter else None,
-                           encoding=reading.encoding, records_key=reading.records_key)
+    limits, columns = reading_settings(reading)
     ingested = read_source(reading.source, columns, limits)
     if len(ingested.documents) > reading.max_documents:
         raise PilewiseError(f"found {len(ingested.documents):,} documents, more than --max-documents "

@@ -35,11 +35,9 @@ from pilewise.engines.spark_reading import read_on_spark
 from pilewise.engines.spark_session import is_url
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, distinct_key, find_boilerplate, strip_texts
-from pilewise.ingest.reading import ReadLimits
 from pilewise.ingest.redact import redact_document
-from pilewise.ingest.tables import ColumnChoice
 from pilewise.model import Collection, Document, Ingested, Population
-from pilewise.options import RunOptions, check_k, kmeans_starts, table_delimiter
+from pilewise.options import RunOptions, check_k, kmeans_starts, reading_settings
 from pilewise.output.exports import MemberFiles
 from pilewise.progress import Reporter
 from pilewise.vectors.languages import detect_languages, present_languages, shares
@@ -164,10 +162,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
 
     keep = StorageLevel.MEMORY_AND_DISK
     source = spark_source(options)
-    columns = ColumnChoice(options.text_column, options.title_column, options.id_column, options.date_column,
-                           delimiter=table_delimiter(options.delimiter) if options.delimiter else None,
-                           encoding=options.encoding, records_key=options.records_key)
-    limits = ReadLimits(int(options.max_file_mb * 1024 * 1024), options.max_doc_chars)
+    limits, columns = reading_settings(options)  # links are Spark's to follow (follow_links unused)
     with reporter.stage("reading on Spark"):
         read = read_on_spark(spark, source, columns, limits)
         redact = options.redact
