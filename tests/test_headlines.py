@@ -56,6 +56,10 @@ def test_attribution_lines_and_cut_lines_are_not_titles(title: str, problem: str
     ("Meeting notes\nWe met on Tuesday and agreed on the plan.", False),
     ("Deputy oil ministers from six Gulf states\n\nThey will meet in Bahrain today.", False),
     ("The meeting ended.\nanother line", False),
+    # a Debian package description: a synopsis line, then lines that begin with a space (Debian Policy 5.6.13)
+    ("shared library for ATM (Asynchronous Transfer Mode)\n Shared libraries needed by ATM programs.", False),
+    # the same indentation on both lines is still wrapped text
+    ("  Deputy oil ministers from six Gulf\n  Arab states will meet in Bahrain today.", True),
 ])
 def test_a_first_line_runs_on_when_its_sentence_continues(text: str, expected: bool) -> None:
     assert runs_on(text, text.split("\n", 1)[0]) is expected

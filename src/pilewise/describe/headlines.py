@@ -189,15 +189,24 @@ def runs_on(text: str, title: str, *, wrapped: bool = False) -> bool:
     Tilney Plc> said it has purchased" / "80 pct of ..."), or the title line be as long as running text
     (RUN_ON_WORDS words or more: "Deputy oil ministers from six Gulf" / "Arab states will meet ..."). A short
     line followed by a capitalized one ("Meeting notes" / "We met ...") is taken as a title, unless the
-    collection's first lines are `wrapped` text (`first_lines_wrapped`): then any next line will do.
+    collection's first lines are `wrapped` text (`first_lines_wrapped`): then any next line will do. A next
+    line indented deeper than the first starts a block under it, and never continues it (a Debian package
+    description is a one-line synopsis followed by lines that begin with a space: Debian Policy 5.6.13).
     """
-    head, _, rest = text.lstrip().partition("\n")
+    raw_head, _, rest = text.lstrip("\r\n").partition("\n")
+    head = raw_head.strip()
     if not same_line(head, title) or head.rstrip().endswith((".", "!", "?", ":")):
         return False
-    following = rest.split("\n", 1)[0].strip()
-    if not following:
+    raw_following = rest.split("\n", 1)[0]
+    following = raw_following.strip()
+    if not following or _indent(raw_following) > _indent(raw_head):
         return False
     return wrapped or following[0].islower() or following[0].isdigit() or len(head.split()) >= RUN_ON_WORDS
+
+
+def _indent(line: str) -> int:
+    """Width of a line's leading white space, a tab counting as one."""
+    return len(line) - len(line.lstrip())
 
 
 def first_lines_wrapped(
