@@ -142,3 +142,15 @@ def test_a_title_with_a_redacted_address_is_still_recognised_as_the_first_line()
     assert "[e-mail]" not in text  # the placeholder form, as documents keep their texts
     title = "This package was debianized by Ann Example <[e-mail]> and is now"
     assert runs_on(text, title)
+
+
+def test_list_items_of_a_change_log_are_sentences_of_their_own() -> None:
+    # Debian changelog entries (Debian Policy 4.4): a "[ Name ]" line, then "  * " items, each wrapped over
+    # lines; an item's continuation lines belong to it, the next item starts a new sentence (common practice)
+    text = ("  [ Alex Packager ]\n  * Fix a crash when the cache is empty, which happened\n    on first start.\n"
+            "  * Update the standards version\n  - drop an old patch\n  2) build with the new compiler")
+    assert sentences(text) == ["[ Alex Packager ]",
+                               "Fix a crash when the cache is empty, which happened on first start.",
+                               "Update the standards version", "drop an old patch", "2) build with the new compiler"]
+    # a wrapped line that merely starts with a number is not a list item
+    assert sentences("Output rose\n1.5 pct in May.") == ["Output rose 1.5 pct in May."]

@@ -57,6 +57,7 @@ _RUNS_ON = re.compile(r"(?:[,;:-]|\b(?:a|an|and|at|by|for|from|in|into|of|on|or|
 _FRAGMENT_END = re.compile(r"[,;:]$")  # a list's introduction or an item of it, not a statement
 _CREDIT = re.compile(r"^(?:copyright\b|©|\(c\)\s)", re.IGNORECASE)
 _YEAR = re.compile(r"\b(?:19|20)\d\d\b")
+_BULLET = re.compile(r"^\s*(?:[*\u2022+]|-(?!-)|\d{1,2}[.)])\s+\S|^\s*\[[^\]]{1,60}\]\s*$")  # "* item", "[ Name ]"
 _LONE_DOT = re.compile(r"^\s*\.\s*$")  # a paragraph break in Debian control-style files (copyright files)
 
 
@@ -135,7 +136,8 @@ def sentences(text: str) -> list[str]:
     """Sentences of a text: paragraphs (split at blank lines) with their lines joined, split after . ! ?
 
     A line that is a heading (upper case only, as "NAME" or "SYNOPSIS" in manual pages) or a header field
-    ("Upstream-Name: foo") stands alone, and leading bullets and dashes are cut.
+    ("Upstream-Name: foo") stands alone, a list item ("* fix ...", "- add ...", "2) ...") or a bracketed label
+    line ("[ A. Person ]") begins a new sentence, and leading bullets and dashes are cut.
     """
     out: list[str] = []
     for paragraph in _PARAGRAPH.split(text):
@@ -155,6 +157,8 @@ def _units(paragraph: str) -> list[str]:
             units.append([])  # "In article <id>, someone writes:" says who, not what; " ." ends a paragraph
         elif _HEADING.match(stripped) or _FIELD.match(stripped):
             units.extend([[stripped], []])
+        elif _BULLET.match(line):
+            units.append([line])  # a list item begins its own sentence (change logs, release notes)
         else:
             units[-1].append(line)
     return [_BROKEN_WORD.sub(r"\1", "\n".join(u)) for u in units if u]
