@@ -354,6 +354,9 @@ def _parquet_rows(path: Path, report: TableReport) -> Iterator[Sequence[Cell]]:
             yield from (list(record) for record in zip(*(batch.column(i).to_pylist() for i in keep), strict=True))
 
 
+FLATTEN_DEPTH = 3  # levels of nested objects spread into dotted columns; deeper ones stay one JSON cell
+
+
 def _json_rows(path: Path, rel: str, choice: ColumnChoice, report: TableReport) -> Iterator[Sequence[Cell]]:
     """Rows of a JSON array of records, of arrays, or of an object holding records (see `_find_records`)."""
     # One JSON value has to be parsed whole, so this format is not streamed; JSON Lines is.
@@ -368,7 +371,7 @@ def _json_rows(path: Path, rel: str, choice: ColumnChoice, report: TableReport) 
     if records and all(isinstance(r, list) for r in records):
         yield from _array_rows(records, rel, report)
         return
-    dicts = [r if isinstance(r, dict) else {"text": r} for r in records]
+    dicts = [flat_record(r) if isinstance(r, dict) else {"text": r} for r in records]
     header = list(dict.fromkeys(key for record in dicts for key in record))
     yield header
     for record in dicts:
@@ -725,7 +728,26 @@ def _json_records(
             report.entries.append(IngestEntry(f"{rel}#line{line_number}", "skipped", "invalid JSON", "not an object"))
             yield line_number, None
             continue
-        yield line_number, value
+        yield line_number, flat_record(value)
+
+
+def flat_record(record: dict[str, Any], depth: int = FLATTEN_DEPTH) -> dict[str, Any]:
+    """A JSON record with its nested objects spread into dotted columns: {"a": {"b": 1}} -> {"a.b": 1}.
+
+    API exports nest the fields of a record ("attributes": {"subject": ..., "body": ...}); each nested field
+    becomes a column of its own (as pandas.json_normalize names them), so that the text, title and date columns
+    can be found and chosen by name ("--text-column attributes.body"). Lists stay one cell. An object whose
+    dotted names would clash with a key already present, or one nested deeper than `depth`, stays one cell.
+    """
+    flat: dict[str, Any] = {}
+    for key, value in record.items():
+        inner = flat_record(value, depth - 1) if isinstance(value, dict) and value and depth > 0 else None
+        dotted = {f"{key}.{k}": v for k, v in inner.items()} if inner is not None else None
+        if dotted is None or any(k in record or k in flat for k in dotted):
+            flat[key] = value
+        else:
+            flat.update(dotted)
+    return flat
 
 
 def _text_lines(
@@ -825,7 +847,7 @@ def _choose_columns(
         if name is not None and name not in columns:
             raise PilewiseError(f"{flag} {name!r} is not a column of {rel}; pass one of: {listing}")
     notes: list[str] = []
-    lower = {c.lower(): c for c in columns}
+    lower = _names_for_guessing(columns)
     text_col = choice.text
     if text_col is None:
         named = [lower[n] for n in TEXT_NAMES if n in lower]
@@ -852,6 +874,18 @@ def _choose_columns(
             notes.append(f"guessed id column {id_col!r}")
     date_col = guess(choice.date, DATE_NAMES, "date")
     return text_col, title_col, id_col, date_col, notes
+
+
+def _names_for_guessing(columns: list[str]) -> dict[str, str]:
+    """Lower-cased column names to columns; a nested field ("attributes.subject") also answers to its last part
+    ("subject") when no other column has that name or that last part."""
+    lower = {c.lower(): c for c in columns}
+    leaves: dict[str, list[str]] = {}
+    for column in columns:
+        if "." in column:
+            leaves.setdefault(column.lower().rsplit(".", 1)[1], []).append(column)
+    lower.update({leaf: found[0] for leaf, found in leaves.items() if len(found) == 1 and leaf not in lower})
+    return lower
 
 
 def _cell_length(value: Cell) -> int:
