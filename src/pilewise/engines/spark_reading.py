@@ -9,6 +9,7 @@ few: skipped files and rows, notes), documents stay on Spark.
 
 from __future__ import annotations
 
+import json
 import posixpath
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
@@ -19,7 +20,7 @@ from urllib.parse import urlparse
 from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import first_line_title
 from pilewise.ingest.reading import HTML_SUFFIXES, MAIL_SUFFIXES, TEXT_SUFFIXES, ReadLimits, document_from_bytes
-from pilewise.ingest.tables import SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
+from pilewise.ingest.tables import FLATTEN_DEPTH, SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
 from pilewise.model import Document, IngestEntry
 
 TABLE_KINDS = {".csv": "csv", ".tsv": "csv", ".jsonl": "json", ".ndjson": "json", ".json": "json",
@@ -77,9 +78,10 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     except Exception as err:  # Spark's analysis errors: a path that does not exist, a file it cannot parse
         first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
         raise PilewiseError(f"Spark could not read {source!r} ({first}); check the path and its format") from None
+    frame = flat_frame(frame)
     corrupt = "_corrupt_record" in frame.columns
     header = [c for c in frame.columns if c != "_corrupt_record"]
-    first_rows = frame.select(*header).limit(SAMPLE_ROWS).collect()
+    first_rows = frame.select(*(_quoted(c) for c in header)).limit(SAMPLE_ROWS).collect()
     sample: list[Sequence[object]] = [[_cell(row[c]) for c in header] for row in first_rows]
     try:
         text_col, title_col, id_col, date_col, guesses = _choose_columns(header, sample, rel, choice)
@@ -88,7 +90,7 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     wanted = [text_col, title_col, id_col, date_col]
     extra = [c for c in header if c not in wanted]
     picked = [c for c in wanted if c is not None] + extra + (["_corrupt_record"] if corrupt else [])
-    rows = frame.select(*picked).rdd.zipWithIndex()
+    rows = frame.select(*(_quoted(c) for c in picked)).rdd.zipWithIndex()
     layout = _Layout(rel, text_col, title_col, id_col, date_col, tuple(extra), corrupt, limits.max_doc_chars)
     made = rows.mapPartitions(layout.documents)
     documents = _unique_ids(made.filter(lambda item: item[0] == "doc").map(lambda item: item[1]))
@@ -99,13 +101,50 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     return SparkSource(documents, (summary, *entries), tuple(notes), 1)
 
 
+def flat_frame(frame: Any, depth: int = FLATTEN_DEPTH) -> Any:
+    """The frame with its struct columns spread into dotted columns ("attributes.body"), as the local reader
+    spreads nested JSON objects (`tables.flat_record`), so that both engines see the same columns."""
+    from pyspark.sql import functions as F  # noqa: N812 (Spark's own convention)
+    from pyspark.sql.types import StructType
+
+    def leaves(path: list[str], kind: Any, left: int) -> list[list[str]]:
+        if isinstance(kind, StructType) and kind.fields and left > 0:
+            return [leaf for field in kind.fields for leaf in leaves([*path, field.name], field.dataType, left - 1)]
+        return [path]
+
+    paths = [leaf for field in frame.schema.fields for leaf in leaves([field.name], field.dataType, depth)]
+    names = [".".join(path) for path in paths]
+    if len(set(names)) < len(names) or len(paths) == len(frame.columns):
+        return frame  # nothing nested, or dotted names that would clash: columns stay as they are
+    return frame.select(*(F.col(".".join(f"`{part}`" for part in path)).alias(name)
+                          for path, name in zip(paths, names, strict=True)))
+
+
+def _quoted(column: str) -> str:
+    """A column name as Spark's select takes it literally (a dot would otherwise mean a struct field)."""
+    return f"`{column}`"
+
+
 def _cell(value: Any) -> str:
     """A cell as text, as the local table reader shows it: None empty, nested values as their text."""
     if value is None:
         return ""
     if isinstance(value, bytes | bytearray):
         return bytes(value).decode("utf-8", errors="replace")
+    if isinstance(value, list | tuple | dict):  # arrays, deeper structs (Row is a tuple), maps: JSON, never a repr
+        return json.dumps(_plain(value), ensure_ascii=False, default=str)
     return str(value)
+
+
+def _plain(value: Any) -> Any:
+    """Spark's nested values as plain JSON-ready Python: a Row as a dict, arrays as lists."""
+    if hasattr(value, "asDict"):
+        return {k: _plain(v) for k, v in value.asDict().items()}
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_plain(v) for v in value]
+    return value
 
 
 @dataclass(frozen=True)
