@@ -70,6 +70,7 @@ def measure(name: str, csv_path: Path, out: Path, k: int) -> tuple[float, float,
         time.sleep(0.2)
     seconds = time.perf_counter() - start
     _, err = child.communicate()
+    (out / f"{name}.stderr.log").write_bytes(err)  # kept whole: a failed run is diagnosed from it
     if child.returncode != 0:
         raise SystemExit(f"{name} failed:\n{err.decode(errors='replace')[-3000:]}")
     return seconds, peak, out / "runs" / name / "assignments.csv"
