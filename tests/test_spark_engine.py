@@ -318,12 +318,14 @@ def test_cuts_on_spark_give_every_document_its_group_at_each_level(dated_runs: t
     assert len(cuts) == documents == len(assignments)  # one row per document, none lost or merged
     assert [row["doc_id"] for row in cuts] == [row["doc_id"] for row in assignments]
     assert list(cuts[0]) == ["doc_id", "k2", "k3"]  # --k-min 2 (the default) up to the run's k
-    assert [row["k3"] for row in cuts] == [row["cluster"] for row in assignments]  # the finest cut is the run
-    # each coarser group is the one levels.json says holds the document's cluster (its run_clusters)
+    # the cut at the run's k is the run's clusters, numbered as the levels number them: one group per cluster
+    assert len({(row["k3"], a["cluster"]) for row, a in zip(cuts, assignments, strict=True)}) == 3
+    # every group is the one levels.json says holds the document's cluster (its run_clusters)
     levels = json.loads((on_spark / "levels.json").read_text(encoding="utf-8"))
     group_of = {(level["k"], run): c["id"] for level in levels["levels"] for c in level["clusters"]
                 for run in c["run_clusters"]}
-    assert all(int(row["k2"]) == group_of[(2, int(a["cluster"]))] for row, a in zip(cuts, assignments, strict=True))
+    for k in (2, 3):
+        assert [int(row[f"k{k}"]) for row in cuts] == [group_of[(k, int(a["cluster"]))] for a in assignments]
     parts = sorted((on_spark / "cuts-parts").glob("part-*.csv"))
     part_rows = [row for part in parts for row in csv.DictReader(part.open(encoding="utf-8", newline=""))]
     assert sorted(row["doc_id"] for row in part_rows) == sorted(row["doc_id"] for row in cuts)

@@ -18,11 +18,12 @@ import contextlib
 import csv
 import hashlib
 import heapq
+import itertools
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 import scipy.sparse as sp
@@ -57,10 +58,13 @@ from pilewise.vectors.tfidf import (
     tfidf_rows,
 )
 
+T = TypeVar("T")
 SAMPLE_TEXTS = 20_000  # distinct texts brought back to describe, assess, explain and page (seeded)
 NEAREST_KEPT = 50  # members nearest each centroid brought back, from the whole collection
 BOILERPLATE_SAMPLE = 20_000  # texts boilerplate lines are looked for in (the streaming mode's first chunk)
 SINGLE_CSV_UP_TO = 2_000_000  # documents up to which assignments.csv is also written as one file
+BATCH_ROWS = 10_000  # texts an executor's Python worker tokenizes or projects at once
+DOCS_PER_PARTITION = 50_000  # documents per partition of the distinct texts at most (1,000,000: 20 partitions)
 KMEANS_MAX_ITER = 100  # Spark ML's default is 20; the local engine runs to convergence (scikit-learn: 300)
 
 
@@ -108,14 +112,14 @@ class _Tokenize:
 
     def bags(self, rows: Iterable[tuple[bytes, tuple[int, str, int]]]) -> Iterator[Bag]:
         analyzer = Analyzer(stop_words=self.stop_words, stem=self.stem, languages=self.languages)
-        batch = list(rows)
-        texts = [text for _, (_, text, _) in batch]
-        if self.boilerplate.lines:
-            texts = strip_texts(texts, self.boilerplate).texts
-        for (key, (seq, _, copies)), text in zip(batch, texts, strict=True):
-            bag = Counter(analyzer.terms(text))
-            bag.update(analyzer.phrases(text))
-            yield key, seq, copies, dict(bag)
+        for batch in batches(rows):
+            texts = [text for _, (_, text, _) in batch]
+            if self.boilerplate.lines:
+                texts = strip_texts(texts, self.boilerplate).texts
+            for (key, (seq, _, copies)), text in zip(batch, texts, strict=True):
+                bag = Counter(analyzer.terms(text))
+                bag.update(analyzer.phrases(text))
+                yield key, seq, copies, dict(bag)
 
 
 @dataclass(frozen=True)
@@ -128,20 +132,28 @@ class _Project:
     svd: TruncatedSVD
 
     def rows(self, bags: Iterable[tuple[bytes, int, int, dict[str, int]]]) -> Iterator[tuple[Any, ...]]:
-        batch = []
-        for key, seq, copies, bag in bags:
-            pairs = sorted((self.column_of[t], n) for t, n in bag.items() if t in self.column_of)
-            batch.append((key, seq, copies, np.array([c for c, _ in pairs], dtype=np.int32),
-                          np.array([n for _, n in pairs], dtype=np.int32)))
-        if not batch:
-            return
-        vectors = self.vectors([(cols, counts) for _, _, _, cols, counts in batch])
-        for (key, seq, copies, cols, counts), vector in zip(batch, vectors, strict=True):
-            yield key, seq, copies, cols, counts, vector
+        for chunk in batches(bags):
+            batch = [(key, seq, copies, *_counted(bag, self.column_of)) for key, seq, copies, bag in chunk]
+            vectors = self.vectors([(cols, counts) for _, _, _, cols, counts in batch])
+            for (key, seq, copies, cols, counts), vector in zip(batch, vectors, strict=True):
+                yield key, seq, copies, cols, counts, vector
 
     def vectors(self, rows: list[tuple[np.ndarray, np.ndarray]]) -> np.ndarray:
         in_space = space_matrix(rows, self.space_position, int(self.idf.size))
         return normalize(self.svd.transform(tfidf_rows(in_space, self.idf)))
+
+
+def batches(rows: Iterable[T]) -> Iterator[list[T]]:
+    """A partition's rows in lists of BATCH_ROWS: an executor's Python worker holds one batch, not a partition."""
+    iterator = iter(rows)
+    while batch := list(itertools.islice(iterator, BATCH_ROWS)):
+        yield batch
+
+
+def data_partitions(n_docs: int, default: int) -> int:
+    """Partitions of the distinct texts: at least Spark's default parallelism, and no more than
+    DOCS_PER_PARTITION documents in one (a task's memory stays bounded as the collection grows)."""
+    return max(default, -(-n_docs // DOCS_PER_PARTITION))
 
 
 def space_matrix(rows: list[tuple[np.ndarray, np.ndarray]], space_position: np.ndarray, width: int) -> sp.csr_matrix:
@@ -178,7 +190,8 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         if n_docs == 0:
             raise PilewiseError(f"no documents found in {source!r}; see the ingest report, or pass --text-column")
         texts = (documents.map(lambda item: (text_key(item[1].text), (item[0], item[1].text, 1)))
-                 .reduceByKey(_first_text).persist(keep))
+                 .reduceByKey(_first_text, data_partitions(n_docs, spark.sparkContext.defaultParallelism))
+                 .persist(keep))
         n_texts = texts.count()
         reporter.say(f"{n_docs:,} documents ({n_texts:,} distinct texts) read on Spark; "
                      f"{sum(1 for e in read.entries if e.status == 'skipped'):,} files or rows skipped")
@@ -273,8 +286,8 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
                             distances=np.array([row[7] for row in rows]), inertia=cost)
     collection = Collection(sample_docs, np.arange(n), np.arange(n), copies)
     sample_note = (f"spark engine: {n_docs:,} documents clustered on Spark; pages describe a seeded sample of "
-                   f"{n:,} distinct texts (with the {NEAREST_KEPT} nearest each centroid); sizes, terms and "
-                   "assignments are of every document")
+                   f"{n:,} distinct texts (with the {NEAREST_KEPT} nearest each centroid); sizes, terms, trends "
+                   "and assignments are of every document")
     ingested = Ingested(sample_docs, read.entries, (*read.notes, sample_note, language_note), read.files_found)
     reporter.say(sample_note)
     population = Population(
