@@ -65,33 +65,38 @@ def tree_rss_mb(root: int) -> float:
     return total / 1e6
 
 
-def stage_costs(log: Path) -> list[tuple[str, int, float, float]]:
-    """Per stage of a Spark event log: (name, tasks, summed task run time s, longest task s), most costly first.
+def stage_costs(logs: list[Path]) -> list[tuple[str, int, float, float]]:
+    """Per stage of one application's Spark event log files: (name, tasks, summed task run time s, longest task
+    s), most costly first.
 
     Task run time is the "Executor Run Time" of each SparkListenerTaskEnd (wall time of the task, Python worker
     included); a stage run again (a recomputed RDD) counts each time."""
     names: dict[int, str] = {}
     tasks: dict[int, list[float]] = {}
-    with log.open(encoding="utf-8") as events:
-        for line in events:
-            event = json.loads(line)
-            if event.get("Event") == "SparkListenerStageCompleted":
-                info = event["Stage Info"]
-                names[info["Stage ID"]] = info["Stage Name"]
-            elif event.get("Event") == "SparkListenerTaskEnd" and event.get("Task Metrics"):
-                tasks.setdefault(event["Stage ID"], []).append(event["Task Metrics"]["Executor Run Time"] / 1000)
+    for log in logs:
+        with log.open(encoding="utf-8") as events:
+            for line in events:
+                event = json.loads(line)
+                if event.get("Event") == "SparkListenerStageCompleted":
+                    info = event["Stage Info"]
+                    names[info["Stage ID"]] = info["Stage Name"]
+                elif event.get("Event") == "SparkListenerTaskEnd" and event.get("Task Metrics"):
+                    tasks.setdefault(event["Stage ID"], []).append(event["Task Metrics"]["Executor Run Time"] / 1000)
     rows = [(f"{stage}: {names.get(stage, '?')}", len(times), sum(times), max(times)) for stage, times in tasks.items()]
     return sorted(rows, key=lambda row: -row[2])
 
 
 def print_stage_costs(log_dir: Path, documents: int) -> None:
-    """The task times of the newest event log in `log_dir`, by stage, and per document."""
-    logs = sorted((path for path in log_dir.iterdir() if path.is_file()), key=lambda path: path.stat().st_mtime)
-    if not logs:
+    """The task times of the newest application in `log_dir` (a file, or Spark 4's eventlog_v2_* folder of
+    events_* files), by stage, and per document."""
+    apps = sorted(log_dir.iterdir(), key=lambda path: path.stat().st_mtime)
+    if not apps:
         return
-    rows = stage_costs(logs[-1])
+    app = apps[-1]
+    files = sorted(app.glob("events_*")) if app.is_dir() else [app]
+    rows = stage_costs(files)
     total = sum(row[2] for row in rows)
-    print(f"\nevent log {logs[-1].name}: {len(rows)} stages, {sum(r[1] for r in rows):,} tasks, "
+    print(f"\nevent log {app.name}: {len(rows)} stages, {sum(r[1] for r in rows):,} tasks, "
           f"{total:.1f} s of task time ({1000 * total / documents:.3f} ms a document)")
     print("| stage | tasks | task time s | longest task s |")
     print("|---|---:|---:|---:|")
@@ -104,7 +109,8 @@ def measure(name: str, csv_path: Path, out: Path, k: int,
     env = dict(os.environ)
     if event_log is not None and name.startswith("spark"):
         event_log.mkdir(parents=True, exist_ok=True)
-        env["PYSPARK_SUBMIT_ARGS"] = (f"--conf spark.eventLog.enabled=true --conf spark.eventLog.dir="
+        env["PYSPARK_SUBMIT_ARGS"] = (f"--conf spark.eventLog.enabled=true --conf spark.eventLog.compress=false "
+                                      f"--conf spark.eventLog.dir="
                                       f"{event_log.resolve().as_uri()} pyspark-shell")
     command = [sys.executable, "-m", "pilewise.cli", "run", str(csv_path), "--k", str(k), "--out", str(out),
                "--name", name, "--quiet", *RUNS[name]]
