@@ -180,10 +180,13 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
     with reporter.stage("reading on Spark"):
         read = read_on_spark(spark, source, columns, limits)
         redact = options.redact
-        marked = read.documents.map(lambda item: _redacted(item, redact)).persist(keep)
+        n_docs = read.count if read.count is not None else read.documents.count()
+        # a CSV with quoted line breaks is one partition per file (Spark cannot split it): spread the documents
+        # before anything is kept, so that no task or cached block holds the whole file
+        marked = (read.documents.repartition(data_partitions(n_docs, spark.sparkContext.defaultParallelism))
+                  .map(lambda item: _redacted(item, redact)).persist(keep))
         documents = marked.map(lambda row: (row[0], row[1]))
         redacted = marked.map(lambda row: row[2]).filter(bool).fold({}, _add_counts)
-        n_docs = documents.count()
         if n_docs > options.max_documents:
             raise PilewiseError(f"found {n_docs:,} documents, more than --max-documents {options.max_documents:,}; "
                                 "raise --max-documents or point SOURCE at fewer files")
