@@ -17,7 +17,7 @@ if TYPE_CHECKING:  # stage types for annotations only: model stays importable by
     from pilewise.describe.names import Naming
     from pilewise.describe.profiles import ClusterProfile, MetadataAnalysis
     from pilewise.describe.rules import RuleSet
-    from pilewise.describe.trends import Trends
+    from pilewise.describe.trends import DatedCounts, Trends
     from pilewise.ingest.dedup import Boilerplate
     from pilewise.options import RunOptions
     from pilewise.vectors.languages import LanguageMix
@@ -161,14 +161,17 @@ class Collection:
 class Population:
     """The whole collection when the pages describe a sample of it (the Spark engine).
 
-    `write_assignments(folder, cluster_names)` writes every document's assignment into the run's folder
-    (on the engine that holds the documents) and returns the names of what it wrote.
+    `write_assignments(folder, cluster_names, groups)` writes every document's assignment into the run's
+    folder (on the engine that holds the documents), and its cluster at every cut of the levels when
+    `groups` maps each cut k to the group of every run cluster; it returns the names of what it wrote.
+    `dated` holds every document counted per (day, cluster), for the trends of the whole collection.
     """
 
     documents: int
     texts: int
     skipped: int
-    write_assignments: Callable[[Path, list[str]], list[str]]
+    write_assignments: Callable[[Path, list[str], dict[int, list[int]]], list[str]]
+    dated: DatedCounts | None = None
 
 
 @dataclass(frozen=True)

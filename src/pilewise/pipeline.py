@@ -30,7 +30,7 @@ from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_
 from pilewise.describe.rules import explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
-from pilewise.describe.trends import Trends, cluster_trends
+from pilewise.describe.trends import Trends, cluster_trends, counted_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
     NO_BOILERPLATE,
@@ -417,7 +417,8 @@ def compute_run(
         prepared = Prepared(on_spark.ingested, on_spark.collection, on_spark.analyzer, on_spark.vectors,
                             on_spark.collection.copies.astype(float), on_spark.boilerplate, on_spark.redacted,
                             on_spark.fingerprint)
-        k = k_min = k_max = options.k
+        k = k_max = options.k
+        k_min = min(options.k_min, k)  # the levels: cuts of the tree over the k centroids, as for k-means runs
         clustering, totals = on_spark.clustering, on_spark.totals
     else:
         prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k,
@@ -481,8 +482,11 @@ def _described(
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
-                              mixed=[c.mixed for c in clusters])
+        mixed = [c.mixed for c in clusters]
+        if population is not None and population.dated is not None:  # counted over every document on Spark
+            trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period, mixed)
+        else:
+            trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     with reporter.stage("explaining"):

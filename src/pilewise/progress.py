@@ -22,8 +22,9 @@ class Reporter:
         self._tty = sys.stderr.isatty()
 
     def say(self, message: str) -> None:
-        if not self.quiet:
-            print(f"pilewise: {message}", file=sys.stderr, flush=True)
+        if not self.quiet:  # one write, line and end together: Spark's progress lines come from another thread
+            sys.stderr.write(f"pilewise: {message}\n")
+            sys.stderr.flush()
 
     def warn(self, message: str) -> None:
         """A warning is printed even when quiet."""

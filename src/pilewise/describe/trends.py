@@ -191,6 +191,31 @@ def fitted_share_change(counts: np.ndarray, totals: np.ndarray) -> float:
     return slope * float(held[-1] - held[0]) / pooled
 
 
+@dataclass(frozen=True)
+class DatedCounts:
+    """Documents counted per (day, cluster), as an engine that holds the documents elsewhere counts them.
+
+    ``counts[i]`` documents of cluster ``labels[i]`` carry the day ``days[i]`` (numpy datetime64[D]); a
+    (day, cluster) pair may appear more than once (the counts are added).
+    """
+
+    days: np.ndarray
+    labels: np.ndarray
+    counts: np.ndarray
+    undated: int  # documents without a date
+    unreadable: int  # documents whose date could not be read
+
+
+def day_counts(dates: Sequence[str], labels: np.ndarray) -> DatedCounts:
+    """The dated documents of `dates` (with `labels`) counted per (day, cluster) by `parse_dates`; the Spark
+    engine runs this on each partition and adds the counts (the same parsing as `cluster_trends`)."""
+    days, undated, unreadable = parse_dates(dates)
+    known = ~np.isnat(days)
+    pairs = np.column_stack([days[known].astype(np.int64), np.asarray(labels, dtype=np.int64)[known]])
+    cells, counts = np.unique(pairs.reshape(-1, 2), axis=0, return_counts=True)
+    return DatedCounts(cells[:, 0].astype("datetime64[D]"), cells[:, 1], counts.astype(np.int64), undated, unreadable)
+
+
 def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None,
                    mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and a trend reading for each of the k clusters; None when no date can be read.
@@ -200,16 +225,25 @@ def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str
     """
     days, undated, unreadable = parse_dates(dates)
     known = ~np.isnat(days)
-    if not known.any():
+    dated = DatedCounts(days[known], np.asarray(labels)[known], np.ones(int(known.sum()), dtype=np.int64),
+                        undated, unreadable)
+    return counted_trends(dated, k, period, mixed)
+
+
+def counted_trends(dated: DatedCounts, k: int, period: str | None = None,
+                   mixed: Sequence[bool] = ()) -> Trends | None:
+    """`cluster_trends` from documents already counted per (day, cluster); None when none is dated."""
+    held = np.asarray(dated.counts) > 0
+    days, cluster_of, weight = dated.days[held], np.asarray(dated.labels)[held], np.asarray(dated.counts)[held]
+    if not held.any():
         return None
     chosen_by = "--period" if period else "span"
-    period = period or choose_period(days[known].min(), days[known].max())
-    starts_of_docs = period_starts(days[known], period)
+    period = period or choose_period(days.min(), days.max())
+    starts_of_docs = period_starts(days, period)
     starts = _all_starts(starts_of_docs.min(), starts_of_docs.max(), period)
     position = np.searchsorted(starts, starts_of_docs)
-    cluster_of = np.asarray(labels)[known]
     table = np.zeros((k, starts.size), dtype=np.int64)
-    np.add.at(table, (cluster_of, position), 1)
+    np.add.at(table, (cluster_of, position), weight)
     totals = table.sum(axis=0)
     latest = slice(starts.size - max(1, math.ceil(starts.size / 4)), None)
     background = totals[latest].sum() / max(1, totals.sum())
@@ -220,8 +254,8 @@ def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str
     adjusted = dict(zip(tests, adjust_p_values([p for _, p in tests.values()]), strict=True))
     clusters = []
     for c in range(k):
-        dated = int(table[c].sum())
-        latest_share = float(table[c, latest].sum() / dated) if dated else 0.0
+        members = int(table[c].sum())
+        latest_share = float(table[c, latest].sum() / members) if members else 0.0
         z, p = tests.get(c, (None, None))
         q = float(adjusted[c]) if c in adjusted else None
         change = fitted_share_change(table[c], totals) if c in tests else None
@@ -229,11 +263,11 @@ def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str
             reading=_reading(z, q, latest_share, background, tested=c in tests, change=change),
             periods=tuple(PeriodCount(str(start), int(count), float(count / total) if total else 0.0)
                           for start, count, total in zip(starts, table[c], totals, strict=True)),
-            dated=dated, latest_share=latest_share, z=z, p_value=p, q_value=q, share_change=change,
+            dated=members, latest_share=latest_share, z=z, p_value=p, q_value=q, share_change=change,
             caution=MIXED_CAUTION if c < len(mixed) and mixed[c] else "",
         ))
     return Trends(period, chosen_by, tuple(str(s) for s in starts), tuple(int(t) for t in totals), tuple(clusters),
-                  dated=int(known.sum()), undated=undated, unreadable=unreadable)
+                  dated=int(weight.sum()), undated=dated.undated, unreadable=dated.unreadable)
 
 
 def _reading(z: float | None, q: float | None, latest_share: float, background: float, *, tested: bool,

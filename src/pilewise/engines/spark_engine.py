@@ -14,14 +14,16 @@ statistics and nearest members are those of the whole collection (`summaries.Clu
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import hashlib
 import heapq
+import itertools
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 import scipy.sparse as sp
@@ -29,8 +31,9 @@ from sklearn.decomposition import TruncatedSVD
 from sklearn.preprocessing import normalize
 
 from pilewise.clustering.kmeans import Clustering
-from pilewise.csvcells import spreadsheet_row
+from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
 from pilewise.describe.summaries import ClusterTotals
+from pilewise.describe.trends import DatedCounts, day_counts
 from pilewise.engines.spark_reading import read_on_spark
 from pilewise.engines.spark_session import is_url
 from pilewise.errors import PilewiseError
@@ -55,10 +58,13 @@ from pilewise.vectors.tfidf import (
     tfidf_rows,
 )
 
+T = TypeVar("T")
 SAMPLE_TEXTS = 20_000  # distinct texts brought back to describe, assess, explain and page (seeded)
 NEAREST_KEPT = 50  # members nearest each centroid brought back, from the whole collection
 BOILERPLATE_SAMPLE = 20_000  # texts boilerplate lines are looked for in (the streaming mode's first chunk)
 SINGLE_CSV_UP_TO = 2_000_000  # documents up to which assignments.csv is also written as one file
+BATCH_ROWS = 10_000  # texts an executor's Python worker tokenizes or projects at once
+DOCS_PER_PARTITION = 50_000  # documents per partition of the distinct texts at most (1,000,000: 20 partitions)
 KMEANS_MAX_ITER = 100  # Spark ML's default is 20; the local engine runs to convergence (scikit-learn: 300)
 
 
@@ -106,14 +112,14 @@ class _Tokenize:
 
     def bags(self, rows: Iterable[tuple[bytes, tuple[int, str, int]]]) -> Iterator[Bag]:
         analyzer = Analyzer(stop_words=self.stop_words, stem=self.stem, languages=self.languages)
-        batch = list(rows)
-        texts = [text for _, (_, text, _) in batch]
-        if self.boilerplate.lines:
-            texts = strip_texts(texts, self.boilerplate).texts
-        for (key, (seq, _, copies)), text in zip(batch, texts, strict=True):
-            bag = Counter(analyzer.terms(text))
-            bag.update(analyzer.phrases(text))
-            yield key, seq, copies, dict(bag)
+        for batch in batches(rows):
+            texts = [text for _, (_, text, _) in batch]
+            if self.boilerplate.lines:
+                texts = strip_texts(texts, self.boilerplate).texts
+            for (key, (seq, _, copies)), text in zip(batch, texts, strict=True):
+                bag = Counter(analyzer.terms(text))
+                bag.update(analyzer.phrases(text))
+                yield key, seq, copies, dict(bag)
 
 
 @dataclass(frozen=True)
@@ -126,20 +132,28 @@ class _Project:
     svd: TruncatedSVD
 
     def rows(self, bags: Iterable[tuple[bytes, int, int, dict[str, int]]]) -> Iterator[tuple[Any, ...]]:
-        batch = []
-        for key, seq, copies, bag in bags:
-            pairs = sorted((self.column_of[t], n) for t, n in bag.items() if t in self.column_of)
-            batch.append((key, seq, copies, np.array([c for c, _ in pairs], dtype=np.int32),
-                          np.array([n for _, n in pairs], dtype=np.int32)))
-        if not batch:
-            return
-        vectors = self.vectors([(cols, counts) for _, _, _, cols, counts in batch])
-        for (key, seq, copies, cols, counts), vector in zip(batch, vectors, strict=True):
-            yield key, seq, copies, cols, counts, vector
+        for chunk in batches(bags):
+            batch = [(key, seq, copies, *_counted(bag, self.column_of)) for key, seq, copies, bag in chunk]
+            vectors = self.vectors([(cols, counts) for _, _, _, cols, counts in batch])
+            for (key, seq, copies, cols, counts), vector in zip(batch, vectors, strict=True):
+                yield key, seq, copies, cols, counts, vector
 
     def vectors(self, rows: list[tuple[np.ndarray, np.ndarray]]) -> np.ndarray:
         in_space = space_matrix(rows, self.space_position, int(self.idf.size))
         return normalize(self.svd.transform(tfidf_rows(in_space, self.idf)))
+
+
+def batches(rows: Iterable[T]) -> Iterator[list[T]]:
+    """A partition's rows in lists of BATCH_ROWS: an executor's Python worker holds one batch, not a partition."""
+    iterator = iter(rows)
+    while batch := list(itertools.islice(iterator, BATCH_ROWS)):
+        yield batch
+
+
+def data_partitions(n_docs: int, default: int) -> int:
+    """Partitions of the distinct texts: at least Spark's default parallelism, and no more than
+    DOCS_PER_PARTITION documents in one (a task's memory stays bounded as the collection grows)."""
+    return max(default, -(-n_docs // DOCS_PER_PARTITION))
 
 
 def space_matrix(rows: list[tuple[np.ndarray, np.ndarray]], space_position: np.ndarray, width: int) -> sp.csr_matrix:
@@ -166,17 +180,21 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
     with reporter.stage("reading on Spark"):
         read = read_on_spark(spark, source, columns, limits)
         redact = options.redact
-        marked = read.documents.map(lambda item: _redacted(item, redact)).persist(keep)
+        n_docs = read.count if read.count is not None else read.documents.count()
+        # a CSV with quoted line breaks is one partition per file (Spark cannot split it): spread the documents
+        # before anything is kept, so that no task or cached block holds the whole file
+        marked = (read.documents.repartition(data_partitions(n_docs, spark.sparkContext.defaultParallelism))
+                  .map(lambda item: _redacted(item, redact)).persist(keep))
         documents = marked.map(lambda row: (row[0], row[1]))
         redacted = marked.map(lambda row: row[2]).filter(bool).fold({}, _add_counts)
-        n_docs = documents.count()
         if n_docs > options.max_documents:
             raise PilewiseError(f"found {n_docs:,} documents, more than --max-documents {options.max_documents:,}; "
                                 "raise --max-documents or point SOURCE at fewer files")
         if n_docs == 0:
             raise PilewiseError(f"no documents found in {source!r}; see the ingest report, or pass --text-column")
         texts = (documents.map(lambda item: (text_key(item[1].text), (item[0], item[1].text, 1)))
-                 .reduceByKey(_first_text).persist(keep))
+                 .reduceByKey(_first_text, data_partitions(n_docs, spark.sparkContext.defaultParallelism))
+                 .persist(keep))
         n_texts = texts.count()
         reporter.say(f"{n_docs:,} documents ({n_texts:,} distinct texts) read on Spark; "
                      f"{sum(1 for e in read.entries if e.status == 'skipped'):,} files or rows skipped")
@@ -245,6 +263,8 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         rows = sorted(sample_rows.values(), key=lambda row: row[1])  # reading order of each text's first document
         firsts = spark.sparkContext.broadcast({row[1] for row in rows})
         doc_of = dict(documents.filter(lambda item: item[0] in firsts.value).collect())
+        placed_docs = _placed_documents(documents, labelled).persist(keep)
+        dated = _dated_counts(placed_docs)
     sample_docs = tuple(doc_of[row[1]] for row in rows)
     copies = np.array([row[2] for row in rows], dtype=np.int64)
     n = len(rows)
@@ -269,14 +289,15 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
                             distances=np.array([row[7] for row in rows]), inertia=cost)
     collection = Collection(sample_docs, np.arange(n), np.arange(n), copies)
     sample_note = (f"spark engine: {n_docs:,} documents clustered on Spark; pages describe a seeded sample of "
-                   f"{n:,} distinct texts (with the {NEAREST_KEPT} nearest each centroid); sizes, terms and "
-                   "assignments are of every document")
+                   f"{n:,} distinct texts (with the {NEAREST_KEPT} nearest each centroid); sizes, terms, trends "
+                   "and assignments are of every document")
     ingested = Ingested(sample_docs, read.entries, (*read.notes, sample_note, language_note), read.files_found)
     reporter.say(sample_note)
     population = Population(
         documents=n_docs, texts=n_texts, skipped=sum(1 for e in read.entries if e.status == "skipped"),
-        write_assignments=lambda folder, names: _write_assignments(spark, documents, labelled, folder, names,
-                                                                   n_docs, reporter),
+        write_assignments=lambda folder, names, groups: _write_assignments(spark, placed_docs, folder, names, groups,
+                                                                           n_docs, reporter),
+        dated=dated,
     )
     return SparkPrepared(ingested, collection, analyzer, vectors, clustering, totals, boilerplate, redacted,
                          _fingerprint(documents), population)
@@ -392,57 +413,107 @@ def _fingerprint(documents: Any) -> str:
 
 
 ASSIGNMENT_COLUMNS = ["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies"]
+Placed = tuple[int, tuple[str, str, str, int, float, str, int, tuple[tuple[str, str], ...]]]
+
+
+def _placed_documents(documents: Any, labelled: Any) -> Any:
+    """Every document with its text's cluster, distance and copies, without the text: (number, (doc_id, source,
+    title, cluster, distance, date, copies, metadata)); kept for the trends and the assignments."""
+    placement = labelled.map(lambda row: (row[0], (row[6], row[7], row[2])))
+    return (documents.map(lambda item: (text_key(item[1].text), (item[0], item[1])))
+            .join(placement)
+            .map(lambda pair: _placed(pair[1][0], pair[1][1])))
+
+
+def _placed(item: tuple[int, Document], place: tuple[int, float, int]) -> Placed:
+    number, doc = item
+    label, distance, copies = place
+    return number, (doc.doc_id, doc.source, doc.title, label, distance, doc.date, copies, tuple(doc.metadata))
+
+
+def _dated_counts(placed_docs: Any) -> DatedCounts | None:
+    """Every document counted per (day, cluster) on Spark, each partition's dates read by `trends.day_counts`
+    (the parsing of the other modes); None when no document carries a date (as the other modes)."""
+    def partition_counts(rows: Iterable[Placed]) -> Iterator[DatedCounts]:
+        batch = [(fields[5], fields[3]) for _, fields in rows]
+        if any(date for date, _ in batch):
+            yield day_counts([date for date, _ in batch], np.array([label for _, label in batch], dtype=np.int64))
+        else:
+            yield DatedCounts(np.zeros(0, "datetime64[D]"), np.zeros(0, np.int64), np.zeros(0, np.int64), len(batch), 0)
+
+    parts = placed_docs.mapPartitions(partition_counts).collect()
+    if not any(part.counts.size or part.unreadable for part in parts):
+        return None
+    return DatedCounts(np.concatenate([part.days for part in parts]), np.concatenate([part.labels for part in parts]),
+                       np.concatenate([part.counts for part in parts]), sum(part.undated for part in parts),
+                       sum(part.unreadable for part in parts))
 
 
 def _write_assignments(
-    spark: Any, documents: Any, labelled: Any, folder: Path, names: list[str], n_docs: int, reporter: Reporter
+    spark: Any, placed_docs: Any, folder: Path, names: list[str], groups: dict[int, list[int]], n_docs: int,
+    reporter: Reporter
 ) -> list[str]:
     """Every document's cluster, written by Spark: CSV parts (cells escaped as every pilewise CSV) and Parquet
-    parts, and assignments.csv in reading order up to SINGLE_CSV_UP_TO documents. Returns the names written."""
-    placement = labelled.map(lambda row: (row[0], (row[6], row[7], row[2])))
-    extra = sorted({name for _, doc in documents.take(1000) for name, _ in doc.metadata})
-    joined = (documents.map(lambda item: (text_key(item[1].text), item))
-              .join(placement)
-              .map(lambda pair: _assignment_row(pair[1][0], pair[1][1], names, extra)))
-    frame = spark.createDataFrame(joined.map(lambda row: row[1]), [*ASSIGNMENT_COLUMNS, *extra])
-    frame.write.parquet(str(folder / "assignments-parquet"))
-    escaped = spark.createDataFrame(joined.map(lambda row: [str(c) for c in spreadsheet_row(row[1])]),
-                                    [*ASSIGNMENT_COLUMNS, *extra])
+    parts, and assignments.csv in reading order up to SINGLE_CSV_UP_TO documents. When the levels map the run's
+    clusters to coarser groups (`groups`: k -> group of each cluster), every document's group at each cut too:
+    cuts-parts/ (CSV parts) and cuts.csv with assignments.csv. Returns the names written."""
+    extra = sorted({name for _, fields in placed_docs.take(1000) for name, _ in fields[7]})
+    ks = sorted(groups)
+    joined = placed_docs.map(lambda item: (item[0], _assignment_row(item[1], names, extra),
+                                           [spreadsheet_cell(item[1][0]), *(groups[k][item[1][3]] for k in ks)]))
+    columns = [*ASSIGNMENT_COLUMNS, *extra]
+    spark.createDataFrame(joined.map(lambda row: row[1]), columns).write.parquet(str(folder / "assignments-parquet"))
+    escaped = spark.createDataFrame(joined.map(lambda row: [str(c) for c in spreadsheet_row(row[1])]), columns)
     escaped.write.option("header", True).option("escape", '"').csv(str(folder / "assignments-parts"))
     written = ["assignments-parquet", "assignments-parts"]
+    cut_header = ["doc_id", *(f"k{k}" for k in ks)]
+    if not ks:  # a Ward tree over the texts cuts across the run's clusters; the sample cannot say how
+        reporter.say("the levels do not map the run's clusters to coarser groups: cuts.csv is not written")
+    else:
+        cut_frame = spark.createDataFrame(joined.map(lambda row: [str(c) for c in row[2]]), cut_header)
+        cut_frame.write.option("header", True).option("escape", '"').csv(str(folder / "cuts-parts"))
+        written.append("cuts-parts")
     if n_docs <= SINGLE_CSV_UP_TO:  # also every cluster's members/cluster-NN.csv, as the other modes write
-        header = spreadsheet_row([*ASSIGNMENT_COLUMNS, *extra])
+        header = spreadsheet_row(columns)
         members = MemberFiles(folder, header, list(range(len(names))))
-        with (folder / "assignments.csv").open("w", encoding="utf-8", newline="") as handle:
-            writer = csv.writer(handle, lineterminator="\n")
-            writer.writerow(header)
-            for _, row in joined.sortByKey().toLocalIterator():
-                escaped = spreadsheet_row(row)
-                writer.writerow(escaped)
-                members.add(int(row[3]), escaped)
+        with contextlib.ExitStack() as files:
+            writer = _csv_writer(files, folder / "assignments.csv", header)
+            cuts_writer = _csv_writer(files, folder / "cuts.csv", cut_header) if ks else None
+            for _, row, cut in joined.sortBy(lambda row: row[0]).toLocalIterator():
+                escaped_row = spreadsheet_row(row)
+                writer.writerow(escaped_row)
+                if cuts_writer is not None:
+                    cuts_writer.writerow(cut)
+                members.add(int(row[3]), escaped_row)
         members.flush()
-        written += ["assignments.csv", "members"]
+        written += ["assignments.csv", "members", *(["cuts.csv"] if ks else [])]
     else:
         reporter.say(f"{n_docs:,} documents: assignments are in assignments-parts/ and assignments-parquet/ only "
-                     f"(one assignments.csv and the per-cluster members/ files up to {SINGLE_CSV_UP_TO:,})")
+                     f"(one assignments.csv, cuts.csv and the per-cluster members/ files up to {SINGLE_CSV_UP_TO:,})")
+    placed_docs.unpersist()
     return written
 
 
-def _assignment_row(
-    item: tuple[int, Document], place: tuple[int, float, int], names: list[str], extra: list[str]
-) -> tuple[int, list[Any]]:
-    number, doc = item
-    label, distance, copies = place
-    meta = dict(doc.metadata)
-    return number, [doc.doc_id, doc.source, doc.title, label, names[label], f"{distance:.6f}", doc.date, copies,
-                    *(meta.get(name, "") for name in extra)]
+def _csv_writer(files: contextlib.ExitStack, path: Path, header: list[Any]) -> Any:
+    """A CSV writer on `path` (closed with `files`), its header written."""
+    writer = csv.writer(files.enter_context(path.open("w", encoding="utf-8", newline="")), lineterminator="\n")
+    writer.writerow(header)
+    return writer
+
+
+def _assignment_row(fields: tuple[Any, ...], names: list[str], extra: list[str]) -> list[Any]:
+    doc_id, source, title, label, distance, date, copies, metadata = fields
+    meta = dict(metadata)
+    return [doc_id, source, title, label, names[label], f"{distance:.6f}", date, copies,
+            *(meta.get(name, "") for name in extra)]
 
 
 def run_on_spark(options: RunOptions, reporter: Reporter, compute: Callable[[SparkPrepared], Any]) -> Any:
     """Start Spark for the run, prepare on it, and call `compute` (which describes and writes) while it runs."""
     from pilewise.engines.spark_session import spark_session
 
-    with spark_session(options.spark_master, quiet=options.quiet, partitions=_partitions(options)) as spark:
+    with spark_session(options.spark_master, quiet=options.quiet, partitions=_partitions(options),
+                       say=reporter.say) as spark:
         prepared = prepare_on_spark(spark, options, reporter)
         return compute(prepared)
 

@@ -37,6 +37,7 @@ class SparkSource:
     entries: tuple[IngestEntry, ...]
     notes: tuple[str, ...]
     files_found: int
+    count: int | None = None  # documents, when reading counted them (a table); None: not counted
 
 
 def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
@@ -98,7 +99,7 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     n_docs = documents.count()
     summary = IngestEntry(rel, "document", "table", f"{n_docs} rows became documents (text column {text_col!r})")
     notes = [f"{rel}: {note}" for note in guesses] + more
-    return SparkSource(documents, (summary, *entries), tuple(notes), 1)
+    return SparkSource(documents, (summary, *entries), tuple(notes), 1, n_docs)
 
 
 def flat_frame(frame: Any, depth: int = FLATTEN_DEPTH) -> Any:

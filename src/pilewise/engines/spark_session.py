@@ -11,8 +11,10 @@ import os
 import re
 import shutil
 import tempfile
+import threading
+import time
 import zipfile
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
@@ -43,12 +45,14 @@ def check_spark_available() -> None:
 
 
 @contextmanager
-def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]:
+def spark_session(master: str, *, quiet: bool, partitions: int,
+                  say: Callable[[str], None] | None = None) -> Iterator[Any]:
     """A SparkSession on `master` for one run, stopped afterwards when this call started it.
 
     An active session (as under spark-submit or in a notebook) is used as it is and left running.
     `partitions` sets the shuffle partitions of a session started here (Spark's default of 200 is made
-    for clusters; a local run wants about two per core). The console progress bar shows unless `quiet`.
+    for clusters; a local run wants about two per core). Spark's console progress bar is off (its carriage
+    returns would share a line with the stage lines); `say` gets a line on every long Spark job instead.
     """
     check_spark_available()
     from pyspark.sql import SparkSession
@@ -61,7 +65,7 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
     builder = (
         SparkSession.builder.master(master).appName("pilewise")
         .config("spark.ui.enabled", "false")  # no web server on a port the user did not ask for
-        .config("spark.ui.showConsoleProgress", "false" if quiet else "true")
+        .config("spark.ui.showConsoleProgress", "false")  # our own whole lines instead (`job_progress`)
         .config("spark.sql.shuffle.partitions", str(partitions))
         .config("spark.default.parallelism", str(partitions))
         .config("spark.driver.memory", os.environ.get("PILEWISE_SPARK_DRIVER_MEMORY", "4g"))
@@ -75,7 +79,8 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
     session.sparkContext.setLogLevel("ERROR")
     scratch = _ship_code(session)
     try:
-        yield session
+        with job_progress(session.sparkContext, None if quiet else say):
+            yield session
     except PilewiseError:
         raise
     except Exception as err:  # Py4J and Spark errors (a lost JVM, a failed job): one line, not a traceback
@@ -89,6 +94,56 @@ def spark_session(master: str, *, quiet: bool, partitions: int) -> Iterator[Any]
             session.stop()
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
+
+
+JOB_LINE_EVERY = 10.0  # seconds between the lines of a running Spark job (and before its first)
+
+
+@contextmanager
+def job_progress(context: Any, say: Callable[[str], None] | None, every: float = JOB_LINE_EVERY) -> Iterator[None]:
+    """While the block runs, a whole line through `say` every `every` seconds for each Spark job that has run
+    that long: its tasks done of all (Spark's status tracker, polled from a daemon thread). Short jobs (most
+    of k-means' iterations) print nothing; `say` None (--quiet) prints nothing."""
+    if say is None:
+        yield
+        return
+    done = threading.Event()
+    said: dict[int, float] = {}  # job id -> when it was first seen running, then when its last line was said
+
+    def poll() -> None:
+        while not done.wait(min(1.0, every)):
+            tracker = context.statusTracker()
+            now = time.monotonic()
+            for job in tracker.getActiveJobsIds():
+                if now - said.setdefault(job, now) >= every:
+                    said[job] = now
+                    line = job_line(tracker, job)
+                    if line:
+                        say(line)
+
+    watcher = threading.Thread(target=poll, name="pilewise-spark-progress", daemon=True)
+    watcher.start()
+    try:
+        yield
+    finally:
+        done.set()
+        watcher.join(timeout=5)
+
+
+def job_line(tracker: Any, job: int) -> str:
+    """'Spark job 12 (reduceByKey at spark_engine.py:215): 37 of 64 tasks done' from Spark's status tracker;
+    "" when the job ended in between."""
+    info = tracker.getJobInfo(job)
+    if info is None:
+        return ""
+    stages = [stage for stage in (tracker.getStageInfo(s) for s in info.stageIds) if stage is not None]
+    total = sum(stage.numTasks for stage in stages)
+    finished = sum(stage.numCompletedTasks for stage in stages)
+    running = [stage for stage in stages if stage.numActiveTasks > 0] or stages
+    name = running[0].name if running else ""
+    where, _, place = name.partition(" at ")
+    label = f" ({where} at {Path(place).name})" if place else (f" ({where})" if where else "")
+    return f"Spark job {job}{label}: {finished:,} of {total:,} tasks done"
 
 
 _SHIPPED: set[str] = set()  # Spark applications that have this pilewise's code (a file is added once)

@@ -17,6 +17,8 @@ from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from pilewise.clustering.stability import STABILITY_ROWS
 from pilewise.clustering.sweep import RECOMMENDATION_RULE, Sweep
 from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
@@ -45,6 +47,7 @@ DATA_FILES: dict[str, str] = {
     "boilerplate.csv": "lines removed as boilerplate before vectorizing, with how many texts hold each",
     "assignments-parts/": "--engine spark: every document's assignment, CSV parts written by Spark (with its markers)",
     "assignments-parquet/": "--engine spark: the assignments as Parquet parts written by Spark (with its markers)",
+    "cuts-parts/": "--engine spark: every document's cluster at each cut, CSV parts by Spark (with its markers)",
     "model/model.json": "what `pilewise assign` needs besides numbers: vocabulary, settings, versions, cluster names",
     "model/arrays.npz": "the numbers `pilewise assign` needs: idf, LSA directions, centroids, distance quantiles",
 }
@@ -68,7 +71,7 @@ SITE_FILES: dict[str, str] = {
     "search-index.js": "the words the search box looks in",
     ".pilewise": "the mark that pilewise wrote this folder (it replaces only folders so marked)",
 }
-SPARK_FOLDERS = ("assignments-parts/", "assignments-parquet/")
+SPARK_FOLDERS = ("assignments-parts/", "assignments-parquet/", "cuts-parts/")
 LATE_FILES = ("comparisons.html", ".pilewise")  # written after the pages, when the run is moved into place
 REWRITTEN_LAST = ("manifest.json",)  # written again after the pages (its timings): its size is not listed
 
@@ -124,7 +127,7 @@ def write_exports(
 ) -> None:
     """Write every export of `result` into `folder`; `track` wraps the pass over the documents (progress)."""
     if result.population is not None:  # the documents are on the engine that read them; it writes assignments
-        result.population.write_assignments(folder, [c.shown for c in result.naming.clusters])
+        result.population.write_assignments(folder, [c.shown for c in result.naming.clusters], cut_groups(result))
     else:
         write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
     _write_json(folder / "clusters.json", clusters_document(result))
@@ -138,6 +141,19 @@ def write_exports(
         writer.writerows(spreadsheet_row(line) for line in result.boilerplate.lines)
     if result.sweep is not None:
         _write_json(folder / "sweep.json", sweep_document(result.sweep, result.name))
+
+
+def cut_groups(result: RunResult) -> dict[int, list[int]]:
+    """k -> the group of every run cluster at that cut of the levels, when each cut maps the run's clusters
+    to coarser groups (a tree over the k-means centroids); {} when a cut splits a run cluster (a Ward tree)."""
+    labels = result.clustering.labels
+    groups: dict[int, list[int]] = {}
+    for k, cut in result.levels.cuts.items():
+        pairs = np.unique(np.column_stack([labels, cut]).astype(np.int64), axis=0)
+        if pairs.shape[0] != np.unique(labels).size or pairs.shape[0] != result.k:
+            return {}  # a run cluster in two groups, or one without members: no mapping by label
+        groups[k] = [int(group) for group in pairs[:, 1]]
+    return groups
 
 
 def levels_document(result: RunResult) -> dict[str, Any]:
