@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import itertools
+import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
@@ -54,6 +55,7 @@ from pilewise.options import (
     reading_settings,
     validate,
 )
+from pilewise.output.docmap import layout_started
 from pilewise.output.exports import write_sweep_json
 from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
@@ -135,7 +137,9 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
 
 def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
     """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    start = time.perf_counter()
     save_model(folder, result)  # first, so that the pages' list of files names it
+    result.timings["saving the model"] = round(time.perf_counter() - start, 3)
     _write_run(folder, result, reporter)
 
 
@@ -301,9 +305,10 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                          f"groups; {near.representative.size:,} texts to cluster")
     check_k(k_needed, int(collection.copies.size),
             "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
-    text_languages = detect_languages(texts, options.language)
-    present = present_languages(text_languages, collection.copies) or ("en",)
-    reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
+    with reporter.stage("detecting languages"):
+        text_languages = detect_languages(texts, options.language)
+        present = present_languages(text_languages, collection.copies) or ("en",)
+        reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
                         languages=present)
     with reporter.stage("vectorizing"):
@@ -451,6 +456,27 @@ def _clustered(
 
 
 def _described(
+    options: RunOptions, reporter: Reporter, prepared: Prepared, k: int, k_min: int, k_max: int,
+    clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
+    population: Population | None,
+) -> RunResult:
+    """Assessing, describing and explaining a clustering, with the map laid out beside them.
+
+    The map's t-SNE (seconds) needs only the space and the seed, so it runs in a worker process on the
+    second core while these stages run, where there is a second core (not beside Spark's threads); its
+    positions are the same either way.
+    """
+    background = population is None and (options.workers or default_workers()) > 1
+    with layout_started(prepared.vectors.space, int(prepared.weights.size), options.seed,
+                        background=background) as map_points:
+        result = _assessed_and_described(options, reporter, prepared, k, k_min, k_max, clustering, tree, sweep,
+                                         totals, population)
+        with reporter.stage("laying out the map"):
+            points = map_points()
+    return replace(result, map_points=points)
+
+
+def _assessed_and_described(
     options: RunOptions, reporter: Reporter, prepared: Prepared, k: int, k_min: int, k_max: int,
     clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
     population: Population | None,
