@@ -191,7 +191,7 @@ class ChiSquareTreeClassifier(ClassifierMixin, BaseEstimator):
             raise ValueError(f"n_terms={self.n_terms} must be between 0 and the {X.shape[1]} columns of X")
         if y.shape != (X.shape[0],) or weights.shape != (X.shape[0],):
             raise ValueError(f"y and sample_weight need one value per row of X ({X.shape[0]})")
-        terms = chi_square_columns(X, y, weights, self.max_features, columns=self.n_terms)
+        terms = chi_square_columns(X, y, weights, self.max_features, term_columns=self.n_terms)
         self.columns_ = np.concatenate([terms, np.arange(self.n_terms, X.shape[1])]).astype(np.intp)
         self.estimator_ = DecisionTreeClassifier(
             max_depth=self.max_depth, min_samples_leaf=self.min_samples_leaf, random_state=self.random_state
@@ -211,7 +211,7 @@ class ChiSquareTreeClassifier(ClassifierMixin, BaseEstimator):
 
 
 def chi_square_columns(
-    present: sp.csr_matrix, y: np.ndarray, weights: np.ndarray, top: int, *, columns: int | None = None
+    present: sp.csr_matrix, y: np.ndarray, weights: np.ndarray, top: int, *, term_columns: int | None = None
 ) -> np.ndarray:
     """Up to `top` columns of `present`, each class's over-represented terms by chi-square, round-robin.
 
@@ -225,15 +225,15 @@ def chi_square_columns(
         Duplicate counts.
     top : int
         Columns kept at most.
-    columns : int, optional
-        Consider only the first `columns` columns (the terms before the metadata indicators); all by default.
+    term_columns : int, optional
+        Consider only the first `term_columns` columns (the terms before the metadata indicators); all by default.
 
     Returns
     -------
     ndarray of int
         Column indexes, best first: rank 1 of every class in class order, then rank 2, ...
     """
-    n_columns = present.shape[1] if columns is None else columns
+    n_columns = present.shape[1] if term_columns is None else term_columns
     classes, codes = np.unique(y, return_inverse=True)
     if n_columns == 0 or classes.size < 2 or top <= 0:
         return np.zeros(0, dtype=np.intp)
