@@ -32,7 +32,7 @@ def _blobs(n: int, k: int, dims: int, seed: int) -> tuple[np.ndarray, np.ndarray
 def test_sampled_silhouette_agrees_with_the_silhouette_of_every_row() -> None:
     """Above SILHOUETTE_SAMPLE rows the silhouette is read on a seeded sample, as scikit-learn's
     silhouette_score(sample_size=) does; it must agree with the figure over all rows within the error
-    measured on the 50,000-text collection (docs/method.md, "Silhouette": at most 0.01 there)."""
+    measured on the 50,000-text benchmark collection (docs/method.md, "Silhouette": 0.018 at most there)."""
     n = quality.SILHOUETTE_SAMPLE + 1_000
     space, labels = _blobs(n, 6, 20, seed=3)
     scores = quality.assess(space, labels, k=6, seed=0)
@@ -40,7 +40,7 @@ def test_sampled_silhouette_agrees_with_the_silhouette_of_every_row() -> None:
     # reference: scikit-learn's silhouette over every row, cosine metric (Rousseeuw 1987)
     full = silhouette_score(space, labels, metric="cosine")
     assert scores.silhouette is not None
-    assert abs(scores.silhouette - full) < 0.01
+    assert abs(scores.silhouette - full) < 0.02
 
 
 def test_sampled_silhouette_is_the_same_for_the_same_seed() -> None:
