@@ -5,6 +5,7 @@ No test here times anything; each checks that a faster path gives what the plain
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import numpy as np
@@ -107,3 +108,22 @@ def test_every_stage_of_a_run_has_a_timing(topic_folder: Path, tmp_path: Path) -
     assert list(timings) == ["reading", "grouping near-duplicates", "detecting languages", "vectorizing",
                              "clustering", "assessing", "describing", "explaining", "laying out the map",
                              "saving the model", "writing site"]
+
+
+_PARENT = os.getpid()
+_REAL_LAYOUT = docmap.layout
+
+
+def _layout_dying_in_a_worker(space: np.ndarray, seed: int) -> np.ndarray:
+    """docmap.layout, except that a worker process running it dies at once (as one killed for memory would)."""
+    if os.getpid() != _PARENT:
+        os._exit(1)
+    return _REAL_LAYOUT(space, seed)
+
+
+def test_a_worker_that_dies_leaves_the_map_to_the_main_process(monkeypatch: pytest.MonkeyPatch) -> None:
+    space, _ = _blobs(120, 3, 8, seed=6)
+    monkeypatch.setattr(docmap, "layout", _layout_dying_in_a_worker)
+    with docmap.layout_started(space, 120, 2, background=True) as beside:
+        points = beside()
+    assert np.array_equal(points, _REAL_LAYOUT(space, 2))

@@ -19,6 +19,7 @@ import inspect
 import multiprocessing
 from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import Future, ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from contextlib import contextmanager
 from dataclasses import dataclass
 
@@ -74,8 +75,9 @@ def layout_started(space: np.ndarray | sp.spmatrix, n_texts: int, seed: int, *,
     With `background`, t-SNE runs in one forked worker process, on the second core, while the caller goes on
     (describing and explaining); the call then waits for it. The worker gets the same rows and seed and runs
     the same one-thread `layout`, so the positions are the same as computed in place (tested), whatever the
-    timing. Without `background` the layout is computed when the call is made. Leaving the block early (an
-    error) cancels a layout not yet started and leaves a running one to finish on its own.
+    timing. Without `background` the layout is computed when the call is made; so it is when the worker died.
+    Leaving the block early (an error) cancels a layout not yet started and leaves a running one to finish on
+    its own.
 
     Parameters
     ----------
@@ -102,8 +104,15 @@ def layout_started(space: np.ndarray | sp.spmatrix, n_texts: int, seed: int, *,
     # OpenMP region of its own
     executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
     future: Future[np.ndarray] = executor.submit(layout, chosen, seed)
+
+    def placed() -> np.ndarray:
+        try:
+            return future.result()
+        except BrokenProcessPool:  # the worker was killed (out of memory, a signal): lay the map out here
+            return layout(chosen, seed)
+
     try:
-        yield future.result
+        yield placed
     finally:
         executor.shutdown(wait=False, cancel_futures=True)
 
