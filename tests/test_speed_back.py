@@ -15,10 +15,10 @@ from sklearn.metrics import silhouette_score
 
 from helpers import read_manifest
 from pilewise.clustering import quality
-from pilewise.describe.rules import chi_square_columns
+from pilewise.describe.rules import chi_square_columns, explain_run
 from pilewise.options import RunOptions
 from pilewise.output import docmap
-from pilewise.pipeline import run_collection
+from pilewise.pipeline import _Beside, run_collection
 
 
 def _blobs(n: int, k: int, dims: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
@@ -65,23 +65,30 @@ def test_chi_square_columns_on_the_first_columns_equals_it_on_a_copy_of_them() -
         assert got.size == 0 or got.max() < 60
 
 
-def test_layout_in_a_worker_process_equals_the_layout_in_place() -> None:
-    """The map is laid out in a forked worker beside describing; the positions must not depend on that."""
-    space, _ = _blobs(200, 3, 12, seed=1)
-    with docmap.layout_started(space, 200, 4, background=True) as beside:
-        in_worker = beside()
-    with docmap.layout_started(space, 200, 4, background=False) as here:
-        in_place = here()
-    assert np.array_equal(in_worker, in_place)
-    assert np.array_equal(in_place, docmap.layout(space[docmap.sample_rows(200, docmap.MAP_CAP, 4)], 4))
+def test_work_handed_to_the_worker_equals_the_work_done_in_place() -> None:
+    """The map and the rules are computed in a forked worker beside assessing and describing; their results
+    must not depend on that (the in-place run is the reference)."""
+    space, labels = _blobs(200, 3, 12, seed=1)
+    rng = np.random.default_rng(2)
+    counts = sp.csr_matrix(rng.poisson(0.3, size=(200, 40)).astype(float) + np.eye(200, 40) * (labels[:, None] + 1))
+    shown = [f"term{j}" for j in range(40)]
+    results = []
+    for background in (True, False):
+        with _Beside(background=background) as beside:
+            points = beside.submit(docmap.layout, space, 4)
+            rules = beside.submit(explain_run, counts, np.ones(200), labels, shown, None, {}, k=3, seed=4)
+            results.append((points(), rules()))
+    (points_beside, rules_beside), (points_here, rules_here) = results
+    assert np.array_equal(points_beside, points_here)
+    assert rules_beside == rules_here
 
 
 def test_layout_above_the_cap_draws_the_seeded_sample() -> None:
     n = docmap.MAP_CAP + 50
     space, _ = _blobs(n, 3, 6, seed=2)
-    with docmap.layout_started(space, n, 9, background=False) as here:
-        points = here()
-    assert points.shape == (docmap.MAP_CAP, 2)
+    rows = docmap.sample_rows(n, docmap.MAP_CAP, 9)
+    assert rows.size == docmap.MAP_CAP and np.array_equal(rows, docmap.sample_rows(n, docmap.MAP_CAP, 9))
+    assert docmap.layout(space[rows], 9).shape == (docmap.MAP_CAP, 2)
 
 
 def _files(run: Path) -> dict[str, bytes]:
@@ -91,7 +98,8 @@ def _files(run: Path) -> dict[str, bytes]:
 def test_a_run_with_the_map_beside_gives_the_files_of_the_serial_run(
     topic_folder: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    """--workers 2 lays the map out in a worker process, --workers 1 in place: the same files either way."""
+    """--workers 2 hands the map and the rules to a worker process, --workers 1 computes them in place: the
+    same files either way."""
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")
     beside = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "a", seed=7, quiet=True, workers=2))
     serial = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "b", seed=7, quiet=True, workers=1))
@@ -102,12 +110,12 @@ def test_a_run_with_the_map_beside_gives_the_files_of_the_serial_run(
 
 
 def test_every_stage_of_a_run_has_a_timing(topic_folder: Path, tmp_path: Path) -> None:
-    """The benchmark's time outside the recorded stages was language detection, saving the model and the map."""
+    """The benchmark's time outside the recorded stages was language detection, the map and saving the model."""
     outcome = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "site", seed=1, quiet=True))
     timings = read_manifest(outcome.run_folder)["timings_seconds"]
     assert list(timings) == ["reading", "grouping near-duplicates", "detecting languages", "vectorizing",
-                             "clustering", "assessing", "describing", "explaining", "laying out the map",
-                             "saving the model", "writing site"]
+                             "clustering", "table columns", "assessing", "describing", "explaining",
+                             "laying out the map", "saving the model", "writing site"]
 
 
 _PARENT = os.getpid()
@@ -121,9 +129,8 @@ def _layout_dying_in_a_worker(space: np.ndarray, seed: int) -> np.ndarray:
     return _REAL_LAYOUT(space, seed)
 
 
-def test_a_worker_that_dies_leaves_the_map_to_the_main_process(monkeypatch: pytest.MonkeyPatch) -> None:
+def test_a_worker_that_dies_leaves_its_work_to_the_main_process() -> None:
     space, _ = _blobs(120, 3, 8, seed=6)
-    monkeypatch.setattr(docmap, "layout", _layout_dying_in_a_worker)
-    with docmap.layout_started(space, 120, 2, background=True) as beside:
-        points = beside()
+    with _Beside(background=True) as beside:
+        points = beside.submit(_layout_dying_in_a_worker, space, 2)()
     assert np.array_equal(points, _REAL_LAYOUT(space, 2))

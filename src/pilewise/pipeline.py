@@ -8,12 +8,15 @@ from __future__ import annotations
 
 import hashlib
 import itertools
+import multiprocessing
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, TypeVar
 
 import numpy as np
 
@@ -55,7 +58,7 @@ from pilewise.options import (
     reading_settings,
     validate,
 )
-from pilewise.output.docmap import layout_started
+from pilewise.output import docmap
 from pilewise.output.exports import write_sweep_json
 from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
@@ -460,60 +463,52 @@ def _described(
     clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
     population: Population | None,
 ) -> RunResult:
-    """Assessing, describing and explaining a clustering, with the map laid out beside them.
+    """Assessing, describing and explaining a clustering (the stages every engine shares), and the map.
 
-    The map's t-SNE (seconds) needs only the space and the seed, so it runs in a worker process on the
-    second core while these stages run, where there is a second core (not beside Spark's threads); its
-    positions are the same either way.
+    The map's t-SNE and the rules' 126 tree fits need only the space, the counts, the labels and the seed,
+    so they are handed to one worker process (`_Beside`) that runs them on the second core while assessing
+    and describing run here, where there is a second core (not beside Spark's threads). Their results are
+    the same either way (tested).
     """
-    background = population is None and (options.workers or default_workers()) > 1
-    with layout_started(prepared.vectors.space, int(prepared.weights.size), options.seed,
-                        background=background) as map_points:
-        result = _assessed_and_described(options, reporter, prepared, k, k_min, k_max, clustering, tree, sweep,
-                                         totals, population)
-        with reporter.stage("laying out the map"):
-            points = map_points()
-    return replace(result, map_points=points)
-
-
-def _assessed_and_described(
-    options: RunOptions, reporter: Reporter, prepared: Prepared, k: int, k_min: int, k_max: int,
-    clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
-    population: Population | None,
-) -> RunResult:
-    """Assessing, describing and explaining a clustering: the stages every engine shares."""
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
-    with reporter.stage("assessing"):
-        quality = assess(space, clustering.labels, k=k, seed=options.seed)
-        rows = stability_rows(distinct, options.seed)
-        stability = bootstrap_stability(
-            space[rows], weights[rows], clustering.labels[rows], k=k, resamples=options.resamples,
-            seed=options.seed, cluster_fn=_stability_fn(options.method, k),
-            track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
-        )
-    with reporter.stage("describing"):
-        clusters = describe_clusters(
-            prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-            top_terms=options.top_terms, stability=stability, totals=totals,
-        )
-        levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
-        levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
-                              k_max=k_max if tree is not None else k, run_k=k)
-        shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
-        levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
-        profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+    shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
+    doc_labels = clustering.labels[prepared.collection.text_of_doc]
+    with reporter.stage("table columns"):  # first: the rules read the categorical ones
         doc_columns = metadata_columns(prepared.collection)
         # every document counts, copies too: a copy of a text may carry other cells than its first document
-        doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
-                              mixed=[c.mixed for c in clusters])
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
-    with reporter.stage("explaining"):
-        rules = explain_run(prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns, k=k,
-                            seed=options.seed)
+    rows = docmap.sample_rows(distinct, docmap.MAP_CAP, options.seed)
+    with _Beside(background=population is None and (options.workers or default_workers()) > 1) as beside:
+        map_points = beside.submit(docmap.layout, space[rows], options.seed)
+        rules_made = beside.submit(explain_run, prepared.vectors.counts, weights, clustering.labels, shown, metadata,
+                                   columns, k=k, seed=options.seed)
+        with reporter.stage("assessing"):
+            quality = assess(space, clustering.labels, k=k, seed=options.seed)
+            sample = stability_rows(distinct, options.seed)
+            stability = bootstrap_stability(
+                space[sample], weights[sample], clustering.labels[sample], k=k, resamples=options.resamples,
+                seed=options.seed, cluster_fn=_stability_fn(options.method, k),
+                track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
+            )
+        with reporter.stage("describing"):
+            clusters = describe_clusters(
+                prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
+                top_terms=options.top_terms, stability=stability, totals=totals,
+            )
+            levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
+            levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
+                                  k_max=k_max if tree is not None else k, run_k=k)
+            levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
+            profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+            trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
+                                  mixed=[c.mixed for c in clusters])
+        with reporter.stage("explaining"):  # in the worker: the wait for it
+            rules = rules_made()
+        with reporter.stage("laying out the map"):
+            points = map_points()
     suggestions = [c.suggested_name for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
@@ -532,7 +527,44 @@ def _assessed_and_described(
         fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends, population=population,
         languages=language_mix(prepared.text_languages, weights, clustering.labels, k,
                                forced=options.language is not None) if prepared.text_languages else None,
+        map_points=points,
     )
+
+
+T = TypeVar("T")
+
+
+class _Beside:
+    """Computations handed to one forked worker process, run there one after the other; or run in place.
+
+    Each `submit` returns a call that gives the result (waiting for it). The worker is forked at the first
+    submit, so it inherits the modules already imported; arguments and results travel pickled. A worker that
+    dies (out of memory, a signal) leaves its computations to the calling process, which runs them in place,
+    as it does without `background`. Leaving the block cancels what has not started.
+    """
+
+    def __init__(self, *, background: bool) -> None:
+        self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork")) if background else None
+
+    def __enter__(self) -> _Beside:
+        return self
+
+    def __exit__(self, *_: object) -> None:
+        if self.executor is not None:
+            self.executor.shutdown(wait=False, cancel_futures=True)
+
+    def submit(self, fn: Callable[..., T], *args: object, **kwargs: object) -> Callable[[], T]:
+        if self.executor is None:
+            return lambda: fn(*args, **kwargs)
+        future = self.executor.submit(fn, *args, **kwargs)
+
+        def result() -> T:
+            try:
+                return future.result()
+            except BrokenProcessPool:
+                return fn(*args, **kwargs)
+
+        return result
 
 
 def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,

@@ -16,11 +16,7 @@ page says.
 from __future__ import annotations
 
 import inspect
-import multiprocessing
-from collections.abc import Callable, Iterator, Sequence
-from concurrent.futures import Future, ProcessPoolExecutor
-from concurrent.futures.process import BrokenProcessPool
-from contextlib import contextmanager
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -65,56 +61,6 @@ def sample_rows(n_rows: int, cap: int, seed: int) -> np.ndarray:
     if n_rows <= cap:
         return np.arange(n_rows)
     return np.sort(np.random.default_rng(seed).choice(n_rows, size=cap, replace=False))
-
-
-@contextmanager
-def layout_started(space: np.ndarray | sp.spmatrix, n_texts: int, seed: int, *,
-                   background: bool) -> Iterator[Callable[[], np.ndarray]]:
-    """Start the map's layout of `sample_rows(n_texts, MAP_CAP, seed)`; yields a call that returns it.
-
-    With `background`, t-SNE runs in one forked worker process, on the second core, while the caller goes on
-    (describing and explaining); the call then waits for it. The worker gets the same rows and seed and runs
-    the same one-thread `layout`, so the positions are the same as computed in place (tested), whatever the
-    timing. Without `background` the layout is computed when the call is made; so it is when the worker died.
-    Leaving the block early (an error) cancels a layout not yet started and leaves a running one to finish on
-    its own.
-
-    Parameters
-    ----------
-    space : ndarray or sparse matrix of shape (n_texts, n_dims)
-        The clustering space, one row per distinct text.
-    n_texts : int
-        Distinct texts (rows of `space`).
-    seed : int
-        The run's seed: the sample and t-SNE.
-    background : bool
-        Compute in a worker process (when the caller may use a second core).
-
-    Yields
-    ------
-    callable returning ndarray of shape (min(n_texts, MAP_CAP), 2)
-        The positions of `layout`, row i for the i-th row of the sample.
-    """
-    rows = sample_rows(n_texts, MAP_CAP, seed)
-    chosen = space[rows]
-    if not background:
-        yield lambda: layout(chosen, seed)
-        return
-    # fork: the worker needs no imports of its own; it sets its one thread itself (`layout`), before any
-    # OpenMP region of its own
-    executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
-    future: Future[np.ndarray] = executor.submit(layout, chosen, seed)
-
-    def placed() -> np.ndarray:
-        try:
-            return future.result()
-        except BrokenProcessPool:  # the worker was killed (out of memory, a signal): lay the map out here
-            return layout(chosen, seed)
-
-    try:
-        yield placed
-    finally:
-        executor.shutdown(wait=False, cancel_futures=True)
 
 
 def layout(space: np.ndarray | sp.spmatrix, seed: int) -> np.ndarray:
