@@ -18,7 +18,7 @@ from pilewise.clustering import quality
 from pilewise.describe.rules import chi_square_columns, explain_run
 from pilewise.options import RunOptions
 from pilewise.output import docmap
-from pilewise.pipeline import _Beside, run_collection
+from pilewise.pipeline import Job, _Beside, run_collection
 
 
 def _blobs(n: int, k: int, dims: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
@@ -73,11 +73,12 @@ def test_work_handed_to_the_worker_equals_the_work_done_in_place() -> None:
     counts = sp.csr_matrix(rng.poisson(0.3, size=(200, 40)).astype(float) + np.eye(200, 40) * (labels[:, None] + 1))
     shown = [f"term{j}" for j in range(40)]
     results = []
+    rules_args = (counts, np.ones(200), labels, shown, None, {})
+    jobs: dict[str, Job] = {"map": (docmap.layout, (space, 4), {}),
+                            "rules": (explain_run, rules_args, {"k": 3, "seed": 4})}
     for background in (True, False):
-        with _Beside(background=background) as beside:
-            points = beside.submit(docmap.layout, space, 4)
-            rules = beside.submit(explain_run, counts, np.ones(200), labels, shown, None, {}, k=3, seed=4)
-            results.append((points(), rules()))
+        with _Beside(jobs, background=background) as beside:
+            results.append((beside.result("map"), beside.result("rules")))
     (points_beside, rules_beside), (points_here, rules_here) = results
     assert np.array_equal(points_beside, points_here)
     assert rules_beside == rules_here
@@ -131,6 +132,6 @@ def _layout_dying_in_a_worker(space: np.ndarray, seed: int) -> np.ndarray:
 
 def test_a_worker_that_dies_leaves_its_work_to_the_main_process() -> None:
     space, _ = _blobs(120, 3, 8, seed=6)
-    with _Beside(background=True) as beside:
-        points = beside.submit(_layout_dying_in_a_worker, space, 2)()
+    with _Beside({"map": (_layout_dying_in_a_worker, (space, 2), {})}, background=True) as beside:
+        points = beside.result("map")
     assert np.array_equal(points, _REAL_LAYOUT(space, 2))

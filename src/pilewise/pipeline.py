@@ -11,12 +11,12 @@ import itertools
 import multiprocessing
 import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import Future, ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING, TypeVar
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -31,7 +31,7 @@ from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair, compare_run_folders, comparison_document, site_comparisons
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
-from pilewise.describe.rules import explain_run
+from pilewise.describe.rules import RuleSet, explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends
@@ -481,10 +481,12 @@ def _described(
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
     rows = docmap.sample_rows(distinct, docmap.MAP_CAP, options.seed)
-    with _Beside(background=population is None and (options.workers or default_workers()) > 1) as beside:
-        map_points = beside.submit(docmap.layout, space[rows], options.seed)
-        rules_made = beside.submit(explain_run, prepared.vectors.counts, weights, clustering.labels, shown, metadata,
-                                   columns, k=k, seed=options.seed)
+    jobs: dict[str, Job] = {
+        "map": (docmap.layout, (space[rows], options.seed), {}),
+        "rules": (explain_run, (prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns),
+                  {"k": k, "seed": options.seed}),
+    }
+    with _Beside(jobs, background=population is None and (options.workers or default_workers()) > 1) as beside:
         with reporter.stage("assessing"):
             quality = assess(space, clustering.labels, k=k, seed=options.seed)
             sample = stability_rows(distinct, options.seed)
@@ -506,9 +508,9 @@ def _described(
             trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period,
                                   mixed=[c.mixed for c in clusters])
         with reporter.stage("explaining"):  # in the worker: the wait for it
-            rules = rules_made()
+            rules: RuleSet = beside.result("rules")
         with reporter.stage("laying out the map"):
-            points = map_points()
+            points: np.ndarray = beside.result("map")
     suggestions = [c.suggested_name for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
@@ -531,40 +533,54 @@ def _described(
     )
 
 
-T = TypeVar("T")
+Job = tuple[Callable[..., Any], tuple[Any, ...], dict[str, Any]]  # a function, its arguments, its keywords
+_handed: dict[str, Job] = {}  # the jobs of the worker being forked: it inherits them instead of a pickled copy
+
+
+def _run_handed(name: str) -> Any:
+    fn, args, kwargs = _handed[name]
+    return fn(*args, **kwargs)
 
 
 class _Beside:
     """Computations handed to one forked worker process, run there one after the other; or run in place.
 
-    Each `submit` returns a call that gives the result (waiting for it). The worker is forked at the first
-    submit, so it inherits the modules already imported; arguments and results travel pickled. A worker that
-    dies (out of memory, a signal) leaves its computations to the calling process, which runs them in place,
-    as it does without `background`. Leaving the block cancels what has not started.
+    The jobs are named when the block starts and the worker is forked then, so it inherits their arguments
+    (the term counts, tens of MB) instead of a pickled copy; only their names go to it and their results come
+    back pickled. `result(name)` waits for one. A worker that dies (out of memory, a signal) leaves its jobs
+    to the calling process, which runs them in place, as it does without `background`. Leaving the block
+    cancels what has not started.
     """
 
-    def __init__(self, *, background: bool) -> None:
-        self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork")) if background else None
+    def __init__(self, jobs: dict[str, Job], *, background: bool) -> None:
+        self.jobs = jobs
+        self.background = background
+        self.executor: ProcessPoolExecutor | None = None
+        self.futures: dict[str, Future[Any]] = {}
 
     def __enter__(self) -> _Beside:
+        if self.background:
+            global _handed
+            _handed = self.jobs
+            try:  # the worker is forked at the first submit and inherits the jobs
+                self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
+                self.futures = {name: self.executor.submit(_run_handed, name) for name in self.jobs}
+            finally:
+                _handed = {}
         return self
 
     def __exit__(self, *_: object) -> None:
         if self.executor is not None:
             self.executor.shutdown(wait=False, cancel_futures=True)
 
-    def submit(self, fn: Callable[..., T], *args: object, **kwargs: object) -> Callable[[], T]:
-        if self.executor is None:
-            return lambda: fn(*args, **kwargs)
-        future = self.executor.submit(fn, *args, **kwargs)
-
-        def result() -> T:
+    def result(self, name: str) -> Any:
+        fn, args, kwargs = self.jobs[name]
+        if name in self.futures:
             try:
-                return future.result()
+                return self.futures[name].result()
             except BrokenProcessPool:
-                return fn(*args, **kwargs)
-
-        return result
+                pass
+        return fn(*args, **kwargs)
 
 
 def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,
