@@ -202,3 +202,5 @@ class RunResult:
     trends: Trends | None = None  # None: no document has a readable date
     population: Population | None = None  # None: the pages describe every document
     languages: LanguageMix | None = None  # None: not detected (streaming mode without --language)
+    # the map's positions of output.docmap.sample_rows (n, 2); None: the site computes them when writing
+    map_points: np.ndarray | None = None

@@ -8,11 +8,15 @@ from __future__ import annotations
 
 import hashlib
 import itertools
+import multiprocessing
+import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import Future, ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from contextlib import ExitStack
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -27,7 +31,7 @@ from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair, compare_run_folders, comparison_document, site_comparisons
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
-from pilewise.describe.rules import explain_run
+from pilewise.describe.rules import RuleSet, explain_run
 from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends, counted_trends
@@ -54,6 +58,7 @@ from pilewise.options import (
     reading_settings,
     validate,
 )
+from pilewise.output import docmap
 from pilewise.output.exports import write_sweep_json
 from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
@@ -135,7 +140,9 @@ def run_collection(options: RunOptions, reporter: Reporter | None = None) -> Run
 
 def _write_run_and_model(folder: Path, result: RunResult, reporter: Reporter) -> None:
     """The run's exports and pages, and the model `pilewise assign` reads (model/)."""
+    start = time.perf_counter()
     save_model(folder, result)  # first, so that the pages' list of files names it
+    result.timings["saving the model"] = round(time.perf_counter() - start, 3)
     _write_run(folder, result, reporter)
 
 
@@ -301,9 +308,10 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                          f"groups; {near.representative.size:,} texts to cluster")
     check_k(k_needed, int(collection.copies.size),
             "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
-    text_languages = detect_languages(texts, options.language)
-    present = present_languages(text_languages, collection.copies) or ("en",)
-    reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
+    with reporter.stage("detecting languages"):
+        text_languages = detect_languages(texts, options.language)
+        present = present_languages(text_languages, collection.copies) or ("en",)
+        reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
                         languages=present)
     with reporter.stage("vectorizing"):
@@ -456,42 +464,58 @@ def _described(
     clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
     population: Population | None,
 ) -> RunResult:
-    """Assessing, describing and explaining a clustering: the stages every engine shares."""
+    """Assessing, describing and explaining a clustering (the stages every engine shares), and the map.
+
+    The map's t-SNE and the rules' 126 tree fits need only the space, the counts, the labels and the seed,
+    so they are handed to one worker process (`_Beside`) that runs them on the second core while assessing
+    and describing run here, where there is a second core (not beside Spark's threads). Their results are
+    the same either way (tested).
+    """
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
-    with reporter.stage("assessing"):
-        quality = assess(space, clustering.labels, k=k, seed=options.seed)
-        rows = stability_rows(distinct, options.seed)
-        stability = bootstrap_stability(
-            space[rows], weights[rows], clustering.labels[rows], k=k, resamples=options.resamples,
-            seed=options.seed, cluster_fn=_stability_fn(options.method, k),
-            track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
-        )
-    with reporter.stage("describing"):
-        clusters = describe_clusters(
-            prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-            top_terms=options.top_terms, stability=stability, totals=totals,
-        )
-        levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
-        levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
-                              k_max=k_max if tree is not None else k, run_k=k)
-        shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
-        levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
-        profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+    shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
+    doc_labels = clustering.labels[prepared.collection.text_of_doc]
+    with reporter.stage("table columns"):  # first: the rules read the categorical ones
         doc_columns = metadata_columns(prepared.collection)
         # every document counts, copies too: a copy of a text may carry other cells than its first document
-        doc_labels = clustering.labels[prepared.collection.text_of_doc]
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
-        mixed = [c.mixed for c in clusters]
-        if population is not None and population.dated is not None:  # counted over every document on Spark
-            trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period, mixed)
-        else:
-            trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
         first = prepared.collection.first_doc_of_text
         columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
-    with reporter.stage("explaining"):
-        rules = explain_run(prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns, k=k,
-                            seed=options.seed)
+    rows = docmap.sample_rows(distinct, docmap.MAP_CAP, options.seed)
+    jobs: dict[str, Job] = {
+        "map": (docmap.layout, (space[rows], options.seed), {}),
+        "rules": (explain_run, (prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns),
+                  {"k": k, "seed": options.seed}),
+    }
+    with _Beside(jobs, background=population is None and (options.workers or default_workers()) > 1) as beside:
+        with reporter.stage("assessing"):
+            quality = assess(space, clustering.labels, k=k, seed=options.seed)
+            sample = stability_rows(distinct, options.seed)
+            stability = bootstrap_stability(
+                space[sample], weights[sample], clustering.labels[sample], k=k, resamples=options.resamples,
+                seed=options.seed, cluster_fn=_stability_fn(options.method, k),
+                track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
+            )
+        with reporter.stage("describing"):
+            clusters = describe_clusters(
+                prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
+                top_terms=options.top_terms, stability=stability, totals=totals,
+            )
+            levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
+            levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
+                                  k_max=k_max if tree is not None else k, run_k=k)
+            levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
+            profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+            mixed = [c.mixed for c in clusters]
+            if population is not None and population.dated is not None:  # counted over every document on Spark
+                trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period,
+                                        mixed)
+            else:
+                trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
+        with reporter.stage("explaining"):  # in the worker: the wait for it
+            rules: RuleSet = beside.result("rules")
+        with reporter.stage("laying out the map"):
+            points: np.ndarray = beside.result("map")
     suggestions = [c.suggested_name for c in clusters]
     doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
@@ -510,7 +534,58 @@ def _described(
         fingerprint=prepared.fingerprint, timings=reporter.timings, trends=trends, population=population,
         languages=language_mix(prepared.text_languages, weights, clustering.labels, k,
                                forced=options.language is not None) if prepared.text_languages else None,
+        map_points=points,
     )
+
+
+Job = tuple[Callable[..., Any], tuple[Any, ...], dict[str, Any]]  # a function, its arguments, its keywords
+_handed: dict[str, Job] = {}  # the jobs of the worker being forked: it inherits them instead of a pickled copy
+
+
+def _run_handed(name: str) -> Any:
+    fn, args, kwargs = _handed[name]
+    return fn(*args, **kwargs)
+
+
+class _Beside:
+    """Computations handed to one forked worker process, run there one after the other; or run in place.
+
+    The jobs are named when the block starts and the worker is forked then, so it inherits their arguments
+    (the term counts, tens of MB) instead of a pickled copy; only their names go to it and their results come
+    back pickled. `result(name)` waits for one. A worker that dies (out of memory, a signal) leaves its jobs
+    to the calling process, which runs them in place, as it does without `background`. Leaving the block
+    cancels what has not started.
+    """
+
+    def __init__(self, jobs: dict[str, Job], *, background: bool) -> None:
+        self.jobs = jobs
+        self.background = background
+        self.executor: ProcessPoolExecutor | None = None
+        self.futures: dict[str, Future[Any]] = {}
+
+    def __enter__(self) -> _Beside:
+        if self.background:
+            global _handed
+            _handed = self.jobs
+            try:  # the worker is forked at the first submit and inherits the jobs
+                self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
+                self.futures = {name: self.executor.submit(_run_handed, name) for name in self.jobs}
+            finally:
+                _handed = {}
+        return self
+
+    def __exit__(self, *_: object) -> None:
+        if self.executor is not None:
+            self.executor.shutdown(wait=False, cancel_futures=True)
+
+    def result(self, name: str) -> Any:
+        fn, args, kwargs = self.jobs[name]
+        if name in self.futures:
+            try:
+                return self.futures[name].result()
+            except BrokenProcessPool:
+                pass
+        return fn(*args, **kwargs)
 
 
 def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,

@@ -231,7 +231,8 @@ def _render_map(
     docs, collection = result.collection.documents, result.collection
     rows = docmap.sample_rows(int(collection.copies.size), docmap.MAP_CAP, result.options.seed)
     space = result.vectors.space
-    points = docmap.layout(space[rows], result.options.seed)
+    # computed by the pipeline beside describing (pipeline._Beside); in place for a result built without it
+    points = result.map_points if result.map_points is not None else docmap.layout(space[rows], result.options.seed)
     marks = []
     for row, (x, y) in zip(rows, points, strict=True):
         first = int(collection.first_doc_of_text[row])
