@@ -122,7 +122,9 @@ def english_stop_words() -> frozenset[str]:
 def looks_english(text: str) -> bool:
     """The cheap test that spares plain English piles the detection model (see ENGLISH_STOP_SHARE)."""
     words = _ASCII_WORDS.findall(text.lower())
-    if len(words) < ENGLISH_MIN_WORDS or len(_NON_ASCII_LETTER.findall(text)) > ENGLISH_FOREIGN_LETTERS * len(words):
+    if len(words) < ENGLISH_MIN_WORDS:
+        return False
+    if not text.isascii() and len(_NON_ASCII_LETTER.findall(text)) > ENGLISH_FOREIGN_LETTERS * len(words):
         return False
     stop = english_stop_words()
     return sum(1 for w in words if w in stop or w.endswith("n't")) >= ENGLISH_STOP_SHARE * len(words)
@@ -133,12 +135,23 @@ def _short_and_plain(text: str) -> bool:
     return len(_ASCII_WORDS.findall(text.lower())) < ENGLISH_MIN_WORDS and _NON_ASCII_LETTER.search(text) is None
 
 
+def _enough_letters(sample: str) -> bool:
+    """At least MIN_LETTERS letters (``str.isalpha``) in `sample`; stops counting there."""
+    letters = 0
+    for char in sample:
+        if char.isalpha():
+            letters += 1
+            if letters >= MIN_LETTERS:
+                return True
+    return False
+
+
 def detect_language(text: str) -> str:
     """The ISO 639-1 code of `text`'s language, or "und" when the text is too short or the model unsure."""
     sample = text[:DETECT_CHARS]
     if looks_english(sample):
         return "en"
-    if sum(1 for ch in sample if ch.isalpha()) < MIN_LETTERS:
+    if not _enough_letters(sample):
         return UNDETERMINED
     code, probability = _model().classify(sample)
     return str(code) if probability >= MIN_CONFIDENCE else UNDETERMINED
@@ -159,7 +172,7 @@ def detect_languages(texts: Sequence[str], forced: str | None = None) -> tuple[s
         return tuple(code or UNDETERMINED for code in codes)
     asked = []
     for i in rest:
-        if sum(1 for ch in texts[i][:DETECT_CHARS] if ch.isalpha()) < MIN_LETTERS:
+        if not _enough_letters(texts[i][:DETECT_CHARS]):
             codes[i] = UNDETERMINED
         else:
             asked.append(i)
