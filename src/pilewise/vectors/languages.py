@@ -194,33 +194,37 @@ def classify_many(samples: Sequence[str]) -> list[str]:
     run in another order than in py3langid, so a score may differ in its last float32 bits; a code can
     change only for a text whose confidence lies that close to MIN_CONFIDENCE or to a tie.
     """
+    global _identifier
+    if not samples:
+        return []
+    model = _model()
+    automaton = _automaton(model)
     codes: list[str] = []
     for start in range(0, len(samples), CLASSIFY_BLOCK):
-        codes.extend(_classify_block(samples[start : start + CLASSIFY_BLOCK]))
+        codes.extend(_classify_block(samples[start : start + CLASSIFY_BLOCK], model, automaton))
+    # The model (about 80 MB with the arrays above) is needed again only by a later detection, which loads it
+    # anew (0.4 s): the run's later stages, whose peak memory is the run's, do not carry it.
+    _identifier = None
     return codes
 
 
-@cache
-def _automaton() -> tuple[Any, Any, Any, Any]:
-    """The model's automaton as numpy arrays: next states, row offsets, the feature of each state, log P(t|c).
-
-    Built on the first text that needs the model (about 0.1 s and 25 MB beside the model itself)."""
+def _automaton(model: Any) -> tuple[Any, Any, Any, Any]:
+    """The model's automaton as numpy arrays: next states, row offsets, the feature of each state, log P(t|c)
+    (about 0.1 s and 25 MB beside the model itself)."""
     import numpy as np
 
-    model = _model()
     nextmove = np.frombuffer(model.tk_nextmove, dtype=np.dtype(model.tk_nextmove.typecode))  # a view, no copy
     rowbase = np.frombuffer(model.tk_row, dtype=np.dtype(model.tk_row.typecode)).astype(np.int64) << 8
     output = np.asarray(model.tk_output, dtype=np.int32)
     return nextmove, rowbase, output, model.nb_ptc.astype(np.float32)  # 23 MB, once; py3langid's sums are float32
 
 
-def _classify_block(samples: Sequence[str]) -> list[str]:
+def _classify_block(samples: Sequence[str], model: Any, automaton: tuple[Any, Any, Any, Any]) -> list[str]:
     """Codes of one block of texts (see `classify_many`)."""
     import numpy as np
     import scipy.sparse as sp
 
-    model = _model()
-    nextmove, rowbase, output, ptc = _automaton()
+    nextmove, rowbase, output, ptc = automaton
     encoded = [model._encode(sample) for sample in samples]  # py3langid's own case folding, NFC and UTF-8
     lengths = np.array([len(raw) for raw in encoded], dtype=np.int64)
     order = np.argsort(-lengths, kind="stable")  # longest first: the texts still walking are a prefix
