@@ -60,6 +60,15 @@ def test_batched_detection_gives_py3langids_codes(monkeypatch: pytest.MonkeyPatc
     assert languages.classify_many([]) == []
 
 
+def test_batched_detection_in_workers_equals_one_process(monkeypatch: pytest.MonkeyPatch) -> None:
+    samples = [text[: languages.DETECT_CHARS] for text in _mixed_texts(300, seed=6)]
+    one = languages.classify_many(samples)
+    monkeypatch.setattr(languages, "CLASSIFY_BLOCK", 32)
+    monkeypatch.setattr(languages, "CLASSIFY_PARALLEL_MIN", 10)  # force the worker path on a small input
+    assert languages.classify_many(samples, workers=2) == one
+    assert languages.detect_languages(samples, workers=2) == languages.detect_languages(samples)
+
+
 def test_detect_languages_equals_detecting_one_text_at_a_time() -> None:
     texts = _mixed_texts(300, seed=9) + ["The parcel arrived broken and the box was wet.", "ok", "x1 y2"]
     batched = languages.detect_languages(texts)
