@@ -146,3 +146,13 @@ def test_lsa_projected_in_blocks_equals_one_projection() -> None:
 def test_sorted_distinct_equals_numpy_unique(values: list[int]) -> None:
     array = np.array(values, dtype=np.int64)
     assert np.array_equal(tfidf._sorted_distinct(array.copy()), np.unique(array))  # numpy docs: sorted unique
+
+
+@given(st.text(alphabet=st.sampled_from("a1:@ ٣.-"), max_size=20))
+def test_redaction_gate_finds_what_the_character_class_finds(text: str) -> None:
+    import re
+
+    from pilewise.ingest import redact
+
+    # the class every redacted kind needs (redact module docstring): an ASCII digit, "@" or ":"
+    assert any(char in text for char in redact._TRIGGERS) == (re.search(r"[0-9@:]", text) is not None)
