@@ -69,6 +69,13 @@ def test_batched_detection_in_workers_equals_one_process(monkeypatch: pytest.Mon
     assert languages.detect_languages(samples, workers=2) == languages.detect_languages(samples)
 
 
+def test_other_model_layouts_fall_back_to_classify(monkeypatch: pytest.MonkeyPatch) -> None:
+    samples = [text[: languages.DETECT_CHARS] for text in _mixed_texts(40, seed=8)]
+    expected = _per_text_codes(samples)
+    monkeypatch.setattr(languages, "_BATCH_NEEDS", ("an_attribute_no_layout_has",))
+    assert languages.classify_many(samples) == expected
+
+
 def test_detect_languages_equals_detecting_one_text_at_a_time() -> None:
     texts = _mixed_texts(300, seed=9) + ["The parcel arrived broken and the box was wet.", "ok", "x1 y2"]
     batched = languages.detect_languages(texts)

@@ -154,7 +154,11 @@ def detect_language(text: str) -> str:
         return "en"
     if not _enough_letters(sample):
         return UNDETERMINED
-    code, probability = _model().classify(sample)
+    return _confident(*_model().classify(sample))
+
+
+def _confident(code: str, probability: float) -> str:
+    """The model's code when it is sure enough (MIN_CONFIDENCE), else "und"."""
     return str(code) if probability >= MIN_CONFIDENCE else UNDETERMINED
 
 
@@ -183,6 +187,8 @@ def detect_languages(texts: Sequence[str], forced: str | None = None, workers: i
     return tuple(codes)
 
 
+# What the batched path reads of py3langid's identifier (its 0.4 layout: one feature per automaton state)
+_BATCH_NEEDS = ("tk_nextmove", "tk_row", "tk_output", "nb_ptc", "nb_pc", "nb_classes", "_alias_pairs", "_encode")
 CLASSIFY_BLOCK = 2048  # texts walked together: a block's padded bytes stay a few MB
 
 
@@ -214,6 +220,8 @@ def classify_many(samples: Sequence[str], workers: int = 1) -> list[str]:
     if not samples:
         return []
     model = _model()
+    if not all(hasattr(model, name) for name in _BATCH_NEEDS):  # another py3langid layout: its own classify
+        return [_confident(*model.classify(sample)) for sample in samples]
     automaton = _automaton(model)
     starts = range(0, len(samples), CLASSIFY_BLOCK)
     codes: list[str] = []
