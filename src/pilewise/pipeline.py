@@ -309,7 +309,7 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
     check_k(k_needed, int(collection.copies.size),
             "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
     with reporter.stage("detecting languages"):
-        text_languages = detect_languages(texts, options.language)
+        text_languages = detect_languages(texts, options.language, workers=options.workers or default_workers())
         present = present_languages(text_languages, collection.copies) or ("en",)
         reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,

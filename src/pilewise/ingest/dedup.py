@@ -474,7 +474,7 @@ def normalize_line(line: str, own_names: frozenset[str] = frozenset()) -> str:
     for name in own_names:
         if name in pattern:
             pattern = re.sub(rf"(?<![\w\-]){re.escape(name)}(?![\w\-])", "<name>", pattern)
-    if any(char.isdigit() for char in pattern):
+    if _has_digit(pattern):
         pattern = _MONTH.sub("<month>", _NUMBERISH.sub("#", pattern))
     if pattern == plain:
         return plain
@@ -482,11 +482,24 @@ def normalize_line(line: str, own_names: frozenset[str] = frozenset()) -> str:
     return pattern if letters >= BOILERPLATE_PATTERN_LETTERS else plain
 
 
+_ASCII_DIGIT = re.compile(r"[0-9]")
+
+
+def _has_digit(text: str) -> bool:
+    """Whether any character of `text` is a digit by ``str.isdigit``; a regular search on ASCII text, where
+    the two agree (the character loop took most of `find_boilerplate`'s time on long lines)."""
+    if text.isascii():
+        return _ASCII_DIGIT.search(text) is not None
+    return any(map(str.isdigit, text))
+
+
 def own_names(text: str) -> frozenset[str]:
     """The document's own name as its header gives it: NAME of every NAME(section) in its first non-empty
     line, lower-cased (a manual page's "LS(1)  User Commands  LS(1)" gives "ls")."""
     for line in text.splitlines():
         if line.strip():
+            if "(" not in line:  # no NAME(section) can match; the search is slow on a long first line
+                return frozenset()
             return frozenset(m.group(1).lower() for m in _OWN_NAME.finditer(line))
     return frozenset()
 
@@ -553,7 +566,7 @@ def find_boilerplate(
     for text in texts:
         names = own_names(text)
         counts.update({normalize_line(line, names) for line in text.splitlines()
-                       if len(" ".join(line.split())) >= min_chars})  # the length as written, not of the pattern
+                       if len(line) >= min_chars and len(" ".join(line.split())) >= min_chars})  # as written
     # Rounded first so that, say, 0.07 * 100 asks for 7 texts and not 8.
     needed = max(min_docs, math.ceil(round(min_share * len(texts), 9)))
     lines = sorted(((line, count) for line, count in counts.items() if count >= needed),
