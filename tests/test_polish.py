@@ -2,11 +2,16 @@
 
 from __future__ import annotations
 
+import re
 import struct
 import zlib
 from pathlib import Path
 
+import numpy as np
+import pytest
+
 from helpers import LIMITS, assert_one_line_error, invoke, read
+from pilewise.describe.trends import cluster_trends, fitted_share_change, fitted_share_ends
 from pilewise.ingest.plaintext import decodes_cleanly
 from pilewise.ingest.reading import SNIFF_BYTES
 from pilewise.ingest.tables import ColumnChoice
@@ -111,3 +116,59 @@ def test_one_file_of_no_known_type_as_source(tmp_path: Path) -> None:
     result = invoke("run", str(program), "--k", "2", "--out", str(tmp_path / "out"), "--quiet")
     assert_one_line_error(result, "'true' holds binary content (NUL or control bytes in its first 8 KB) and no known "
                                   "file type; pass a folder, a text file, or a .csv/.tsv/.json/.jsonl/.parquet table")
+
+
+# --- trends: a share that vanishes ------------------------------------------------------------------------------
+
+
+def _weighted_line(counts: np.ndarray, totals: np.ndarray) -> np.poly1d:
+    """The least-squares line of the period shares weighted by the period totals, by numpy.polyfit (its docs:
+    `w` multiplies the residuals, so weights n are passed as sqrt(n)); an independent computation."""
+    held = totals > 0
+    s = np.arange(totals.size, dtype=float)[held]
+    return np.poly1d(np.polyfit(s, counts[held] / totals[held], 1, w=np.sqrt(totals[held])))
+
+
+def test_fitted_share_ends_are_the_weighted_least_squares_line() -> None:
+    counts, totals = np.array([3, 0, 9, 4, 12]), np.array([20, 0, 30, 25, 40])
+    line = _weighted_line(counts, totals)
+    first, last = fitted_share_ends(counts, totals) or (0.0, 0.0)
+    assert (first, last) == pytest.approx((line(0), line(4)), rel=1e-9)
+    # the relative change of trends.fitted_share_change is the same line's rise over the pooled share
+    assert fitted_share_change(counts, totals) == pytest.approx((last - first) / (counts.sum() / totals.sum()))
+    assert fitted_share_ends(np.array([0, 0]), np.array([5, 5])) is None  # no member: nothing to fit
+
+
+def _vanishing() -> tuple[list[str], np.ndarray]:
+    """Eight months of 20 documents; cluster 0 holds half of each of the first four months and nothing after."""
+    dates, labels = [], []
+    for month in range(1, 9):
+        for day in range(1, 21):
+            dates.append(f"2024-{month:02d}-{day:02d}")
+            labels.append(0 if month <= 4 and day <= 10 else 1)
+    return dates, np.array(labels)
+
+
+def test_a_cluster_that_vanishes_halfway_reads_falls_to_about_zero() -> None:
+    dates, labels = _vanishing()
+    trends = cluster_trends(dates, labels, 2, period="month")
+    assert trends is not None
+    gone, grown = trends.clusters
+    totals = np.array(trends.totals)
+    line = _weighted_line(np.array([p.count for p in gone.periods]), totals)
+    assert line(7) < 0  # the straight line itself ends below zero: the statement must not follow it there
+    assert gone.reading == "falling"
+    assert f"fitted share from {line(0):.1%} to about zero over the span" in gone.evidence
+    assert re.search(r"[-−]\d{3,}%", gone.evidence) is None  # no "-311%": a share cannot fall by more than all
+    assert "to about 100% over the span" in grown.evidence  # the mirror image ends above 1
+
+
+def test_a_trend_inside_zero_and_one_keeps_its_relative_change() -> None:
+    # shares 10%, 20%, 30%, 40% of 100 documents a month: the line runs from 10% to 40% exactly
+    dates = [f"2024-{m:02d}-01" for m in range(1, 5) for _ in range(100)]
+    labels = np.array([0 if i < 10 * m else 1 for m in range(1, 5) for i in range(100)])
+    trends = cluster_trends(dates, labels, 2, period="month")
+    assert trends is not None
+    rising = trends.clusters[0]
+    # mean share 25%, change 30 points: +120% of the mean share (computed by hand)
+    assert "fitted share from 10.0% to 40.0% over the span (+120% of its mean share)" in rising.evidence
