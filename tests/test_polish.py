@@ -2,19 +2,24 @@
 
 from __future__ import annotations
 
+import csv
+import json
 import re
+import shutil
 import struct
 import zlib
 from pathlib import Path
 
 import numpy as np
 import pytest
+from bs4 import BeautifulSoup
 
-from helpers import LIMITS, assert_one_line_error, invoke, read
+from helpers import LIMITS, TOPICS, assert_one_line_error, invoke, read, write_topic_folder
 from pilewise.describe.trends import cluster_trends, fitted_share_change, fitted_share_ends
 from pilewise.ingest.plaintext import decodes_cleanly
 from pilewise.ingest.reading import SNIFF_BYTES
 from pilewise.ingest.tables import ColumnChoice
+from pilewise.output.search import SNIPPET_CHARS, SearchDocument, index_script
 
 # --- files without a known extension ------------------------------------------------------------------------
 
@@ -172,3 +177,86 @@ def test_a_trend_inside_zero_and_one_keeps_its_relative_change() -> None:
     rising = trends.clusters[0]
     # mean share 25%, change 30 points: +120% of the mean share (computed by hand)
     assert "fitted share from 10.0% to 40.0% over the span (+120% of its mean share)" in rising.evidence
+
+
+# --- the site: assigned runs on the root index, the same top navigation on every run page ------------------------
+
+
+@pytest.fixture(scope="module")
+def site(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A site with a run at k = 3, a run choosing k (so it has sweep.html), and one assignment into k3."""
+    base = tmp_path_factory.mktemp("polish-site")
+    write_topic_folder(base / "notes", per_topic=12)
+    out = base / "site"
+    for extra in (["--k", "3", "--name", "k3"], ["--k", "auto", "--k-range", "2:4", "--name", "chosen"]):
+        result = invoke("run", str(base / "notes"), "--out", str(out), "--quiet", *extra)
+        assert result.exit_code == 0, result.output
+    new = base / "new"
+    new.mkdir()
+    for i, topic in enumerate(TOPICS):
+        (new / f"new-{i}.txt").write_text(" ".join(TOPICS[topic]) + "\n", encoding="utf-8")
+    result = invoke("assign", str(out / "runs" / "k3"), str(new), "--name", "fresh", "--quiet")
+    assert result.exit_code == 0, result.output
+    return out
+
+
+def _soup(path: Path) -> BeautifulSoup:
+    return BeautifulSoup(path.read_text(encoding="utf-8"), "html.parser")
+
+
+def test_the_root_index_links_every_assignment_and_its_run(site: Path) -> None:
+    rows = _soup(site / "index.html").select("#assigned tbody tr")
+    assert len(rows) == 1
+    links = {a.get_text(): a["href"] for a in rows[0].find_all("a")}
+    assert links == {"fresh": "assigned/fresh/index.html", "k3": "runs/k3/index.html"}
+    assert all((site / href).is_file() for href in links.values())
+    # the documents column counts assigned.csv's rows (Python csv module docs: one record per row)
+    with (site / "assigned" / "fresh" / "assigned.csv").open(encoding="utf-8", newline="") as handle:
+        placed = len(list(csv.DictReader(handle)))
+    assert placed == 3 and rows[0].find_all("td")[2].get_text() == str(placed)
+
+
+def test_a_later_run_keeps_the_assignments_and_notes_a_damaged_one(site: Path, tmp_path: Path) -> None:
+    copy = tmp_path / "site"
+    shutil.copytree(site, copy)
+    damaged = copy / "assigned" / "broken"
+    shutil.copytree(copy / "assigned" / "fresh", damaged)
+    (damaged / "assigned.json").write_text("{not json", encoding="utf-8")
+    result = invoke("run", str(site.parent / "notes"), "--out", str(copy), "--k", "2", "--name", "k2", "--quiet")
+    assert result.exit_code == 0, result.output
+    page = _soup(copy / "index.html")
+    assert [a.get_text() for a in page.select("#assigned tbody tr td:first-child a")] == ["fresh"]
+    notes = [li.get_text() for li in page.select("#notes li")]
+    assert len(notes) == 1 and notes[0].startswith("assigned/broken is not listed: its assigned.json cannot be read")
+
+
+RUN_PAGES = {"index.html", "map.html", "levels.html", "tree.html", "comparisons.html", "ingest.html", "files.html"}
+
+
+def test_every_page_of_a_run_reaches_the_same_top_level_pages(site: Path) -> None:
+    for run, extra in (("k3", set()), ("chosen", {"sweep.html"})):
+        folder = site / "runs" / run
+        expected = {folder / name for name in RUN_PAGES | extra}
+        assert all(path.is_file() for path in expected)
+        pages = [p for p in folder.rglob("*.html")]
+        kinds = {p.name.split("-")[0] if p.parent == folder else p.parent.name for p in pages}
+        assert {"cluster", "docs", "map.html", "levels.html", "tree.html", "files.html"} <= kinds
+        for page in pages:
+            nav = _soup(page).find("header").find("nav")
+            reached = {(page.parent / a["href"]).resolve() for a in nav.find_all("a")}
+            assert {p.resolve() for p in expected} <= reached, page
+            assert (site / "index.html").resolve() in reached, page
+            assert all(target.is_file() for target in reached), page
+
+
+def test_search_snippets_end_at_a_word_boundary() -> None:
+    words = [f"word{i}" for i in range(200)]
+    text = "  ".join(words)
+    data = json.loads(index_script([], [SearchDocument("t", text, 0, "d.html")]).removeprefix(
+        "window.pilewiseSearch = ").removesuffix(";\n"))
+    snippet = data["docs"][0][1]
+    folded = " ".join(words)
+    # common practice: a cut excerpt ends in an ellipsis after a whole word, within the limit
+    assert snippet.endswith("…") and len(snippet) <= SNIPPET_CHARS
+    kept = snippet.removesuffix("…")
+    assert folded.startswith(kept) and folded[len(kept)] == " "

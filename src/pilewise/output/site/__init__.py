@@ -7,6 +7,7 @@ pages show raw document text, which is never trusted HTML.
 from __future__ import annotations
 
 import os
+import posixpath
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
@@ -20,7 +21,7 @@ from markupsafe import Markup
 from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair
 from pilewise.describe.rules import RULES_ROWS
-from pilewise.describe.runfolders import FinishedRun, FinishedSweep
+from pilewise.describe.runfolders import FinishedAssignment, FinishedRun, FinishedSweep
 from pilewise.describe.snippets import clip_text
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
@@ -345,7 +346,7 @@ def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source:
     page = folder / ("sweep.html" if in_run else "index.html")
     _write(page, _environment().get_template("sweep.html").render(
         run=name, sweep=sweep, rule=RECOMMENDATION_RULE, in_run=in_run, source=source, method=method,
-        caution=CAUTION, css=STYLESHEET, up="../../"))
+        caution=CAUTION, css=STYLESHEET, up="" if in_run else "../../", finder=in_run))
     return page
 
 
@@ -593,11 +594,12 @@ def private_text(text: str) -> str:
 
 def render_root_index(
     out: Path, runs: Sequence[FinishedRun], pairs: Sequence[tuple[RunPair, Path]], sweeps: Sequence[FinishedSweep],
-    notes: Sequence[str],
+    notes: Sequence[str], assigned: Sequence[FinishedAssignment] = (),
 ) -> Path:
     """(Re)write OUT/index.html and every listed run's comparisons.html from finished records.
 
-    `pairs` are the comparisons written, each with its page; `notes` name what was left out. The
+    `pairs` are the comparisons written, each with its page; `assigned` the `pilewise assign` folders;
+    `notes` name what was left out. The
     caller holds the site's lock. Run folders are finished, so their comparisons.html is replaced
     atomically.
     """
@@ -610,6 +612,7 @@ def render_root_index(
                 for p in listed if name in (p["a"], p["b"])]
         write_text_atomically(out / "runs" / name / "comparisons.html", env.get_template("comparisons.html").render(
             run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up="",
+            has_sweep=(run.folder / "sweep.html").is_file(),
             finder=(run.folder / search.INDEX_FILE).is_file()))  # runs written before search have none
     _copy_stylesheet(out, atomic=True)
     page = out / "index.html"
@@ -617,8 +620,26 @@ def render_root_index(
         runs=[_run_line(run) for run in runs], comparisons=listed,
         sweeps=[{"name": s.folder.name, "href": f"sweeps/{quote(s.folder.name)}/index.html", "k": s.recommended_k,
                  "reason": s.reason} for s in sweeps],
+        assigned=[_assigned_line(a) for a in assigned],
         notes=list(notes), caution=CAUTION, css=STYLESHEET, up=""))
     return page
+
+
+def _assigned_line(found: FinishedAssignment) -> dict[str, Any]:
+    """The root index's line for one `pilewise assign` folder; its run linked where assigned.json says."""
+    folder = f"assigned/{quote(found.folder.name)}"
+    # run_href is relative to the assignment's folder (already URL-safe path parts from os.path.relpath)
+    run_href = posixpath.normpath(f"{folder}/{quote(found.run_href)}") if found.run_href else ""
+    return {
+        "name": found.folder.name,
+        "href": f"{folder}/index.html",
+        "run": found.run,
+        "run_href": run_href,
+        "documents": found.documents,
+        "fits": ", ".join(f"{found.fits[fit]:,} {fit}" for fit in ("good", "weak", "none") if fit in found.fits),
+        "source": private_text(found.source),
+        "created": found.created,
+    }
 
 
 def _run_line(run: FinishedRun) -> dict[str, Any]:
