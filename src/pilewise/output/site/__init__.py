@@ -106,6 +106,7 @@ def render_run_site(
         "distinct": result.population.texts if result.population else int(result.collection.copies.size),
         "skipped": result.population.skipped if result.population else len(result.ingested.skipped()),
         "quality": result.quality,
+        "silhouette_note": after_figure(result.quality.silhouette_reading, result.quality.silhouette),
         "with_doc_pages": with_doc_pages,
         "doc_page_cap": DOC_PAGE_CAP,
         "members_listed": MEMBERS_LISTED,
@@ -128,7 +129,8 @@ def render_run_site(
     _write(folder / "tree.html", env.get_template("tree.html").render(
         common, rules=result.rules, root=result.rules.whole_tree, has_metadata=result.metadata is not None,
         rows=min(int(result.collection.copies.size), RULES_ROWS),
-        names={c.cluster_id: c.shown for c in result.naming.clusters}, up=""))
+        names={c.cluster_id: c.shown for c in result.naming.clusters},
+        hrefs={c.cluster_id: cluster_page_name(c.cluster_id) for c in result.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
     _write(folder / "index.html", env.get_template("run_index.html").render(
@@ -567,7 +569,9 @@ def render_comparison(folder: Path, out: Path, document: dict[str, Any], run_a: 
               "headline_b": clip_text(p["headline_b"], LABEL_CHARS),
               "documents": [_moved_row(m, pages_b) for m in p["documents"]]}
              for p in document["moved"].get("pairs", [])[:MOVED_PAIRS_ON_PAGE]]
-    fates = {side: [{**f, "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
+    # headlines cut as in the moved pairs below: a table row per cluster stays a line or two high
+    fates = {side: [{**f, "headline": clip_text(str(f["headline"]), LABEL_CHARS),
+                     "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
              for side in ("fates_a", "fates_b")}
     homes = [out / "index.html", *(f.resolve().parent.parent / "index.html" for f in (run_a, run_b)
                                    if f.resolve().parent.name == "runs")]
@@ -642,6 +646,15 @@ def _assigned_line(found: FinishedAssignment) -> dict[str, Any]:
     }
 
 
+def after_figure(reading: str, value: float | int | None) -> str:
+    """A reading without the figure it starts with, for a page that shows the figure just before it
+    ("0.162 against 0.066 ..." beside 0.162 reads "against 0.066 ...")."""
+    if value is None:
+        return reading
+    shown = f"{value:.3f} "
+    return reading.removeprefix(shown) if reading.startswith(shown) else reading
+
+
 def _run_line(run: FinishedRun) -> dict[str, Any]:
     """The root index's line for one run."""
     return {
@@ -650,7 +663,7 @@ def _run_line(run: FinishedRun) -> dict[str, Any]:
         "k": run.k,
         "documents": run.clustered,
         "silhouette": run.silhouette,
-        "reading": run.silhouette_reading,
+        "reading": after_figure(run.silhouette_reading, run.silhouette),
         "created": run.created,
         "source": private_text(run.source),
         "headlines": [c.headline for c in run.clusters[:3]],
