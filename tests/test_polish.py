@@ -260,3 +260,14 @@ def test_search_snippets_end_at_a_word_boundary() -> None:
     assert snippet.endswith("…") and len(snippet) <= SNIPPET_CHARS
     kept = snippet.removesuffix("…")
     assert folded.startswith(kept) and folded[len(kept)] == " "
+
+
+def test_pages_show_a_figure_once_and_the_tree_links_its_clusters(site: Path) -> None:
+    """Regression: the root index showed "0.162 0.162 against 0.066 ..." (the reading repeats its figure)."""
+    for row in _soup(site / "index.html").select("table.runs")[0].select("tbody tr"):
+        cell = " ".join(row.find_all("td")[3].get_text().split())
+        figure = cell.split(" ")[0]
+        assert cell.count(figure) == 1, cell
+    run = site / "runs" / "k3"
+    tree_links = [a["href"] for a in _soup(run / "tree.html").select("ul.tree a")]
+    assert tree_links and all((run / href).is_file() and href.startswith("cluster-") for href in tree_links)
