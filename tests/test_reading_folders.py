@@ -87,8 +87,10 @@ def test_a_file_without_suffix_that_starts_with_a_from_line_is_a_mailbox(tmp_pat
     assert [(d.doc_id, d.title, d.text) for d in ingested.documents] == [
         ("Inbox#msg1", "Spoke broke", "A spoke broke on the trail."),
         ("Inbox#msg2", "Mulch", "Which mulch for roses?"),
+        # not a mailbox: a file of no known type read as plain text (tests/test_polish.py)
+        ("NOTES", "From here the garden at 10:30 looked dry.", "From here the garden at 10:30 looked dry."),
     ]
-    assert _entries(ingested, "NOTES") == [("skipped", "unsupported", "file type (none)")]
+    assert _entries(ingested, "NOTES") == [("document", "read", "file type (none) read as plain text")]
     assert _entries(ingested, "old.mbx") == [("skipped", "empty", "no messages: no line starts with 'From '")]
 
 

@@ -32,7 +32,7 @@ from pilewise.describe.compare import RunPair, compare_run_folders, comparison_d
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import RuleSet, explain_run
-from pilewise.describe.runfolders import read_site_runs, read_site_sweeps
+from pilewise.describe.runfolders import read_site_assigned, read_site_runs, read_site_sweeps
 from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends, counted_trends
 from pilewise.errors import PilewiseError
@@ -60,7 +60,7 @@ from pilewise.options import (
 )
 from pilewise.output import docmap
 from pilewise.output.exports import write_sweep_json
-from pilewise.output.outfolder import claim_site, owned, site_lock, writing_to
+from pilewise.output.outfolder import claim_site, is_marked, owned, site_lock, writing_to
 from pilewise.output.site import render_root_index, render_sweep
 from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run, write_comparison
 from pilewise.progress import Reporter
@@ -211,7 +211,8 @@ def compare_runs(run_a: Path, run_b: Path, out: Path | None = None) -> Path:
 def refresh_site(out: Path, warn: Callable[[str], None] | None = None) -> Path:
     """Compare the site's runs of one collection and (re)write the comparisons and the root index.
 
-    Runs, sweeps and comparisons that cannot be read are left out and named in a note on the page
+    The root index lists runs, sweeps and `pilewise assign` folders. Runs, sweeps, assignments and
+    comparisons that cannot be read are left out and named in a note on the page
     (and given to `warn`); they never stop the index. One writer at a time (the site's lock).
     """
     out.mkdir(parents=True, exist_ok=True)
@@ -226,11 +227,12 @@ def refresh_site(out: Path, warn: Callable[[str], None] | None = None) -> Path:
             except PilewiseError as err:
                 notes.append(f"a comparison was left out: {err}")
         sweeps, more = read_site_sweeps(out / "sweeps")
-        notes = list(dict.fromkeys([*notes, *more]))
+        assigned, unread = read_site_assigned(out / "assigned", is_marked)
+        notes = list(dict.fromkeys([*notes, *more, *unread]))
         if warn is not None:
             for note in notes:
                 warn(note)
-        return render_root_index(out, runs, written, sweeps, notes)
+        return render_root_index(out, runs, written, sweeps, notes, assigned)
 
 
 @dataclass(frozen=True)

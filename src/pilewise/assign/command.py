@@ -28,6 +28,7 @@ from pilewise.output.assigned_site import AssignedCluster, AssignedRow, Assignme
 from pilewise.output.exports import build_time
 from pilewise.output.outfolder import claim_site, inside, name_lock, safe_name, writing_to
 from pilewise.output.writing import _write_atomically
+from pilewise.pipeline import refresh_site
 from pilewise.progress import Reporter
 
 FIT_RULE = (f"Fit compares a document's cosine distance with the run's own members: good when it is no farther "
@@ -94,6 +95,7 @@ def assign_source(run: Path, reading: RunOptions, *, out: Path | None, name: str
             if assignment.warning:
                 reporter.warn(assignment.warning)
             _write_atomically(target, lambda staging: write_assigned_folder(staging, assignment))
+        refresh_site(out, warn=reporter.warn)  # the root index links every assignment, as it links runs
     return AssignOutcome(target, target / "index.html", len(assignment.rows), assignment.none_share,
                          assignment.warning)
 

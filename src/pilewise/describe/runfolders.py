@@ -1,4 +1,5 @@
-"""The one reader of finished folders under OUT: runs (OUT/runs/NAME) and sweeps (OUT/sweeps/NAME).
+"""The one reader of finished folders under OUT: runs (OUT/runs/NAME), sweeps (OUT/sweeps/NAME) and
+assignments (OUT/assigned/NAME).
 
 Name carry-over (`describe.names`), comparisons (`describe.compare`) and the root index all read earlier
 runs through this module. It lives in describe/ (not output/) because describe/ may not import output/,
@@ -85,6 +86,19 @@ class FinishedSweep:
     folder: Path
     recommended_k: object
     reason: str
+
+
+@dataclass(frozen=True)
+class FinishedAssignment:
+    """What assigned.json of one `pilewise assign` folder records (empty fields where it is missing)."""
+
+    folder: Path
+    run: str  # the name of the run the documents were placed in
+    run_href: str  # that run's index page, relative to the assignment's folder
+    source: str
+    created: str
+    documents: int | None
+    fits: dict[str, int]  # good, weak, none -> documents
 
 
 def finished_folders(folder: Path) -> list[Path]:
@@ -233,6 +247,33 @@ def read_site_sweeps(sweeps_folder: Path) -> tuple[list[FinishedSweep], list[str
             continue
         sweeps.append(FinishedSweep(folder, found.get("recommended_k"), str(found.get("reason", ""))))
     return sweeps, notes
+
+
+def read_site_assigned(
+    assigned_folder: Path, ours: Callable[[Path], bool]
+) -> tuple[list[FinishedAssignment], list[str]]:
+    """Every folder of OUT/assigned that pilewise wrote (`ours`), and a note for each that cannot be read.
+
+    A folder written before assigned.json existed is listed with its name only.
+    """
+    found: list[FinishedAssignment] = []
+    notes: list[str] = []
+    for folder in finished_folders(assigned_folder):
+        where = f"{assigned_folder.name}/{folder.name}"
+        if not ours(folder):
+            notes.append(f"{where} is not listed: pilewise did not write it (no .pilewise marker)")
+            continue
+        try:
+            record = read_json_object(folder / "assigned.json") if (folder / "assigned.json").exists() else {}
+        except DamagedRun as err:
+            notes.append(f"{where} is not listed: its assigned.json {err.problem}")
+            continue
+        documents, fits = _number(record.get("documents")), record.get("fits")
+        found.append(FinishedAssignment(
+            folder, str(record.get("run", "")), str(record.get("run_href", "")), str(record.get("source", "")),
+            str(record.get("created", "")), documents if isinstance(documents, int) else None,
+            {str(k): v for k, v in fits.items() if isinstance(v, int)} if isinstance(fits, dict) else {}))
+    return found, notes
 
 
 def read_json_object(path: Path) -> dict[str, Any]:

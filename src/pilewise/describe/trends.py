@@ -55,6 +55,8 @@ class ClusterTrend:
     q_value: float | None  # Benjamini-Hochberg adjusted p-value across the tested clusters
     share_change: float | None = None  # fitted change of the share over the span, relative to the mean share
     caution: str = ""  # a note on reading the trend (a mixed cluster's counts mix several themes)
+    # the fitted line's share at the first and the last period holding documents (may lie below 0 or above 1)
+    fitted_shares: tuple[float, float] | None = None
 
     @property
     def evidence(self) -> str:
@@ -63,12 +65,38 @@ class ClusterTrend:
             return f"{self.dated} dated documents: too few to read a trend"
         tested = f"Cochran-Armitage z = {self.z:+.2f}, adjusted p = {self.q_value:.3g}" if self.z is not None else ""
         if self.share_change is not None:
-            tested += f"; fitted share change over the span {self.share_change:+.0%} of its mean share"
+            tested += f"; {self._fitted_change()}"
             if self.reading == "steady" and self.q_value is not None and self.q_value < SIGNIFICANCE:
                 tested += f", below the {MIN_RELATIVE_CHANGE:.0%} that a trend needs"
         if self.reading == "new":
             return f"{self.latest_share:.0%} of its dated documents fall in the latest quarter of the span; {tested}"
         return tested
+
+
+    def _fitted_change(self) -> str:
+        """The fitted line's change in words that stay true where the line leaves 0..1.
+
+        A straight line fitted to a share that drops to nothing (a theme that stops halfway) ends below
+        zero, and its change can exceed the mean share ("-311% of its mean share"); shares themselves stay
+        between 0 and 1, so such an end is stated as "about zero" (or "about 100%") and the relative change
+        is left out.
+        """
+        if self.fitted_shares is None:
+            return f"fitted share change over the span {self.share_change:+.0%} of its mean share"
+        first, last = (_share_words(share) for share in self.fitted_shares)
+        line = f"fitted share from {first} to {last} over the span"
+        if min(self.fitted_shares) < 0 or max(self.fitted_shares) > 1:
+            return line
+        return f"{line} ({self.share_change:+.0%} of its mean share)"
+
+
+def _share_words(share: float) -> str:
+    """A fitted share as a percentage, or "about zero" / "about 100%" where the line leaves 0..1."""
+    if share < 0.0005:
+        return "about zero"
+    if share > 0.9995:
+        return "about 100%"
+    return f"{share:.1%}"
 
 
 @dataclass(frozen=True)
@@ -216,6 +244,22 @@ def day_counts(dates: Sequence[str], labels: np.ndarray) -> DatedCounts:
     return DatedCounts(cells[:, 0].astype("datetime64[D]"), cells[:, 1], counts.astype(np.int64), undated, unreadable)
 
 
+def fitted_share_ends(counts: np.ndarray, totals: np.ndarray) -> tuple[float, float] | None:
+    """The shares on the line of `fitted_share_change` at the first and the last period holding documents.
+
+    None when the share cannot be fitted. The ends are the line's values, not clipped: a share that
+    drops to nothing gives a line ending below zero.
+    """
+    n, x = np.asarray(totals, dtype=float), np.asarray(counts, dtype=float)
+    held = np.flatnonzero(n > 0)
+    if held.size < 2 or x.sum() <= 0:
+        return None
+    s = np.arange(n.size, dtype=float)
+    mean_s, pooled = (n * s).sum() / n.sum(), x.sum() / n.sum()
+    slope = float((s - mean_s) @ (x - n * pooled)) / float((n * (s - mean_s) ** 2).sum())
+    return float(pooled + slope * (held[0] - mean_s)), float(pooled + slope * (held[-1] - mean_s))
+
+
 def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None,
                    mixed: Sequence[bool] = ()) -> Trends | None:
     """Counts per period and a trend reading for each of the k clusters; None when no date can be read.
@@ -265,6 +309,7 @@ def counted_trends(dated: DatedCounts, k: int, period: str | None = None,
                           for start, count, total in zip(starts, table[c], totals, strict=True)),
             dated=members, latest_share=latest_share, z=z, p_value=p, q_value=q, share_change=change,
             caution=MIXED_CAUTION if c < len(mixed) and mixed[c] else "",
+            fitted_shares=fitted_share_ends(table[c], totals) if c in tests else None,
         ))
     return Trends(period, chosen_by, tuple(str(s) for s in starts), tuple(int(t) for t in totals), tuple(clusters),
                   dated=int(weight.sum()), undated=dated.undated, unreadable=dated.unreadable)

@@ -34,6 +34,26 @@ def decode_bytes(raw: bytes, encoding: str | None = None, voted: str | None = No
     return raw.decode("latin-1"), "not UTF-8 and no encoding detected; decoded as latin-1"
 
 
+def decodes_cleanly(head: bytes, encoding: str | None = None) -> bool:
+    """Whether the first bytes of a file decode as text by the rules of `decode_bytes`, without replacement.
+
+    `encoding` (--encoding) is tried alone; else UTF-8 (with or without its byte-order mark), else the
+    encoding `detect_encoding` finds. Latin-1, `decode_bytes`'s last resort, decodes any bytes, so it
+    proves nothing and is not tried. `head` may end inside a character: a multi-byte character cut at
+    its end still counts as clean (an incremental decoder is not asked to finish).
+    """
+    candidates = [encoding] if encoding is not None else ["utf-8-sig", detect_encoding(head)]
+    for name in candidates:
+        if name is None:
+            continue
+        try:
+            codecs.getincrementaldecoder(name)(errors="strict").decode(head, final=False)
+        except (UnicodeDecodeError, LookupError):
+            continue
+        return True
+    return False
+
+
 CP1252_TOLERANCE = 0.1  # measured: a French sentence scored 0.032 as cp1257, 0.095 as cp1252
 VOTE_SAMPLE_BYTES = 65_536  # bytes of each file read for the vote
 VOTE_MESS_MARGIN = 0.2  # a file keeps its own detected encoding only when it reads this much cleaner

@@ -26,6 +26,7 @@ from pilewise.ingest.plaintext import (
     EncodingVote,
     clean_text,
     decode_bytes,
+    decodes_cleanly,
     first_line_title,
     vote_encoding,
 )
@@ -36,6 +37,20 @@ TEXT_SUFFIXES = {".txt", ".md", ".markdown", ".text"}
 HTML_SUFFIXES = {".html", ".htm", ".xhtml"}
 MAIL_SUFFIXES = {".eml"}
 MBOX_SUFFIXES = {".mbox", ".mbx"}
+# Files of other types are read as plain text when their first SNIFF_BYTES read as text (README, LICENSE,
+# Makefile, GPL-3, notes.log); these types are listed as unsupported without that test: binary formats, and
+# formats whose text needs a converter (PDF, office files, images drawn as SVG or PostScript).
+UNSUPPORTED_SUFFIXES = {
+    ".png", ".jpg", ".jpeg", ".gif", ".bmp", ".tif", ".tiff", ".webp", ".ico", ".heic", ".psd", ".svg", ".svgz",
+    ".eps", ".ps", ".mp3", ".wav", ".flac", ".ogg", ".m4a", ".aac", ".mp4", ".m4v", ".mov", ".avi", ".mkv",
+    ".webm", ".wmv", ".zip", ".gz", ".tgz", ".bz2", ".xz", ".zst", ".7z", ".rar", ".tar", ".jar", ".whl", ".deb",
+    ".rpm", ".dmg", ".iso", ".pdf", ".doc", ".docx", ".xls", ".xlsx", ".ppt", ".pptx", ".odt", ".ods", ".odp",
+    ".rtf", ".epub", ".exe", ".dll", ".so", ".dylib", ".o", ".a", ".class", ".pyc", ".wasm", ".ttf", ".otf",
+    ".woff", ".woff2", ".sqlite", ".sqlite3", ".db", ".mdb", ".npy", ".npz", ".pkl", ".pickle", ".h5", ".hdf5",
+    ".feather", ".avro", ".orc",
+}
+SNIFF_BYTES = 8192  # the first bytes of a file of no known type that decide whether it is read as text
+_BINARY = "binary content"
 # Read row by row or message by message, so --max-file-mb does not apply to them; .json is parsed whole.
 STREAMED_SUFFIXES = {".csv", ".tsv", ".jsonl", ".ndjson", ".parquet"} | MBOX_SUFFIXES
 # The "From " line that starts a message in an mbox file: a sender (or "-", as Thunderbird writes), then a
@@ -268,7 +283,8 @@ def stream_source(
         if changed:
             entries.append(IngestEntry(shown, "note", "file name", _NAME_NOTE))
         shown_paths.append((path, shown))
-    planned = [_plan(path, rel, limits, single=source.is_file()) for path, rel in shown_paths]
+    planned = [_plan(path, rel, limits, single=source.is_file(), encoding=columns.encoding)
+               for path, rel in shown_paths]
     files_found = len(paths) + sum(1 for e in entries if e.status == "skipped" and e.reason.startswith("link"))
     total_bytes = sum(p.size for p in planned)
     return SourceStream(planned, entries, files_found, total_bytes, source, columns, limits, track)
@@ -380,7 +396,7 @@ class _Planned:
     kind: str = "file"
 
 
-def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned:
+def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool, encoding: str | None = None) -> _Planned:
     suffix = path.suffix.lower()
     try:
         info = path.stat()
@@ -389,8 +405,13 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned
     if not stat.S_ISREG(info.st_mode):  # pipes, sockets, devices: reading could block or never end
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "not a regular file", "a pipe, socket or device"))
     size = info.st_size
-    kind = _kind(path, suffix)
-    if kind is None:
+    kind = _kind(path, suffix, encoding)
+    if kind.startswith(_BINARY):
+        if single:
+            raise PilewiseError(f"{rel!r} holds {kind} and no known file type; pass a folder, a text file, or a "
+                                ".csv/.tsv/.json/.jsonl/.parquet table")
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "binary", f"{kind}; no known file type"))
+    if kind == "":
         if single:
             raise PilewiseError(
                 f"{rel!r} is not a supported file type; pass a folder, or a .csv/.tsv/.json/.jsonl/.parquet table"
@@ -406,8 +427,9 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool) -> _Planned
     return _Planned(path, rel, size, kind=kind)
 
 
-def _kind(path: Path, suffix: str) -> str | None:
-    """How a file is read: "table", "mbox" or "file"; None when it is of no type pilewise reads."""
+def _kind(path: Path, suffix: str, encoding: str | None = None) -> str:
+    """How a file is read: "table", "mbox" or "file"; "" for a type pilewise does not read; for a file of
+    no known type whose first bytes are not text, "binary content (...)" saying why."""
     if suffix in TABLE_SUFFIXES:
         return "table"
     if suffix in MBOX_SUFFIXES:
@@ -416,7 +438,26 @@ def _kind(path: Path, suffix: str) -> str | None:
         return "file"
     if suffix == "" and _starts_like_mbox(path):  # mail programs' folders, e.g. Thunderbird's "Inbox"
         return "mbox"
-    return None
+    if suffix in UNSUPPORTED_SUFFIXES:
+        return ""
+    not_text = _not_text(path, encoding)
+    return f"{_BINARY} ({not_text})" if not_text else "file"
+
+
+def _not_text(path: Path, encoding: str | None) -> str:
+    """Why the first SNIFF_BYTES of a file of no known type are not text; "" when they are (or cannot be
+    read: reading the file then reports why)."""
+    try:
+        with path.open("rb") as handle:
+            head = handle.read(SNIFF_BYTES)
+    except OSError:
+        return ""
+    if _looks_binary(head):
+        return f"NUL or control bytes in its first {SNIFF_BYTES // 1024} KB"
+    if not decodes_cleanly(head, encoding):
+        how = f"as --encoding {encoding}" if encoding else "as UTF-8 or a detected encoding"
+        return f"its first {SNIFF_BYTES // 1024} KB do not decode {how}"
+    return ""
 
 
 def _starts_like_mbox(path: Path) -> bool:
@@ -456,6 +497,8 @@ def document_from_bytes(
             title, text = html_to_text(decoded)
         else:
             title, text = "", decoded
+        if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES:  # sniffed as text (`_kind`): say how it was read
+            note = "; ".join(filter(None, [f"file type {suffix or '(none)'} read as plain text", note]))
     text = clean_text(text).strip()
     if not text:
         return None, [IngestEntry(rel, "skipped", "empty", "no visible text")]

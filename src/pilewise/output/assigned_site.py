@@ -1,4 +1,4 @@
-"""The folder of one assignment (OUT/assigned/NAME): assigned.csv, ingest-report.csv and the pages.
+"""The folder of one assignment (OUT/assigned/NAME): assigned.csv, assigned.json, ingest-report.csv and the pages.
 
 Renders finished, display-ready records only (the assign command computes them); autoescape is on, as on
 every page, since titles are the documents' own text.
@@ -7,6 +7,7 @@ every page, since titles are the documents' own text.
 from __future__ import annotations
 
 import csv
+import json
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
@@ -71,7 +72,8 @@ class Assignment:
 
 
 def write_assigned_folder(folder: Path, assignment: Assignment) -> None:
-    """assigned.csv, ingest-report.csv, index.html and one page per cluster into `folder` (a staging folder)."""
+    """assigned.csv, assigned.json, ingest-report.csv, index.html and one page per cluster into `folder` (a staging
+    folder)."""
     with (folder / "assigned.csv").open("w", encoding="utf-8", newline="") as handle:
         writer = csv.writer(handle, lineterminator="\n")
         writer.writerow(ASSIGNED_COLUMNS)
@@ -84,6 +86,11 @@ def write_assigned_folder(folder: Path, assignment: Assignment) -> None:
         writer.writerow(["source", "status", "reason", "detail"])
         for entry in assignment.entries:
             writer.writerow(spreadsheet_row([entry.source, entry.status, entry.reason, entry.detail]))
+    # what the site's root index lists (describe.runfolders.read_site_assigned reads it back)
+    record = {"name": assignment.name, "run": assignment.run, "run_href": assignment.run_href,
+              "source": assignment.source, "created": assignment.created, "documents": len(assignment.rows),
+              "skipped": assignment.skipped, "fits": assignment.fits, "none_share": round(assignment.none_share, 4)}
+    (folder / "assigned.json").write_text(json.dumps(record, indent=2, ensure_ascii=False) + "\n", encoding="utf-8")
     env = Environment(loader=PackageLoader("pilewise.output.site", "templates"), autoescape=True,
                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
     env.filters["dist"] = lambda v: "–" if v is None else f"{v:.3f}"

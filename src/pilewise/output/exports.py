@@ -48,8 +48,8 @@ DATA_FILES: dict[str, str] = {
     "assignments-parts/": "--engine spark: every document's assignment, CSV parts written by Spark (with its markers)",
     "assignments-parquet/": "--engine spark: the assignments as Parquet parts written by Spark (with its markers)",
     "cuts-parts/": "--engine spark: every document's cluster at each cut, CSV parts by Spark (with its markers)",
-    "model/model.json": "what `pilewise assign` needs besides numbers: vocabulary, settings, versions, cluster names",
-    "model/arrays.npz": "the numbers `pilewise assign` needs: idf, LSA directions, centroids, distance quantiles",
+    "model/model.json": "what pilewise assign needs besides numbers: vocabulary, settings, versions, cluster names",
+    "model/arrays.npz": "the numbers pilewise assign needs: idf, LSA directions, centroids, distance quantiles",
 }
 SITE_FILES: dict[str, str] = {
     "index.html": "the run's overview: every cluster on a card",

@@ -13,6 +13,8 @@ import json
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from pilewise.describe.snippets import clip_text
+
 INDEX_FILE = "search-index.js"
 SCRIPT_FILE = "pilewise-search.js"
 SNIPPET_CHARS = 200  # opening of each text kept for searching and for the result line
@@ -57,5 +59,6 @@ def index_script(clusters: Sequence[SearchCluster], documents: Sequence[SearchDo
 
 
 def _snippet(text: str) -> str:
-    return " ".join(text[: SNIPPET_CHARS * 2].split())[:SNIPPET_CHARS]
+    """The opening of a text for the index: whitespace folded and cut at a word boundary by the pages' one cutter."""
+    return clip_text(text[: SNIPPET_CHARS * 2], SNIPPET_CHARS)
 

@@ -7,6 +7,7 @@ pages show raw document text, which is never trusted HTML.
 from __future__ import annotations
 
 import os
+import posixpath
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
@@ -20,7 +21,7 @@ from markupsafe import Markup
 from pilewise.clustering.sweep import Sweep
 from pilewise.describe.compare import RunPair
 from pilewise.describe.rules import RULES_ROWS
-from pilewise.describe.runfolders import FinishedRun, FinishedSweep
+from pilewise.describe.runfolders import FinishedAssignment, FinishedRun, FinishedSweep
 from pilewise.describe.snippets import clip_text
 from pilewise.ingest.redact import display_text, redact
 from pilewise.model import ClusterSummary, Document, RunResult
@@ -105,6 +106,7 @@ def render_run_site(
         "distinct": result.population.texts if result.population else int(result.collection.copies.size),
         "skipped": result.population.skipped if result.population else len(result.ingested.skipped()),
         "quality": result.quality,
+        "silhouette_note": after_figure(result.quality.silhouette_reading, result.quality.silhouette),
         "with_doc_pages": with_doc_pages,
         "doc_page_cap": DOC_PAGE_CAP,
         "members_listed": MEMBERS_LISTED,
@@ -127,7 +129,8 @@ def render_run_site(
     _write(folder / "tree.html", env.get_template("tree.html").render(
         common, rules=result.rules, root=result.rules.whole_tree, has_metadata=result.metadata is not None,
         rows=min(int(result.collection.copies.size), RULES_ROWS),
-        names={c.cluster_id: c.shown for c in result.naming.clusters}, up=""))
+        names={c.cluster_id: c.shown for c in result.naming.clusters},
+        hrefs={c.cluster_id: cluster_page_name(c.cluster_id) for c in result.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
     _write(folder / "index.html", env.get_template("run_index.html").render(
@@ -346,7 +349,7 @@ def render_sweep(folder: Path, sweep: Sweep, *, name: str, in_run: bool, source:
     page = folder / ("sweep.html" if in_run else "index.html")
     _write(page, _environment().get_template("sweep.html").render(
         run=name, sweep=sweep, rule=RECOMMENDATION_RULE, in_run=in_run, source=source, method=method,
-        caution=CAUTION, css=STYLESHEET, up="../../"))
+        caution=CAUTION, css=STYLESHEET, up="" if in_run else "../../", finder=in_run))
     return page
 
 
@@ -567,7 +570,9 @@ def render_comparison(folder: Path, out: Path, document: dict[str, Any], run_a: 
               "headline_b": clip_text(p["headline_b"], LABEL_CHARS),
               "documents": [_moved_row(m, pages_b) for m in p["documents"]]}
              for p in document["moved"].get("pairs", [])[:MOVED_PAIRS_ON_PAGE]]
-    fates = {side: [{**f, "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
+    # headlines cut as in the moved pairs below: a table row per cluster stays a line or two high
+    fates = {side: [{**f, "headline": clip_text(str(f["headline"]), LABEL_CHARS),
+                     "text": _after_badge(f["text"], f["reading"])} for f in document[side]]
              for side in ("fates_a", "fates_b")}
     homes = [out / "index.html", *(f.resolve().parent.parent / "index.html" for f in (run_a, run_b)
                                    if f.resolve().parent.name == "runs")]
@@ -594,11 +599,12 @@ def private_text(text: str) -> str:
 
 def render_root_index(
     out: Path, runs: Sequence[FinishedRun], pairs: Sequence[tuple[RunPair, Path]], sweeps: Sequence[FinishedSweep],
-    notes: Sequence[str],
+    notes: Sequence[str], assigned: Sequence[FinishedAssignment] = (),
 ) -> Path:
     """(Re)write OUT/index.html and every listed run's comparisons.html from finished records.
 
-    `pairs` are the comparisons written, each with its page; `notes` name what was left out. The
+    `pairs` are the comparisons written, each with its page; `assigned` the `pilewise assign` folders;
+    `notes` name what was left out. The
     caller holds the site's lock. Run folders are finished, so their comparisons.html is replaced
     atomically.
     """
@@ -611,6 +617,7 @@ def render_root_index(
                 for p in listed if name in (p["a"], p["b"])]
         write_text_atomically(out / "runs" / name / "comparisons.html", env.get_template("comparisons.html").render(
             run=name, pairs=mine, caution=CAUTION, css=STYLESHEET, up="",
+            has_sweep=(run.folder / "sweep.html").is_file(),
             finder=(run.folder / search.INDEX_FILE).is_file()))  # runs written before search have none
     _copy_stylesheet(out, atomic=True)
     page = out / "index.html"
@@ -618,8 +625,35 @@ def render_root_index(
         runs=[_run_line(run) for run in runs], comparisons=listed,
         sweeps=[{"name": s.folder.name, "href": f"sweeps/{quote(s.folder.name)}/index.html", "k": s.recommended_k,
                  "reason": s.reason} for s in sweeps],
+        assigned=[_assigned_line(a) for a in assigned],
         notes=list(notes), caution=CAUTION, css=STYLESHEET, up=""))
     return page
+
+
+def _assigned_line(found: FinishedAssignment) -> dict[str, Any]:
+    """The root index's line for one `pilewise assign` folder; its run linked where assigned.json says."""
+    folder = f"assigned/{quote(found.folder.name)}"
+    # run_href is relative to the assignment's folder (already URL-safe path parts from os.path.relpath)
+    run_href = posixpath.normpath(f"{folder}/{quote(found.run_href)}") if found.run_href else ""
+    return {
+        "name": found.folder.name,
+        "href": f"{folder}/index.html",
+        "run": found.run,
+        "run_href": run_href,
+        "documents": found.documents,
+        "fits": ", ".join(f"{found.fits[fit]:,} {fit}" for fit in ("good", "weak", "none") if fit in found.fits),
+        "source": private_text(found.source),
+        "created": found.created,
+    }
+
+
+def after_figure(reading: str, value: float | int | None) -> str:
+    """A reading without the figure it starts with, for a page that shows the figure just before it
+    ("0.162 against 0.066 ..." beside 0.162 reads "against 0.066 ...")."""
+    if value is None:
+        return reading
+    shown = f"{value:.3f} "
+    return reading.removeprefix(shown) if reading.startswith(shown) else reading
 
 
 def _run_line(run: FinishedRun) -> dict[str, Any]:
@@ -630,7 +664,7 @@ def _run_line(run: FinishedRun) -> dict[str, Any]:
         "k": run.k,
         "documents": run.clustered,
         "silhouette": run.silhouette,
-        "reading": run.silhouette_reading,
+        "reading": after_figure(run.silhouette_reading, run.silhouette),
         "created": run.created,
         "source": private_text(run.source),
         "headlines": [c.headline for c in run.clusters[:3]],
