@@ -13,7 +13,8 @@ The held-out collections are not among the seven the defaults were measured on; 
 on those seven (docs/vectorizing.md, "min_df and text length"). Built once into ``benchmarks/.out/heldout``:
 
 - ``man_pages``: manual pages of sections 1, 3, 5, 7 and 8 in /usr/share/man (a seeded sample of at most
-  ``MAN_PER_SECTION`` per section, links left out), rendered with ``man -l FILE | col -b``; label = section.
+  ``MAN_PER_SECTION`` per section, links left out), rendered with ``man -l FILE | col -b`` without the
+  header and footer lines (they name the section); label = section.
 - ``package_synopses``: the one-line descriptions of the packages in the apt lists of
   /var/lib/apt/lists (Debian main), label = Section, for ``SYNOPSIS_SECTIONS`` (sections named by subject,
   not by packaging form such as libs or libdevel), at most ``SYNOPSES_PER_SECTION`` each (seeded).
@@ -88,7 +89,8 @@ def _man_pages() -> list[tuple[str, str]]:
         for path in random.Random(0).sample(files, min(MAN_PER_SECTION, len(files))):
             shown = subprocess.run(f"man -l '{path}' 2>/dev/null | col -b", shell=True, capture_output=True,
                                    env={"MANWIDTH": "80", "PATH": "/usr/bin:/bin"}, check=False).stdout
-            text = shown.decode("utf-8", "replace").strip()
+            # the header and footer lines name the section ("LS(1)  General Commands Manual"): left out
+            text = "\n".join(shown.decode("utf-8", "replace").strip().split("\n")[1:-1]).strip()
             if len(text.split()) >= 30:  # pages that only point to another page (.so) are left out
                 found.append((section, text))
     return found
