@@ -70,17 +70,37 @@ class Vectorized:
     lsa: np.ndarray | None = None
 
 
-def default_min_df(n_texts: int) -> int:
-    """1 below 30 texts, else 2, growing by one per 20,000 texts (50 at a million)."""
+LONG_TEXT_WORDS = 20
+"""Median content words (stop words left out) from which a collection's texts count as long: more than two
+sentences' worth (an English sentence runs 15-20 words, about half of them stop words; common practice)."""
+
+
+def default_min_df(n_texts: int, median_words: float | None = None) -> int:
+    """The default min_df for `n_texts` texts whose median text has `median_words` content words.
+
+    1 below 30 texts, else 2, growing by one per 20,000 texts (50 at a million); at least 3 when the texts
+    are long (median of at least LONG_TEXT_WORDS content words). Why length: a long text holds many words
+    that only one other text shares (names, numbers, one story's details), which tie pairs of texts
+    together by chance, and it keeps plenty of shared words without them; a short text holds few words,
+    and a rare one is often all that places it (measured in docs/vectorizing.md, "min_df and text length").
+    Without `median_words` (streaming and Spark runs) only the size counts.
+    """
     if n_texts < 30:
         return 1
-    return max(2, math.ceil(n_texts / 20_000))
+    by_size = max(2, math.ceil(n_texts / 20_000))
+    return max(by_size, 3) if median_words is not None and median_words >= LONG_TEXT_WORDS else by_size
 
 
-def term_limits(settings: VectorSettings, n_documents: float) -> tuple[int, float]:
-    """(min_df, max_df) for `n_documents` documents: the size-dependent min_df unless given; max_df 1.0 when the
-    given share would keep no term that passes min_df. Both preparation paths use it."""
-    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents))
+def median_content_words(words: sp.csr_matrix) -> float:
+    """Median content words per text of a word count matrix (texts x words)."""
+    return float(np.median(np.asarray(words.sum(axis=1)).ravel())) if words.shape[0] else 0.0
+
+
+def term_limits(settings: VectorSettings, n_documents: float, median_words: float | None = None
+                ) -> tuple[int, float]:
+    """(min_df, max_df) for `n_documents` documents: the size- and length-dependent min_df unless given; max_df
+    1.0 when the given share would keep no term that passes min_df. Both preparation paths use it."""
+    min_df = settings.min_df if settings.min_df is not None else default_min_df(int(n_documents), median_words)
     max_df = settings.max_df if n_documents * settings.max_df >= min_df else 1.0
     return min_df, max_df
 
@@ -410,10 +430,11 @@ def exact_counts(
     first. `copies` (n_texts,) says how many documents each text stands for.
     """
     n_documents = float(copies.sum())
-    min_df, max_df = term_limits(settings, n_documents)
+    min_df, max_df = term_limits(settings, n_documents)  # the floor: the length of the texts can only raise it
     parallel = workers > 1 and len(texts) >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a bar
     words, word_terms, pairs, pair_words = count_terms(
         track(texts) if track and not parallel else texts, analyzer, min_df, copies, workers=workers)
+    min_df, max_df = term_limits(settings, n_documents, median_content_words(words))
     df_words, df_pairs = document_frequency(words, copies), document_frequency(pairs, copies)
     keep_words = within_limits(df_words, min_df, max_df, n_documents)
     keep_pairs = within_limits(df_pairs, min_df, max_df, n_documents)
