@@ -364,3 +364,19 @@ def test_mail_without_a_declared_charset_is_decoded_like_a_text_file(tmp_path: P
         docs = {doc.source: doc for doc in read(folder, columns).documents}
         assert docs["order.eml"].title == "Café order for the garden"
         assert docs["order.eml"].text == body
+
+
+def test_a_version_control_folder_is_one_report_line_not_documents(tmp_path: Path) -> None:
+    # A checked-out repository holds its history under .git (git-scm.com docs, "git-init"): text files such as
+    # HEAD and config that are not the collection's documents. Nothing is lost: the folder is one report line.
+    (tmp_path / "notes.txt").write_text("the pump stopped after a power cut", encoding="utf-8")
+    git = tmp_path / ".git"
+    (git / "refs").mkdir(parents=True)
+    (git / "HEAD").write_text("ref: refs/heads/main\n", encoding="utf-8")
+    (git / "config").write_text("[core]\n\tbare = false\n", encoding="utf-8")
+    (git / "refs" / "main").write_text("0" * 40 + "\n", encoding="utf-8")
+    ingested = read(tmp_path)
+    assert [d.doc_id for d in ingested.documents] == ["notes.txt"]
+    skipped = [e for e in ingested.entries if e.status == "skipped"]
+    assert [(e.source, e.reason, e.detail) for e in skipped] == [
+        (".git/", "version control", "3 files of version-control data not read")]

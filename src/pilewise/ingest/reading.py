@@ -316,6 +316,9 @@ def _reason_counts(entries: list[IngestEntry]) -> str:
     return ", ".join(f"{n} {reason}" for reason, n in sorted(counts.items()))
 
 
+VERSION_CONTROL_FOLDERS = frozenset({".git", ".hg", ".svn", ".bzr"})  # skipped, one report line each
+
+
 def _discover(folder: Path, *, follow_links: bool) -> tuple[list[tuple[Path, str]], list[IngestEntry]]:
     """List files under `folder`, sorted; links to folders, and links to files outside it, are reported, not read.
 
@@ -337,6 +340,12 @@ def _discover(folder: Path, *, follow_links: bool) -> tuple[list[tuple[Path, str
             if (root_path / d).is_symlink():
                 rel = _shown_name(_relative(root_path / d, folder))[0]
                 entries.append(IngestEntry(rel, "skipped", "link to a folder", "not followed"))
+            elif d in VERSION_CONTROL_FOLDERS:
+                dirs.remove(d)  # a repository's own history and settings, not the collection's documents
+                rel = _shown_name(_relative(root_path / d, folder))[0]
+                n_files = sum(len(names) for _, _, names in os.walk(root_path / d))
+                entries.append(IngestEntry(rel + "/", "skipped", "version control",
+                                           f"{n_files:,} files of version-control data not read"))
         for name in sorted(files):
             path = root_path / name
             if not follow_links and path.is_symlink() and _leaves(path, inside):
