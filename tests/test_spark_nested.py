@@ -34,3 +34,21 @@ def test_nested_json_lines_read_on_spark_as_locally(spark: Any, tmp_path: Path) 
     assert json.loads(metadata["tags"]) == ["pump", "ü"]
     assert metadata["attributes.meta.channel"] == "web" == dict(local.documents[0].metadata)["attributes.meta.channel"]
     assert any("guessed text column 'attributes.body'" in note for note in source.notes)
+
+
+def test_files_of_no_known_type_are_read_on_spark_as_locally(spark: Any, tmp_path: Path) -> None:  # noqa: F811
+    from pilewise.engines.spark_reading import read_on_spark
+
+    folder = tmp_path / "pile"
+    folder.mkdir()
+    (folder / "README").write_text("How to restart the pump after a power cut.\n", encoding="utf-8")
+    (folder / "Apache-2.0").write_text("Licensed under the terms below, with no warranty.\n", encoding="utf-8")
+    (folder / "blob").write_bytes(bytes(range(256)) * 4)  # control and NUL bytes: not text
+    (folder / "logo.png").write_bytes(b"\x89PNG\r\n\x1a\n" + bytes(range(64)))  # PNG signature (RFC 2083 sec. 12.12)
+    local = read(folder)
+    source = read_on_spark(spark, str(folder), ColumnChoice(), ReadLimits())
+    assert sorted(d.doc_id for _, d in source.documents.collect()) == sorted(d.doc_id for d in local.documents) == [
+        "Apache-2.0", "README"]
+    reasons = {e.source: e.reason for e in source.entries if e.status == "skipped"}
+    assert reasons == {e.source: e.reason for e in local.entries if e.status == "skipped"}
+    assert reasons == {"blob": "binary", "logo.png": "unsupported"}

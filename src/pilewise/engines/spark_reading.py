@@ -19,7 +19,16 @@ from urllib.parse import urlparse
 
 from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import first_line_title
-from pilewise.ingest.reading import HTML_SUFFIXES, MAIL_SUFFIXES, TEXT_SUFFIXES, ReadLimits, document_from_bytes
+from pilewise.ingest.reading import (
+    HTML_SUFFIXES,
+    MAIL_SUFFIXES,
+    MBOX_SUFFIXES,
+    TEXT_SUFFIXES,
+    UNSUPPORTED_SUFFIXES,
+    ReadLimits,
+    document_from_bytes,
+    head_not_text,
+)
 from pilewise.ingest.tables import FLATTEN_DEPTH, SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
 from pilewise.model import Document, IngestEntry
 
@@ -263,9 +272,11 @@ class _FileReader:
         for row, number in rows:
             rel = self.relative(row["path"])
             suffix = posixpath.splitext(rel)[1].lower()
-            if suffix not in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES:
+            if suffix in TABLE_KINDS or suffix in UNSUPPORTED_SUFFIXES or suffix in MBOX_SUFFIXES:
                 detail = ("the spark engine reads one table at a time; pass this table as SOURCE"
-                          if suffix in TABLE_KINDS else f"file type {suffix or '(none)'}")
+                          if suffix in TABLE_KINDS else
+                          "the spark engine does not split mailboxes; run it with --engine local"
+                          if suffix in MBOX_SUFFIXES else f"file type {suffix}")
                 yield "entry", IngestEntry(rel, "skipped", "unsupported", detail)
                 continue
             if row["length"] == 0:
@@ -274,7 +285,13 @@ class _FileReader:
             if row["length"] > self.limits.max_file_bytes:
                 yield "entry", IngestEntry(rel, "skipped", "too large", f"{row['length']:,} bytes; raise --max-file-mb")
                 continue
-            doc, found = document_from_bytes(bytes(row["content"]), rel, suffix, self.limits, self.encoding)
+            content = bytes(row["content"])
+            not_text = ("" if suffix in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES
+                        else head_not_text(content, self.encoding))  # a file of no known type: text? (as locally)
+            if not_text:
+                yield "entry", IngestEntry(rel, "skipped", "binary", f"binary content ({not_text}); no known file type")
+                continue
+            doc, found = document_from_bytes(content, rel, suffix, self.limits, self.encoding)
             for entry in found:
                 if entry.status != "document" or entry.detail:  # plain "read" lines would repeat assignments.csv
                     yield "entry", entry

@@ -461,6 +461,12 @@ def _not_text(path: Path, encoding: str | None) -> str:
             head = handle.read(SNIFF_BYTES)
     except OSError:
         return ""
+    return head_not_text(head, encoding)
+
+
+def head_not_text(head: bytes, encoding: str | None) -> str:
+    """Why a file's first SNIFF_BYTES are not text, or "" when they are (shared with the Spark reader)."""
+    head = head[:SNIFF_BYTES]
     if _looks_binary(head):
         return f"NUL or control bytes in its first {SNIFF_BYTES // 1024} KB"
     if not decodes_cleanly(head, encoding):
