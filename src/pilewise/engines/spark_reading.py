@@ -106,7 +106,7 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     documents = _unique_ids(made.filter(lambda item: item[0] == "doc").map(lambda item: item[1]))
     entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
     n_docs = documents.count()
-    summary = IngestEntry(rel, "document", "table", f"{n_docs} rows became documents (text column {text_col!r})")
+    summary = IngestEntry(rel, "document", "table", f"{n_docs:,} rows became documents (text column {text_col!r})")
     notes = [f"{rel}: {note}" for note in guesses] + more
     return SparkSource(documents, (summary, *entries), tuple(notes), 1, n_docs)
 

@@ -218,7 +218,7 @@ def iter_table(
     if reported >= _MALFORMED_WARNING[0] and reported >= _MALFORMED_WARNING[1] * row_number:
         report.notes.append(f"{rel}: {reported:,} of {row_number:,} rows do not fit the header; if the separator "
                             "or encoding was guessed wrong, pass --delimiter or --encoding")
-    summary = f"{made} of {row_number} rows became documents (text column {text_col!r})"
+    summary = f"{made:,} of {row_number:,} rows became documents (text column {text_col!r})"
     report.entries.insert(0, IngestEntry(rel, "document", "table", summary))
     report.entries.extend(row_entries)
     report.notes[:0] = [f"{rel}: {note}" for note in guesses]
