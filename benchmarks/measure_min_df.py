@@ -62,7 +62,7 @@ HELD_OUT_DIR = OUT_DIR / "heldout"
 MAN_SECTIONS = ("1", "3", "5", "7", "8")
 MAN_PER_SECTION = 200
 SYNOPSIS_SECTIONS = ("games", "science", "math", "sound", "graphics", "mail", "database", "electronics",
-                     "hamradio", "video", "editors", "web")
+                     "hamradio", "fonts", "editors", "web")
 SYNOPSES_PER_SECTION = 400
 APT_PACKAGES = Path("/var/lib/apt/lists/deb.debian.org_debian_dists_bookworm_main_binary-amd64_Packages.lz4")
 
