@@ -209,14 +209,24 @@ def fitted_share_change(counts: np.ndarray, totals: np.ndarray) -> float:
 
     0 when the share cannot be fitted (one period holding documents, or no member at all).
     """
+    line = _fitted_line(counts, totals)
+    if line is None:
+        return 0.0
+    pooled, slope, _, held = line
+    return slope * float(held[-1] - held[0]) / pooled
+
+
+def _fitted_line(counts: np.ndarray, totals: np.ndarray) -> tuple[float, float, float, np.ndarray] | None:
+    """(pooled share, slope per period, mean period, periods holding documents) of the least-squares line
+    fitted to the period shares, weighted by the period totals; None when it cannot be fitted."""
     n, x = np.asarray(totals, dtype=float), np.asarray(counts, dtype=float)
     held = np.flatnonzero(n > 0)
     if held.size < 2 or x.sum() <= 0:
-        return 0.0
+        return None
     s = np.arange(n.size, dtype=float)
     mean_s, pooled = (n * s).sum() / n.sum(), x.sum() / n.sum()
     slope = float((s - mean_s) @ (x - n * pooled)) / float((n * (s - mean_s) ** 2).sum())
-    return slope * float(held[-1] - held[0]) / pooled
+    return float(pooled), slope, float(mean_s), held
 
 
 @dataclass(frozen=True)
@@ -250,14 +260,11 @@ def fitted_share_ends(counts: np.ndarray, totals: np.ndarray) -> tuple[float, fl
     None when the share cannot be fitted. The ends are the line's values, not clipped: a share that
     drops to nothing gives a line ending below zero.
     """
-    n, x = np.asarray(totals, dtype=float), np.asarray(counts, dtype=float)
-    held = np.flatnonzero(n > 0)
-    if held.size < 2 or x.sum() <= 0:
+    line = _fitted_line(counts, totals)
+    if line is None:
         return None
-    s = np.arange(n.size, dtype=float)
-    mean_s, pooled = (n * s).sum() / n.sum(), x.sum() / n.sum()
-    slope = float((s - mean_s) @ (x - n * pooled)) / float((n * (s - mean_s) ** 2).sum())
-    return float(pooled + slope * (held[0] - mean_s)), float(pooled + slope * (held[-1] - mean_s))
+    pooled, slope, mean_s, held = line
+    return pooled + slope * (held[0] - mean_s), pooled + slope * (held[-1] - mean_s)
 
 
 def cluster_trends(dates: Sequence[str], labels: np.ndarray, k: int, period: str | None = None,
