@@ -344,8 +344,9 @@ def _discover(folder: Path, *, follow_links: bool) -> tuple[list[tuple[Path, str
                 dirs.remove(d)  # a repository's own history and settings, not the collection's documents
                 rel = _shown_name(_relative(root_path / d, folder))[0]
                 n_files = sum(len(names) for _, _, names in os.walk(root_path / d))
+                files_word = "file" if n_files == 1 else "files"
                 entries.append(IngestEntry(rel + "/", "skipped", "version control",
-                                           f"{n_files:,} files of version-control data not read"))
+                                           f"{n_files:,} {files_word} of version-control data not read"))
         for name in sorted(files):
             path = root_path / name
             if not follow_links and path.is_symlink() and _leaves(path, inside):
