@@ -121,8 +121,8 @@ def test_two_clusters_merged_and_the_reverse_split() -> None:
     forward = compare(a, b)
     assert [f.reading for f in forward.fates_a] == ["merged", "merged", "kept"]
     assert [f.text for f in forward.fates_a] == [
-        "merged with 1 into 0 (100% of its documents)",
-        "merged with 0 into 0 (100% of its documents)",
+        "merged with A's 1 into 0 (100% of its documents)",
+        "merged with A's 0 into 0 (100% of its documents)",
         "kept as 1 (Jaccard 1.00)",
     ]
     assert forward.fates_a[0].partners == ((0, 10, 0.5),)
@@ -137,7 +137,8 @@ def test_two_clusters_merged_and_the_reverse_split() -> None:
     assert [f.reading for f in backward.fates_a] == ["split", "kept"]
     assert backward.fates_a[0].text == "split into 0 (50%) and 1 (50%)"
     assert [f.reading for f in backward.fates_b] == ["formed by a split of", "formed by a split of", "kept"]
-    assert backward.fates_b[0].text == "formed by a split of 0 (50% of it came here), which also went into 1"
+    # The rows here are clusters of compare(b, a)'s second run, named "B".
+    assert backward.fates_b[0].text == "formed by a split of 0 (50% of it came here), which also went into B's 1"
     assert len(backward.moved) == 10
 
 
@@ -149,10 +150,11 @@ def test_split_and_merged_in_both_directions() -> None:
     a, b = labels_from_table([[4, 7], [0, 6]])
     c = compare(a, b)
     assert c.fates_a[0].reading == "split and merged"
-    assert c.fates_a[0].text == "split into 1 (63%) and 0 (36%); in 1 it merged with 1"
+    assert c.fates_a[0].text == "split into 1 (63%) and 0 (36%); in 1 it merged with A's 1"
     assert c.fates_a[1].reading == "merged"
     assert c.fates_b[1].reading == "merged from parts of"
-    assert c.fates_b[1].text == "merged from 0 (53%) and 1 (46%); 0 also went into 0"
+    assert c.fates_b[1].text == "merged from 0 (53%) and 1 (46%); 0 also went into B's 0"
+    # Both runs number clusters from 0: the row run's own clusters carry its name (common practice).
 
 
 def test_a_share_of_exactly_one_fifth_makes_a_partner() -> None:

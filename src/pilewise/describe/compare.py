@@ -197,8 +197,8 @@ def compare_labelings(
         v_measure=float(v_measure),
         homogeneity=float(homogeneity),
         completeness=float(completeness),
-        fates_a=cluster_fates(table, ids_a_t, ids_b_t, other_run=name_b, forward=True),
-        fates_b=cluster_fates(table.T, ids_b_t, ids_a_t, other_run=name_a, forward=False),
+        fates_a=cluster_fates(table, ids_a_t, ids_b_t, own_run=name_a, other_run=name_b, forward=True),
+        fates_b=cluster_fates(table.T, ids_b_t, ids_a_t, own_run=name_b, other_run=name_a, forward=False),
         moved=moved,
         matching=tuple(matching),
         headlines_a=heads_a,
@@ -207,7 +207,8 @@ def compare_labelings(
 
 
 def cluster_fates(
-    table: np.ndarray, rows: Sequence[int], columns: Sequence[int], *, other_run: str, forward: bool
+    table: np.ndarray, rows: Sequence[int], columns: Sequence[int], *, other_run: str, forward: bool,
+    own_run: str = "this run",
 ) -> tuple[ClusterFate, ...]:
     """Read what became of each row cluster among the column clusters of a contingency table.
 
@@ -223,6 +224,8 @@ def cluster_fates(
       own from R: "kept";
     - otherwise, one main partner without a clean match: "reshaped".
 
+    Numbers in a reading are clusters of `other_run`, except the other row clusters sharing a partner,
+    which are named with `own_run` ("k5's 2"): both runs number their clusters from 0.
     A row with no shared member reads "no shared documents". ``forward=True`` reads clusters of A
     against B (rows of the table); ``forward=False`` expects the transposed table and reads clusters
     of B against A. The readings are those of MONIC (Spiliopoulou, Ntoutsi, Theodoridis & Schult 2006,
@@ -277,7 +280,7 @@ def cluster_fates(
         words = _Words(main=int(columns[main]), main_share=_percent(counts[main], n_r),
                        share_of_main=_percent(counts[main], n_main), jaccard=f"{partners[0][2]:.2f}",
                        pieces=_join([f"{columns[c]} ({_percent(counts[c], n_r)})" for c in partner_cols]),
-                       others=_join(co_rows) if co_rows else "")
+                       others=f"{own_run}'s {_join(co_rows)}" if co_rows else "")
         reading, text = (_forward_reading if forward else _backward_reading)(kind, words)
         fates.append(ClusterFate(int(row_cluster), reading, partners, text))
     return tuple(fates)
@@ -292,7 +295,7 @@ class _Words:
     share_of_main: str  # this cluster's share of the main partner's members
     jaccard: str
     pieces: str  # partners with their shares of this cluster's members
-    others: str  # other clusters that also hold SHARE_MIN of the main partner
+    others: str  # other row clusters that also hold SHARE_MIN of the main partner, with their run's name
 
 
 def _forward_reading(kind: str, w: _Words) -> tuple[str, str]:
