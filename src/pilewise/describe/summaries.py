@@ -21,7 +21,7 @@ from pilewise.clustering.stability import StabilityResult, mixed_stability_readi
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
 from pilewise.describe.kwic import kwic_line
 from pilewise.describe.names import suggested_name_from
-from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
+from pilewise.describe.stats import best_first, chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
 from pilewise.vectors.text import Analyzer
 from pilewise.vectors.tfidf import Vectorized
@@ -313,7 +313,7 @@ def _chi2_terms(
     share_out = df_out / rest if rest > 0 else np.zeros_like(df_out)
     over = share_in > share_out
     candidates = np.flatnonzero(over & (scores > 0))
-    ranked = candidates[np.lexsort((candidates, -scores[candidates]))][:top]
+    ranked = best_first(candidates, scores, top)
     return tuple(
         TermScore(shown[i], keys[i], float(scores[i]), int(round(df_in[i])), int(round(df_out[i])),
                   float(share_in[i]), float(share_out[i]))
@@ -329,7 +329,7 @@ def _log_odds_terms(
     rest = total - size
     df_out = df_all - df_in
     candidates = np.flatnonzero((delta > 0) & (counts_in > 0))
-    ranked = candidates[np.lexsort((candidates, -z[candidates]))][:top]
+    ranked = best_first(candidates, z, top)
     return tuple(
         TermScore(shown[i], keys[i], float(delta[i]), int(round(df_in[i])), int(round(df_out[i])),
                   float(df_in[i] / size), float(df_out[i] / rest) if rest > 0 else 0.0, z=float(z[i]))
