@@ -33,7 +33,7 @@ from pilewise.describe.names import carry_names, earlier_run_problems, find_old_
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import RuleSet, explain_run
 from pilewise.describe.runfolders import read_site_assigned, read_site_runs, read_site_sweeps
-from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
+from pilewise.describe.summaries import ClusterTotals, cluster_term_totals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends, counted_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -468,10 +468,10 @@ def _described(
 ) -> RunResult:
     """Assessing, describing and explaining a clustering (the stages every engine shares), and the map.
 
-    The map's t-SNE and the rules' 126 tree fits need only the space, the counts, the labels and the seed,
-    so they are handed to one worker process (`_Beside`) that runs them on the second core while assessing
-    and describing run here, where there is a second core (not beside Spark's threads). Their results are
-    the same either way (tested).
+    The map's t-SNE, the rules' 126 tree fits and the term profiles need only the space, the counts, the
+    labels and the seed, so they are handed to one worker process (`_Beside`) that runs them on the second
+    core while assessing and describing run here, where there is a second core (not beside Spark's
+    threads). Their results are the same either way (tested).
     """
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
@@ -488,6 +488,9 @@ def _described(
         "map": (docmap.layout, (space[rows], options.seed), {}),
         "rules": (explain_run, (prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns),
                   {"k": k, "seed": options.seed}),
+        # a pass over the counts that nothing here waits for: it evens out the two processes' work
+        "profiles": (term_profiles_from_counts, (prepared.vectors.counts, clustering.labels, weights, shown),
+                     {"k": k}),
     }
     with _Beside(jobs, background=population is None and (options.workers or default_workers()) > 1) as beside:
         with reporter.stage("assessing"):
@@ -499,15 +502,19 @@ def _described(
                 track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
             )
         with reporter.stage("describing"):
+            # the clusters' term frequencies, counted once for the summaries and the levels' terms
+            term_totals = None if totals is not None else cluster_term_totals(prepared.vectors.counts,
+                                                                              clustering.labels, weights, k)
             clusters = describe_clusters(
                 prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-                top_terms=options.top_terms, stability=stability, totals=totals,
+                top_terms=options.top_terms, stability=stability, totals=totals, term_totals=term_totals,
             )
             levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
             levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                                   k_max=k_max if tree is not None else k, run_k=k)
-            levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
-            profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
+            levels = replace(levels, terms=level_terms(
+                levels, prepared.vectors.counts, weights, shown,
+                run=(clustering.labels, term_totals[0]) if term_totals is not None else None))
             mixed = [c.mixed for c in clusters]
             if population is not None and population.dated is not None:  # counted over every document on Spark
                 trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period,
@@ -516,6 +523,7 @@ def _described(
                 trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
         with reporter.stage("explaining"):  # in the worker: the wait for it
             rules: RuleSet = beside.result("rules")
+            profiles = beside.result("profiles")
         with reporter.stage("laying out the map"):
             points: np.ndarray = beside.result("map")
     suggestions = [c.suggested_name for c in clusters]

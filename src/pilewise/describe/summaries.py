@@ -66,6 +66,7 @@ def describe_clusters(
     top_terms: int,
     stability: StabilityResult | None = None,
     totals: ClusterTotals | None = None,
+    term_totals: tuple[sp.csr_matrix, sp.csr_matrix] | None = None,
 ) -> tuple[ClusterSummary, ...]:
     """Summaries of every cluster, numbered as in `clustering`, largest first.
 
@@ -73,13 +74,16 @@ def describe_clusters(
     documents shown come from bounded digests filled in passes over the rows in blocks: the members
     nearest each centroid, and for each cluster's top terms the members holding the term nearest the
     centroid. Describing needs memory for k x terms figures, not for the documents. `totals`, when
-    given, replaces the figures counted from the rows at hand (sizes, term statistics, mean distances).
+    given, replaces the figures counted from the rows at hand (sizes, term statistics, mean distances);
+    `term_totals`, when given, is `cluster_term_totals` of these rows, already counted by the caller.
     """
     labels = clustering.labels
     weights = collection.copies.astype(float)
     k = clustering.centroids.shape[0]
     if totals is not None:
         df_by_cluster, counts_by_cluster = totals.df, totals.counts
+    elif term_totals is not None:
+        df_by_cluster, counts_by_cluster = term_totals
     else:
         df_by_cluster, counts_by_cluster = cluster_term_totals(vectors.counts, labels, weights, k)
     df_all = np.asarray(df_by_cluster.sum(axis=0)).ravel()
@@ -162,18 +166,24 @@ LEVEL_TERMS = 5  # terms that describe a cluster of a coarser or finer cut
 
 
 def level_terms(
-    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS
+    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS,
+    *, run: tuple[np.ndarray, sp.csr_matrix] | None = None,
 ) -> dict[int, tuple[tuple[str, ...], ...]]:
     """For every cut of `levels`, each cluster's `top` terms by chi-square (as in `describe_clusters`).
 
     The cuts of one tree nest, so the document frequencies of the finest cut (one pass over the rows)
-    are summed into those of every coarser cut.
+    are summed into those of every coarser cut. `run`, the run's labels and its clusters' weighted document
+    frequencies (k x terms), saves that pass when every run cluster lies inside one cluster of the finest
+    cut (a tree over the run's own clusters) and the weights are whole numbers (copies: their sums are
+    then exact in any order, so the figures are the same).
     """
     if not levels.cuts:
         return {}
     finest_k = max(levels.cuts)
     finest = levels.cuts[finest_k]
-    df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
+    df_fine = _merged_run_frequencies(run, finest, finest_k, weights) if run is not None else None
+    if df_fine is None:
+        df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
     size_fine = np.bincount(finest, weights=weights, minlength=finest_k)
     df_all = np.asarray(df_fine.sum(axis=0)).ravel()
     total = float(weights.sum())
@@ -193,6 +203,23 @@ def level_terms(
             for c in range(k)
         )
     return out
+
+
+def _merged_run_frequencies(
+    run: tuple[np.ndarray, sp.csr_matrix], cut: np.ndarray, cut_k: int, weights: np.ndarray
+) -> sp.csr_matrix | None:
+    """The cut's clusters' document frequencies summed from the run clusters', or None when they cannot be."""
+    run_labels, run_df = run
+    if not np.all(weights == np.round(weights)):
+        return None
+    cut_of_run = np.full(run_df.shape[0], -1)
+    cut_of_run[run_labels] = cut
+    if not np.array_equal(cut_of_run[run_labels], cut):  # a run cluster split between two cut clusters
+        return None
+    present = cut_of_run >= 0
+    merge = sp.csr_matrix((np.ones(int(present.sum())), (cut_of_run[present], np.flatnonzero(present))),
+                          shape=(cut_k, run_df.shape[0]))
+    return sp.csr_matrix(merge @ run_df)
 
 
 def mixed_reason(theme_terms: Sequence[TermScore], similarity: float, others_median: float | None) -> str:
