@@ -19,7 +19,7 @@ from pilewise.clustering.kmeans import Clustering, cluster_sums
 from pilewise.clustering.levels import Levels
 from pilewise.clustering.stability import StabilityResult, mixed_stability_reading
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
-from pilewise.describe.kwic import kwic_line
+from pilewise.describe.kwic import find_term, kwic_window
 from pilewise.describe.names import suggested_name_from
 from pilewise.describe.stats import best_first, chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
@@ -369,14 +369,18 @@ def _kwic_for(
 ) -> tuple[KwicLine, ...]:
     """Up to KWIC_LINES_PER_TERM lines per term, from the distinct member texts holding it, nearest first."""
     lines: list[KwicLine] = []
+    spans_of: dict[int, list[tuple[int, int, str]]] = {}  # the near members hold several of the cluster's terms
     for term, holders in terms:
         found = 0
         for text_index in holders.tolist():
             doc_index = int(collection.first_doc_of_text[text_index])
             doc = collection.documents[doc_index]
-            line = kwic_line(doc.text, analyzer, term.key)
-            if line is None:
+            if doc_index not in spans_of:
+                spans_of[doc_index] = analyzer.spans(doc.text)
+            span = find_term(spans_of[doc_index], term.key)  # what kwic_line does, with the spans kept
+            if span is None:
                 continue
+            line = kwic_window(doc.text, span[0], span[1])
             lines.append(KwicLine(term.term, line[0], line[1], line[2], doc.doc_id, doc_index))
             found += 1
             if found == KWIC_LINES_PER_TERM:
