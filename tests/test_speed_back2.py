@@ -14,6 +14,7 @@ import scipy.sparse as sp
 from sklearn.metrics import accuracy_score
 from sklearn.model_selection import StratifiedKFold, cross_val_predict
 
+from pilewise.clustering.levels import Levels
 from pilewise.describe.rules import ChiSquareTreeClassifier, _Fits, explain_clusters
 from pilewise.describe.stats import best_first
 from pilewise.output import docmap
@@ -119,3 +120,46 @@ def test_every_two_map_colours_are_far_apart() -> None:
     closest = min(float(np.linalg.norm(a - b)) for a, b in itertools.combinations(labs, 2))
     assert closest >= 25.0
     assert float(np.linalg.norm(_cielab(docmap.colour(0)) - _cielab(docmap.colour(7)))) >= 25.0
+
+
+def _levels_case(tree_kind: str) -> tuple[Levels, sp.csr_matrix, np.ndarray, np.ndarray, int]:
+    """Levels of a small collection cut from a tree over the run's clusters, or from Ward's tree of the rows."""
+    from pilewise.clustering.hierarchy import ward_tree
+    from pilewise.clustering.kmeans import kmeans_clusters
+    from pilewise.clustering.levels import build_levels, centroid_tree
+
+    counts, groups = _presence(150, 40, 5, seed=8)
+    rng = np.random.default_rng(9)
+    weights = rng.integers(1, 4, size=150).astype(float)
+    space = np.asarray(counts.todense()) + 0.01
+    space /= np.linalg.norm(space, axis=1, keepdims=True)
+    k = 5
+    clustering = kmeans_clusters(space, weights, k=k, seed=0, n_init=2)
+    if tree_kind == "centroids":
+        tree, k_max = centroid_tree(clustering, weights), k
+    else:  # Ward's tree of the rows: its finer cuts split the run's clusters
+        tree, k_max = ward_tree(space, weights, seed=0), 9
+    levels = build_levels(tree, space, weights, clustering.labels, k_min=2, k_max=k_max, run_k=k)
+    return levels, counts, weights, clustering.labels, k
+
+
+@pytest.mark.parametrize("tree_kind", ["centroids", "ward"])
+def test_level_terms_from_the_run_clusters_frequencies_equal_a_fresh_count(tree_kind: str) -> None:
+    """level_terms may sum the finest cut's document frequencies from the run clusters' (counted once for the
+    summaries); the reference is its own pass over the rows (no `run`)."""
+    from pilewise.describe.summaries import _merged_run_frequencies, cluster_term_totals, level_terms
+
+    levels, counts, weights, labels, k = _levels_case(tree_kind)
+    shown = [f"t{j}" for j in range(counts.shape[1])]
+    run_df, _ = cluster_term_totals(counts, labels, weights, k)
+    expected = level_terms(levels, counts, weights, shown)
+    assert level_terms(levels, counts, weights, shown, run=(labels, run_df)) == expected
+    finest_k = max(levels.cuts)
+    merged = _merged_run_frequencies((labels, run_df), levels.cuts[finest_k], finest_k, weights)
+    if tree_kind == "centroids":  # the same figures as counting the finest cut's rows
+        direct, _ = cluster_term_totals(counts, levels.cuts[finest_k], weights, finest_k)
+        assert merged is not None and np.array_equal(merged.toarray(), direct.toarray())
+    else:  # a run cluster split between two cut clusters: no shortcut
+        assert merged is None
+    # fractional weights: sums in another order could differ in the last bit, so no shortcut either
+    assert _merged_run_frequencies((labels, run_df), levels.cuts[finest_k], finest_k, weights + 0.5) is None

@@ -468,10 +468,10 @@ def _described(
 ) -> RunResult:
     """Assessing, describing and explaining a clustering (the stages every engine shares), and the map.
 
-    The map's t-SNE, the rules' 126 tree fits and the term profiles need only the space, the counts, the
-    labels and the seed, so they are handed to one worker process (`_Beside`) that runs them on the second
-    core while assessing and describing run here, where there is a second core (not beside Spark's
-    threads). Their results are the same either way (tested).
+    The map's t-SNE and the rules' 126 tree fits need only the space, the counts, the labels and the seed,
+    so they are handed to one worker process (`_Beside`) that runs them on the second core while assessing
+    and describing run here, where there is a second core (not beside Spark's threads). Their results are
+    the same either way (tested).
     """
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
@@ -488,9 +488,6 @@ def _described(
         "map": (docmap.layout, (space[rows], options.seed), {}),
         "rules": (explain_run, (prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns),
                   {"k": k, "seed": options.seed}),
-        # a pass over the counts that nothing here waits for: it evens out the two processes' work
-        "profiles": (term_profiles_from_counts, (prepared.vectors.counts, clustering.labels, weights, shown),
-                     {"k": k}),
     }
     with _Beside(jobs, background=population is None and (options.workers or default_workers()) > 1) as beside:
         with reporter.stage("assessing"):
@@ -515,6 +512,7 @@ def _described(
             levels = replace(levels, terms=level_terms(
                 levels, prepared.vectors.counts, weights, shown,
                 run=(clustering.labels, term_totals[0]) if term_totals is not None else None))
+            profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
             mixed = [c.mixed for c in clusters]
             if population is not None and population.dated is not None:  # counted over every document on Spark
                 trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period,
@@ -523,7 +521,6 @@ def _described(
                 trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
         with reporter.stage("explaining"):  # in the worker: the wait for it
             rules: RuleSet = beside.result("rules")
-            profiles = beside.result("profiles")
         with reporter.stage("laying out the map"):
             points: np.ndarray = beside.result("map")
     suggestions = [c.suggested_name for c in clusters]
