@@ -33,7 +33,7 @@ from pilewise.describe.names import carry_names, earlier_run_problems, find_old_
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
 from pilewise.describe.rules import RuleSet, explain_run
 from pilewise.describe.runfolders import read_site_assigned, read_site_runs, read_site_sweeps
-from pilewise.describe.summaries import ClusterTotals, describe_clusters, level_terms
+from pilewise.describe.summaries import ClusterTotals, cluster_term_totals, describe_clusters, level_terms
 from pilewise.describe.trends import Trends, cluster_trends, counted_trends
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import (
@@ -499,14 +499,19 @@ def _described(
                 track=lambda steps: reporter.track(steps, total=len(steps), label="resamples", unit="resample"),
             )
         with reporter.stage("describing"):
+            # the clusters' term frequencies, counted once for the summaries and the levels' terms
+            term_totals = None if totals is not None else cluster_term_totals(prepared.vectors.counts,
+                                                                              clustering.labels, weights, k)
             clusters = describe_clusters(
                 prepared.collection, prepared.vectors, clustering, quality, prepared.analyzer,
-                top_terms=options.top_terms, stability=stability, totals=totals,
+                top_terms=options.top_terms, stability=stability, totals=totals, term_totals=term_totals,
             )
             levels_tree = tree if tree is not None else centroid_tree(clustering, weights)
             levels = build_levels(levels_tree, space, weights, clustering.labels, k_min=k_min,
                                   k_max=k_max if tree is not None else k, run_k=k)
-            levels = replace(levels, terms=level_terms(levels, prepared.vectors.counts, weights, shown))
+            levels = replace(levels, terms=level_terms(
+                levels, prepared.vectors.counts, weights, shown,
+                run=(clustering.labels, term_totals[0]) if term_totals is not None else None))
             profiles = term_profiles_from_counts(prepared.vectors.counts, clustering.labels, weights, shown, k=k)
             mixed = [c.mixed for c in clusters]
             if population is not None and population.dated is not None:  # counted over every document on Spark

@@ -26,6 +26,7 @@ import scipy.sparse as sp
 from scipy.stats import chi2_contingency, mannwhitneyu
 
 from pilewise.clustering.kmeans import cluster_sums
+from pilewise.describe.stats import best_first
 from pilewise.model import Collection
 from pilewise.vectors.tfidf import document_frequency, smooth_idf, tfidf_rows
 
@@ -241,11 +242,8 @@ def profiles_from_sums(
         mean_in = sums_in / size
         mean_out = (sums_all - sums_in) / (total_weight - size)
         diff = mean_in - mean_out
-        order = np.arange(diff.size)
-        up = np.flatnonzero(diff > 0)
-        up = up[np.lexsort((order[up], -diff[up]))][:top]
-        down = np.flatnonzero(diff < 0)
-        down = down[np.lexsort((order[down], diff[down]))][:bottom]
+        up = best_first(np.flatnonzero(diff > 0), diff, top)
+        down = best_first(np.flatnonzero(diff < 0), -diff, bottom)
         profiles.append(
             ClusterProfile(
                 cluster_id=c,

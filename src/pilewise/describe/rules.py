@@ -26,12 +26,12 @@ import numpy as np
 import scipy.sparse as sp
 from sklearn.base import BaseEstimator, ClassifierMixin, clone
 from sklearn.metrics import accuracy_score, f1_score
-from sklearn.model_selection import StratifiedKFold, cross_val_predict
+from sklearn.model_selection import StratifiedKFold
 from sklearn.tree import DecisionTreeClassifier
 
 from pilewise.clustering.stability import stability_rows
 from pilewise.describe.profiles import MetadataAnalysis
-from pilewise.describe.stats import chi_square_2x2
+from pilewise.describe.stats import best_first, chi_square_2x2
 
 RULES_ROWS = 20_000  # distinct texts the pipeline fits and cross-validates rules on (a seeded sample above)
 MAX_FOLDS = 5  # held-out folds; fewer when a cluster (or the rest) has fewer distinct texts
@@ -192,10 +192,18 @@ class ChiSquareTreeClassifier(ClassifierMixin, BaseEstimator):
         if y.shape != (X.shape[0],) or weights.shape != (X.shape[0],):
             raise ValueError(f"y and sample_weight need one value per row of X ({X.shape[0]})")
         terms = chi_square_columns(X, y, weights, self.max_features, term_columns=self.n_terms)
-        self.columns_ = np.concatenate([terms, np.arange(self.n_terms, X.shape[1])]).astype(np.intp)
+        self._set_columns(terms, X.shape[1])
+        return self._fit_tree(self._view(X), y, weights)
+
+    def _set_columns(self, terms: np.ndarray, n_columns: int) -> None:
+        """The chosen term columns, then every metadata column."""
+        self.columns_ = np.concatenate([terms, np.arange(self.n_terms, n_columns)]).astype(np.intp)
+
+    def _fit_tree(self, view: sp.csc_matrix, y: np.ndarray, weights: np.ndarray) -> ChiSquareTreeClassifier:
+        """Fit the tree on `view`, the rows' selected columns (`columns_`)."""
         self.estimator_ = DecisionTreeClassifier(
             max_depth=self.max_depth, min_samples_leaf=self.min_samples_leaf, random_state=self.random_state
-        ).fit(self._view(X), y, sample_weight=weights)
+        ).fit(view, y, sample_weight=weights)
         self.classes_ = self.estimator_.classes_
         return self
 
@@ -242,17 +250,22 @@ def chi_square_columns(
     # (n_columns, n_classes) weighted document frequencies; the product over every column and then the first
     # n_columns rows of it, rather than a copy of the first columns (a tree fit repeats this 126 times)
     df_in = np.asarray(present.T @ in_class)[:n_columns]
+    return _ranked_columns(df_in, in_class.sum(axis=0), float(weights.sum()), top)
+
+
+def _ranked_columns(df_in: np.ndarray, sizes: np.ndarray, total: float, top: int) -> np.ndarray:
+    """`chi_square_columns` from the weighted document frequencies (n_columns, n_classes) and class sizes."""
     df_all = df_in.sum(axis=1)
-    sizes = in_class.sum(axis=0)
-    total = float(weights.sum())
+    by_class = np.ascontiguousarray(df_in.T)  # one class's column, read 2 to 20 times, as a contiguous row
     ranks, columns, order_in_rank = [], [], []
-    for c in range(classes.size):
+    for c in range(sizes.size):
         size, rest = sizes[c], total - sizes[c]
-        df_out = df_all - df_in[:, c]
-        scores = chi_square_2x2(df_in[:, c], df_out, size - df_in[:, c], rest - df_out)
-        over = df_in[:, c] * rest > df_out * size  # share in the class above the share outside
+        df_c = by_class[c]
+        df_out = df_all - df_c
+        scores = chi_square_2x2(df_c, df_out, size - df_c, rest - df_out)
+        over = df_c * rest > df_out * size  # share in the class above the share outside
         candidates = np.flatnonzero(over & (scores > 0))
-        best = candidates[np.lexsort((candidates, -scores[candidates]))][:top]
+        best = best_first(candidates, scores, top)
         ranks.append(np.arange(best.size))
         columns.append(best)
         order_in_rank.append(np.full(best.size, c))
@@ -313,8 +326,9 @@ def explain_clusters(
     that tree predicts c, or when held-out precision < `MIN_PRECISION` or coverage < `MIN_COVERAGE`.
 
     The whole tree has depth ``depth + 1`` and leaf minimum max(5, 1% of the rows); its fidelity is the
-    weighted accuracy and macro-F1 of ``cross_val_predict`` with ``StratifiedKFold(min(5, max(2, smallest
-    cluster's texts)), shuffle=True, random_state=seed)`` on the cluster labels.
+    weighted accuracy and macro-F1 of held-out predictions (made as scikit-learn's ``cross_val_predict``
+    makes them) with ``StratifiedKFold(min(5, max(2, smallest cluster's texts)), shuffle=True,
+    random_state=seed)`` on the cluster labels.
 
     Parameters
     ----------
@@ -349,26 +363,31 @@ def explain_clusters(
     n_terms = present.shape[1]
     column_present = _column_presence(X)
     counts = np.bincount(labels, minlength=k)
+    fits = _Fits(X, weights, n_terms)
+    classes, codes = np.unique(labels, return_inverse=True)
+    totals = fits.class_totals(codes, classes.size)  # (n_terms, clusters present): shared by every fit
+    exclusive = exclusive_groups(columns.field)
     rules = []
     for c in range(k):
-        y = labels == c
         model = ChiSquareTreeClassifier(
             n_terms=n_terms, max_features=max_features, max_depth=depth,
             min_samples_leaf=_cluster_leaf_minimum(n, int(counts[c])), random_state=seed,
         )
-        rules.append(_cluster_rule(c, X, y, weights, model, column_present, columns, seed))
+        rules.append(_cluster_rule(c, labels == c, fits, _one_against_rest(fits, totals, classes, c, labels),
+                                   model, column_present, columns, exclusive, seed))
     whole_model = ChiSquareTreeClassifier(
         n_terms=n_terms, max_features=max_features, max_depth=depth + WHOLE_TREE_EXTRA_DEPTH,
         min_samples_leaf=max(MIN_LEAF_TEXTS, math.ceil(LEAF_SHARE_OF_ROWS * n)), random_state=seed,
     )
-    whole = clone(whole_model).fit(X, labels, sample_weight=weights)
+    whole = fits.fit(whole_model, np.arange(n), codes, totals, classes)
     folds = min(MAX_FOLDS, max(2, int(counts[counts > 0].min())))
+    # held-out predictions as scikit-learn's cross_val_predict makes them (fit on each training part, predict
+    # its held-out part), with the fits sharing their work
+    predicted = np.empty_like(labels)
     with warnings.catch_warnings():  # a one-text cluster cannot be in every fold; sklearn says so, we know
         warnings.filterwarnings("ignore", message="The least populated class", category=UserWarning)
-        predicted = cross_val_predict(
-            whole_model, X, labels, cv=StratifiedKFold(folds, shuffle=True, random_state=seed),
-            params={"sample_weight": weights},
-        )
+        for train, test in StratifiedKFold(folds, shuffle=True, random_state=seed).split(np.zeros(n), labels):
+            predicted[test] = fits.fit(whole_model, train, codes, totals, classes).predict(X[test])
     return RuleSet(
         rules=tuple(rules),
         fidelity_accuracy=float(accuracy_score(labels, predicted, sample_weight=weights)),
@@ -459,21 +478,93 @@ def _column_presence(X: sp.csr_matrix) -> list[np.ndarray]:
     return [csc.indices[csc.indptr[j]:csc.indptr[j + 1]] for j in range(csc.shape[1])]
 
 
+class _Fits:
+    """Tree fits on subsets of the rows of one feature matrix, sharing the work every fit would repeat.
+
+    A `ChiSquareTreeClassifier` fit on the rows `rows` gives the same tree as ``fit(X[rows], y[rows],
+    weights[rows])``: the same term columns (the same chi-square figures from the same document frequencies)
+    and the same matrix for the tree. What differs is the arithmetic. The weighted document frequencies of a
+    training part are those of all rows (one product per labelling, made once) less those of the held-out
+    part, which is a quarter of its size; this is exact when the weights are whole numbers (copies), as
+    their sums are then exact in floating point in any order, so other weights take the direct product.
+    The tree's matrix is cut from a column-major copy made once: the chosen columns first, then the rows,
+    instead of the rows of every column first.
+    """
+
+    def __init__(self, X: sp.csr_matrix, weights: np.ndarray, n_terms: int) -> None:
+        self.X = X
+        self.by_column = X.tocsc()
+        self.by_column.sort_indices()
+        self.weights = weights
+        self.n_terms = n_terms
+        self.whole_weights = bool(np.all(weights == np.round(weights)))
+
+    def class_totals(self, codes: np.ndarray, n_classes: int) -> np.ndarray:
+        """Weighted document frequency of every term column in every class over all rows: (n_terms, n_classes)."""
+        return self._document_frequencies(np.arange(codes.size), codes, n_classes)
+
+    def _document_frequencies(self, rows: np.ndarray, codes: np.ndarray, n_classes: int) -> np.ndarray:
+        in_class = np.zeros((rows.size, n_classes))
+        in_class[np.arange(rows.size), codes[rows]] = self.weights[rows]
+        return np.asarray(self.X[rows].T @ in_class)[: self.n_terms]
+
+    def fit(
+        self, model: ChiSquareTreeClassifier, rows: np.ndarray, codes: np.ndarray, totals: np.ndarray,
+        classes: np.ndarray,
+    ) -> ChiSquareTreeClassifier:
+        """`model` fitted on `rows` with labels ``classes[codes]``; `totals` is `class_totals(codes, ...)`."""
+        n = codes.size
+        fitted = clone(model)
+        present = np.bincount(codes[rows], minlength=classes.size) > 0
+        terms = np.zeros(0, dtype=np.intp)
+        if self.n_terms > 0 and present.sum() >= 2 and model.max_features > 0:
+            if rows.size == n:
+                df = totals
+            elif self.whole_weights and 2 * rows.size > n:
+                held = np.setdiff1d(np.arange(n), rows, assume_unique=True)
+                df = totals - self._document_frequencies(held, codes, classes.size)
+            else:
+                df = self._document_frequencies(rows, codes, classes.size)
+            sizes = np.bincount(codes[rows], weights=self.weights[rows], minlength=classes.size)
+            terms = _ranked_columns(df[:, present], sizes[present], float(self.weights[rows].sum()),
+                                    model.max_features)
+        fitted._set_columns(terms, self.X.shape[1])
+        if fitted.columns_.size == 0:
+            view = sp.csc_matrix((rows.size, 1), dtype=np.float32)
+        else:
+            view = sp.csc_matrix(self.by_column[:, fitted.columns_][rows], dtype=np.float32)
+        return fitted._fit_tree(view, classes[codes[rows]], self.weights[rows])
+
+
+def _one_against_rest(fits: _Fits, totals: np.ndarray, classes: np.ndarray, c: int, labels: np.ndarray) -> np.ndarray:
+    """Weighted document frequencies outside and inside cluster c over all rows: (n_terms, 2)."""
+    where = np.flatnonzero(classes == c)
+    if fits.whole_weights and where.size:  # sums of whole numbers: the rest's is all less the cluster's, exactly
+        inside = totals[:, where[0]]
+        return np.column_stack([totals.sum(axis=1) - inside, inside])
+    return fits.class_totals((labels == c).astype(np.intp), 2)
+
+
 def _cluster_rule(
-    c: int, X: sp.csr_matrix, y: np.ndarray, weights: np.ndarray, model: ChiSquareTreeClassifier,
-    column_present: list[np.ndarray], columns: _Columns, seed: int,
+    c: int, y: np.ndarray, fits: _Fits, totals: np.ndarray, model: ChiSquareTreeClassifier,
+    column_present: list[np.ndarray], columns: _Columns, exclusive: Sequence[frozenset[int]], seed: int,
 ) -> ClusterRule:
-    """Rule of cluster c from the tree fitted on all rows; precision and coverage from held-out folds."""
+    """Rule of cluster c from the tree fitted on all rows; precision and coverage from held-out folds.
+
+    `y` marks the cluster's rows and `totals` holds the term columns' weighted document frequencies outside
+    and inside it over all rows.
+    """
     members = int(y.sum())
     n_splits = min(MAX_FOLDS, members, y.size - members)
     if n_splits < 2:
         return ClusterRule(c, "", (), None, None,
                            f"too few texts to test a rule on held-out folds ({members} in the cluster, "
                            f"{y.size - members} outside)")
-    paths = _leaf_paths(clone(model).fit(X, y, sample_weight=weights), True)[:MAX_RULES]
+    weights, codes, sides = fits.weights, y.astype(np.intp), np.array([False, True])
+    paths = _leaf_paths(fits.fit(model, np.arange(y.size), codes, totals, sides), True)[:MAX_RULES]
     tp = fp = fn = 0.0
     for train, test in StratifiedKFold(n_splits, shuffle=True, random_state=seed).split(np.zeros(y.size), y):
-        fold_paths = _leaf_paths(clone(model).fit(X[train], y[train], sample_weight=weights[train]), True)
+        fold_paths = _leaf_paths(fits.fit(model, train, codes, totals, sides), True)
         matched = _matches(fold_paths[:MAX_RULES], column_present, y.size)[test]
         w, truth = weights[test], y[test]
         tp += float(w[matched & truth].sum())
@@ -481,7 +572,7 @@ def _cluster_rule(
         fn += float(w[~matched & truth].sum())
     precision = tp / (tp + fp) if tp + fp > 0 else None
     coverage = tp / (tp + fn)
-    simple = simplify_paths([p.conditions for p in paths], exclusive_groups(columns.field))
+    simple = simplify_paths([p.conditions for p in paths], exclusive)
     text = rule_text(simple, columns)
     reason = ""
     if not paths:

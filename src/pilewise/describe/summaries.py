@@ -19,9 +19,9 @@ from pilewise.clustering.kmeans import Clustering, cluster_sums
 from pilewise.clustering.levels import Levels
 from pilewise.clustering.stability import StabilityResult, mixed_stability_reading
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
-from pilewise.describe.kwic import kwic_line
+from pilewise.describe.kwic import find_term, kwic_window
 from pilewise.describe.names import suggested_name_from
-from pilewise.describe.stats import chi_square_2x2, informative_prior, log_odds_dirichlet
+from pilewise.describe.stats import best_first, chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
 from pilewise.vectors.text import Analyzer
 from pilewise.vectors.tfidf import Vectorized
@@ -66,6 +66,7 @@ def describe_clusters(
     top_terms: int,
     stability: StabilityResult | None = None,
     totals: ClusterTotals | None = None,
+    term_totals: tuple[sp.csr_matrix, sp.csr_matrix] | None = None,
 ) -> tuple[ClusterSummary, ...]:
     """Summaries of every cluster, numbered as in `clustering`, largest first.
 
@@ -73,13 +74,16 @@ def describe_clusters(
     documents shown come from bounded digests filled in passes over the rows in blocks: the members
     nearest each centroid, and for each cluster's top terms the members holding the term nearest the
     centroid. Describing needs memory for k x terms figures, not for the documents. `totals`, when
-    given, replaces the figures counted from the rows at hand (sizes, term statistics, mean distances).
+    given, replaces the figures counted from the rows at hand (sizes, term statistics, mean distances);
+    `term_totals`, when given, is `cluster_term_totals` of these rows, already counted by the caller.
     """
     labels = clustering.labels
     weights = collection.copies.astype(float)
     k = clustering.centroids.shape[0]
     if totals is not None:
         df_by_cluster, counts_by_cluster = totals.df, totals.counts
+    elif term_totals is not None:
+        df_by_cluster, counts_by_cluster = term_totals
     else:
         df_by_cluster, counts_by_cluster = cluster_term_totals(vectors.counts, labels, weights, k)
     df_all = np.asarray(df_by_cluster.sum(axis=0)).ravel()
@@ -162,18 +166,24 @@ LEVEL_TERMS = 5  # terms that describe a cluster of a coarser or finer cut
 
 
 def level_terms(
-    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS
+    levels: Levels, counts: sp.csr_matrix, weights: np.ndarray, shown: Sequence[str], top: int = LEVEL_TERMS,
+    *, run: tuple[np.ndarray, sp.csr_matrix] | None = None,
 ) -> dict[int, tuple[tuple[str, ...], ...]]:
     """For every cut of `levels`, each cluster's `top` terms by chi-square (as in `describe_clusters`).
 
     The cuts of one tree nest, so the document frequencies of the finest cut (one pass over the rows)
-    are summed into those of every coarser cut.
+    are summed into those of every coarser cut. `run`, the run's labels and its clusters' weighted document
+    frequencies (k x terms), saves that pass when every run cluster lies inside one cluster of the finest
+    cut (a tree over the run's own clusters) and the weights are whole numbers (copies: their sums are
+    then exact in any order, so the figures are the same).
     """
     if not levels.cuts:
         return {}
     finest_k = max(levels.cuts)
     finest = levels.cuts[finest_k]
-    df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
+    df_fine = _merged_run_frequencies(run, finest, finest_k, weights) if run is not None else None
+    if df_fine is None:
+        df_fine, _ = cluster_term_totals(counts, finest, weights, finest_k)
     size_fine = np.bincount(finest, weights=weights, minlength=finest_k)
     df_all = np.asarray(df_fine.sum(axis=0)).ravel()
     total = float(weights.sum())
@@ -193,6 +203,23 @@ def level_terms(
             for c in range(k)
         )
     return out
+
+
+def _merged_run_frequencies(
+    run: tuple[np.ndarray, sp.csr_matrix], cut: np.ndarray, cut_k: int, weights: np.ndarray
+) -> sp.csr_matrix | None:
+    """The cut's clusters' document frequencies summed from the run clusters', or None when they cannot be."""
+    run_labels, run_df = run
+    if not np.all(weights == np.round(weights)):
+        return None
+    cut_of_run = np.full(run_df.shape[0], -1)
+    cut_of_run[run_labels] = cut
+    if not np.array_equal(cut_of_run[run_labels], cut):  # a run cluster split between two cut clusters
+        return None
+    present = cut_of_run >= 0
+    merge = sp.csr_matrix((np.ones(int(present.sum())), (cut_of_run[present], np.flatnonzero(present))),
+                          shape=(cut_k, run_df.shape[0]))
+    return sp.csr_matrix(merge @ run_df)
 
 
 def mixed_reason(theme_terms: Sequence[TermScore], similarity: float, others_median: float | None) -> str:
@@ -313,7 +340,7 @@ def _chi2_terms(
     share_out = df_out / rest if rest > 0 else np.zeros_like(df_out)
     over = share_in > share_out
     candidates = np.flatnonzero(over & (scores > 0))
-    ranked = candidates[np.lexsort((candidates, -scores[candidates]))][:top]
+    ranked = best_first(candidates, scores, top)
     return tuple(
         TermScore(shown[i], keys[i], float(scores[i]), int(round(df_in[i])), int(round(df_out[i])),
                   float(share_in[i]), float(share_out[i]))
@@ -329,7 +356,7 @@ def _log_odds_terms(
     rest = total - size
     df_out = df_all - df_in
     candidates = np.flatnonzero((delta > 0) & (counts_in > 0))
-    ranked = candidates[np.lexsort((candidates, -z[candidates]))][:top]
+    ranked = best_first(candidates, z, top)
     return tuple(
         TermScore(shown[i], keys[i], float(delta[i]), int(round(df_in[i])), int(round(df_out[i])),
                   float(df_in[i] / size), float(df_out[i] / rest) if rest > 0 else 0.0, z=float(z[i]))
@@ -342,14 +369,18 @@ def _kwic_for(
 ) -> tuple[KwicLine, ...]:
     """Up to KWIC_LINES_PER_TERM lines per term, from the distinct member texts holding it, nearest first."""
     lines: list[KwicLine] = []
+    spans_of: dict[int, list[tuple[int, int, str]]] = {}  # the near members hold several of the cluster's terms
     for term, holders in terms:
         found = 0
         for text_index in holders.tolist():
             doc_index = int(collection.first_doc_of_text[text_index])
             doc = collection.documents[doc_index]
-            line = kwic_line(doc.text, analyzer, term.key)
-            if line is None:
+            if doc_index not in spans_of:
+                spans_of[doc_index] = analyzer.spans(doc.text)
+            span = find_term(spans_of[doc_index], term.key)  # what kwic_line does, with the spans kept
+            if span is None:
                 continue
+            line = kwic_window(doc.text, span[0], span[1])
             lines.append(KwicLine(term.term, line[0], line[1], line[2], doc.doc_id, doc_index))
             found += 1
             if found == KWIC_LINES_PER_TERM:
