@@ -49,6 +49,7 @@ _DIGITS = re.compile(r"\d+")
 _CHUNK_SHINGLES = 1 << 13  # shingles hashed at once: a (num_perm, chunk) uint64 block, 8 MiB at 128
 _CHUNK_PAIRS = 1 << 16
 _BATCH_TEXTS = 1 << 13
+_WORDS_AT_ONCE = 1 << 16  # words looked up in one call of _Vocabulary.ids
 # Odd 64-bit constants (digits of pi, e, sqrt 2, sqrt 3, golden ratio) weighting the words of a shingle.
 _POSITION_WEIGHTS = np.array(
     [0x243F6A8885A308D3, 0xB7E151628AED2A6B, 0x6A09E667F3BCC909, 0xBB67AE8584CAA73B, 0x9E3779B97F4A7C15],
@@ -260,17 +261,22 @@ def _batch_shingles(texts: Sequence[str], vocabulary: _Vocabulary) -> tuple[np.n
     """Shingle hashes of a batch of texts, one text after the other, and the number of shingles of each."""
     n = len(texts)
     batch_words: list[str] = []
+    id_parts: list[np.ndarray] = []
     lengths = np.zeros(n, dtype=np.int64)
     whole: dict[int, int] = {}
     for i, text in enumerate(texts):
         words = shingle_words(text)
         if len(words) >= SHINGLE_WORDS:
             batch_words += words
+            if len(batch_words) >= _WORDS_AT_ONCE:  # the words as ids: str objects cost 50-60 bytes each
+                id_parts.append(vocabulary.ids(batch_words))
+                batch_words = []
             lengths[i] = len(words)
         else:
             key = "w\0" + " ".join(words) if words else "c\0" + " ".join(text.lower().split())
             whole[i] = _hash64(key)
-    word_ids = vocabulary.ids(batch_words)  # before `hashes`, which hashes the words new in this batch
+    id_parts.append(vocabulary.ids(batch_words))
+    word_ids = np.concatenate(id_parts)  # before `hashes`, which hashes the words new in this batch
     tokens = vocabulary.hashes()[word_ids]
 
     is_long = lengths > 0
