@@ -10,11 +10,14 @@ from __future__ import annotations
 
 import csv
 import hashlib
+import multiprocessing
+import os
 import random
 import re
 import sys
 from collections import Counter
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -210,7 +213,8 @@ def _write_mixed_collection(path: Path) -> None:
             writer.writerow([f"t{i}", text])
 
 
-def test_languages_detected_beside_grouping_equal_those_after_it(tmp_path: Path, monkeypatch) -> None:
+def test_languages_detected_beside_grouping_equal_those_after_it(tmp_path: Path,
+                                                                 monkeypatch: pytest.MonkeyPatch) -> None:
     """The codes of the texts left after near-duplicate grouping are the same whether languages are detected in
     a forked worker on every distinct text or after grouping on the texts left (workers 2 against 1)."""
     source = tmp_path / "mixed.csv"
@@ -219,9 +223,10 @@ def test_languages_detected_beside_grouping_equal_those_after_it(tmp_path: Path,
     marks = tmp_path / "detected-in"
     detect = pipeline.detect_languages
 
-    def detect_marked(*args, **kwargs):  # noqa: ANN002, ANN003, ANN202 - a spy around the real function
+    def detect_marked(*args: Any, **kwargs: Any) -> tuple[str, ...]:
+        """The real detection, noting the process it ran in."""
         with marks.open("a") as out:
-            out.write(f"{__import__('os').getpid()}\n")
+            out.write(f"{os.getpid()}\n")
         return detect(*args, **kwargs)
 
     monkeypatch.setattr(pipeline, "detect_languages", detect_marked)
@@ -231,8 +236,8 @@ def test_languages_detected_beside_grouping_equal_those_after_it(tmp_path: Path,
                              workers=workers)
         results[workers] = pipeline.prepare_collection(options, Reporter(quiet=True), k_needed=3)
     pids = marks.read_text().split()
-    assert pids[1] == str(__import__("os").getpid())  # workers 1: in place
-    if "fork" in __import__("multiprocessing").get_all_start_methods():
+    assert pids[1] == str(os.getpid())  # workers 1: in place
+    if "fork" in multiprocessing.get_all_start_methods():
         assert pids[0] != pids[1]  # workers 2: in the forked worker
     beside, after = results[2], results[1]
     assert beside.collection.copies.size == 90  # the 20 near-duplicates were joined, the 5 exact copies too
@@ -244,7 +249,7 @@ def test_languages_detected_beside_grouping_equal_those_after_it(tmp_path: Path,
 @pytest.mark.parametrize(("n_texts", "forced", "workers", "expected"), [
     (10_000, None, 2, True), (10_000, "de", 2, False), (10_000, None, 1, False), (100, None, 2, False)])
 def test_when_detection_goes_beside(n_texts: int, forced: str | None, workers: int, expected: bool) -> None:
-    fork = "fork" in __import__("multiprocessing").get_all_start_methods()
+    fork = "fork" in multiprocessing.get_all_start_methods()
     assert pipeline._detect_beside(n_texts, forced, workers) == (expected and fork)
 
 
