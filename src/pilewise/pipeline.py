@@ -64,7 +64,13 @@ from pilewise.output.outfolder import claim_site, is_marked, owned, site_lock, w
 from pilewise.output.site import render_root_index, render_sweep
 from pilewise.output.writing import _claim_name, _work_folder, _write_atomically, _write_run, write_comparison
 from pilewise.progress import Reporter
-from pilewise.vectors.languages import detect_languages, language_mix, present_languages, shares
+from pilewise.vectors.languages import (
+    CLASSIFY_PARALLEL_MIN,
+    detect_languages,
+    language_mix,
+    present_languages,
+    shares,
+)
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
 from pilewise.vectors.tfidf import Vectorized, VectorSettings, vectorize
@@ -292,28 +298,42 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         collection = collect_distinct(ingested.documents)
         reporter.say(_reading_line(ingested, collection))
     check_k(k_needed, int(collection.copies.size))
-    with reporter.stage("grouping near-duplicates"):
-        texts = [collection.documents[i].text for i in collection.first_doc_of_text]
-        boilerplate = find_boilerplate(texts) if options.boilerplate else NO_BOILERPLATE
-        if boilerplate.lines:
-            stripped = strip_texts(texts, boilerplate)
-            texts = stripped.texts
-            reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
-                                           stripped.lines_kept))
-        near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed,
-                                     workers=options.workers or default_workers()) \
-            if options.near_duplicate < 1.0 else None
-        if near is not None and near.representative.size < len(texts):
-            collection = merge_near_duplicates(collection, near)
-            texts = [texts[i] for i in near.representative]
-            reporter.say(f"{len(near.group_of) - near.representative.size:,} near-duplicate texts joined their "
-                         f"groups; {near.representative.size:,} texts to cluster")
-    check_k(k_needed, int(collection.copies.size),
-            "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
-    with reporter.stage("detecting languages"):
-        text_languages = detect_languages(texts, options.language, workers=options.workers or default_workers())
-        present = present_languages(text_languages, collection.copies) or ("en",)
-        reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
+    workers = options.workers or default_workers()
+    with ExitStack() as beside_grouping:
+        with reporter.stage("grouping near-duplicates"):
+            texts = [collection.documents[i].text for i in collection.first_doc_of_text]
+            boilerplate = find_boilerplate(texts) if options.boilerplate else NO_BOILERPLATE
+            if boilerplate.lines:
+                stripped = strip_texts(texts, boilerplate)
+                texts = stripped.texts
+                reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
+                                               stripped.lines_kept))
+            # Languages are detected on the same distinct texts, in a forked worker while the grouping runs
+            # here (on two cores both take seconds at 50,000 texts). There every distinct text is detected; a
+            # text's code does not depend on the others, so the codes of the texts left are those that detection
+            # after grouping gives (as below CLASSIFY_PARALLEL_MIN texts, with --language or --workers 1).
+            detecting = _Beside({"languages": (detect_languages, (texts, options.language), {})},
+                                background=True) if _detect_beside(len(texts), options.language, workers) else None
+            if detecting is not None:
+                beside_grouping.enter_context(detecting)
+            near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed,
+                                         workers=workers) if options.near_duplicate < 1.0 else None
+            left = near.representative if near is not None else np.arange(len(texts))
+            if near is not None and near.representative.size < len(texts):
+                collection = merge_near_duplicates(collection, near)
+                texts = [texts[i] for i in near.representative]
+                reporter.say(f"{len(near.group_of) - near.representative.size:,} near-duplicate texts joined "
+                             f"their groups; {near.representative.size:,} texts to cluster")
+        check_k(k_needed, int(collection.copies.size),
+                "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
+        with reporter.stage("detecting languages"):
+            if detecting is not None:
+                every = detecting.result("languages")
+                text_languages = tuple(every[i] for i in left.tolist())
+            else:
+                text_languages = detect_languages(texts, options.language, workers=workers)
+            present = present_languages(text_languages, collection.copies) or ("en",)
+            reporter.say(_languages_line(text_languages, collection.copies, forced=options.language is not None))
     analyzer = Analyzer(stop_words=load_stop_words(options.stop_words_file, present), stem=options.stem,
                         languages=present)
     with reporter.stage("vectorizing"):
@@ -602,6 +622,13 @@ def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, 
     if not any(dates):
         return None
     return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period, mixed=mixed)
+
+
+def _detect_beside(n_texts: int, forced: str | None, workers: int) -> bool:
+    """Whether languages are detected in a forked worker beside the near-duplicate grouping (see
+    prepare_collection): with a second core, no --language, and as many texts as detection's own workers need."""
+    return (workers > 1 and forced is None and n_texts >= CLASSIFY_PARALLEL_MIN
+            and "fork" in multiprocessing.get_all_start_methods())
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:
