@@ -198,7 +198,7 @@ Mode = Annotated[str, typer.Option(
     "--mode", metavar="memory|stream|auto",
     help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
 Workers = Annotated[int, typer.Option(
-    "--workers", metavar="N", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
+    "--workers", metavar="N", help="Tokenizing processes (streaming; in memory from 10,000 texts); 0 = one per core."
 )]
 Engine = Annotated[str, typer.Option(
     "--engine", metavar="local|spark",
