@@ -352,9 +352,10 @@ def sweep(
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability), recommend one,
     and write OUT/sweeps/NAME/."""
-    from pilewise.pipeline import sweep_collection
+    options = _run_options(locals(), k=None, k_range=(k, "--k"))
+    from pilewise.pipeline import sweep_collection  # after locals() is read: it holds the options only
 
-    outcome = sweep_collection(_run_options(locals(), k=None, k_range=(k, "--k")))
+    outcome = sweep_collection(options)
     typer.echo(f"recommended {outcome.reason}", err=True)
     typer.echo(str(outcome.page.resolve()))
 
