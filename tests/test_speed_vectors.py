@@ -9,6 +9,9 @@ from __future__ import annotations
 
 import random
 import re
+import subprocess
+import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -103,3 +106,15 @@ def test_worker_chunks_cover_the_texts_in_order_in_equal_parts(monkeypatch: pyte
     # 101 texts for 2 workers in CHUNKS_PER_WORKER chunks each: ceil(101 / 4) = 26, 26, 26, 23 texts
     assert [int(lengths.size) for _, _, lengths in chunks] == [26, 26, 26, 23]
     assert [word for local, _, _ in chunks for word in local] == [lower(t) for t in texts]
+
+
+def test_the_command_line_imports_the_pipeline_only_for_a_command_that_runs_it() -> None:
+    """`pilewise --help` and usage errors answer without importing scikit-learn, scipy or pandas."""
+    probe = ("import sys, pilewise, pilewise.cli; "
+             "heavy = ('sklearn', 'scipy', 'pandas', 'bs4', 'pilewise.pipeline'); "
+             "print(sorted(m for m in heavy if m in sys.modules)); "
+             "print(pilewise.RunOptions.__name__, pilewise.run_collection.__name__, pilewise.RunOutcome.__name__)")
+    src = str(Path(__file__).resolve().parents[1] / "src")
+    found = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True,
+                           env={"PYTHONPATH": src, "PATH": ""}).stdout.splitlines()
+    assert found == ["[]", "RunOptions run_collection RunOutcome"]
