@@ -101,9 +101,10 @@ def test_counts_from_worker_chunks_equal_one_process(monkeypatch: pytest.MonkeyP
 
 def test_worker_chunks_cover_the_texts_in_order_in_equal_parts(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setattr(tfidf, "PARALLEL_MIN_TEXTS", 10)
+    monkeypatch.setattr(tfidf, "CHUNKS_PER_WORKER", 2)
     texts = [f"w{chr(97 + i // 26)}{chr(97 + i % 26)}" for i in range(101)]  # one distinct word per text
     chunks = list(tfidf._word_chunks(texts, _analyzer(), workers=2))
-    # 101 texts for 2 workers in CHUNKS_PER_WORKER chunks each: ceil(101 / 4) = 26, 26, 26, 23 texts
+    # 101 texts for 2 workers in 2 chunks each: ceil(101 / 4) = 26, 26, 26, 23 texts (arithmetic)
     assert [int(lengths.size) for _, _, lengths in chunks] == [26, 26, 26, 23]
     assert [word for local, _, _ in chunks for word in local] == [lower(t) for t in texts]
 
