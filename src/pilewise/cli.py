@@ -7,16 +7,19 @@ import importlib
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar
 
 import typer
 from typer.core import TyperCommand, TyperGroup
 
 import pilewise
-from pilewise.clustering.sweep import parse_k_range
 from pilewise.errors import PilewiseError
-from pilewise.options import RunOptions, validate
-from pilewise.pipeline import RunOutcome, compare_runs, run_collection, sweep_collection
+
+# The pipeline (scikit-learn, scipy, pandas: about 1.5 s of imports) is imported by the commands that run it,
+# so that --help, --version and a mistyped command line answer at once.
+if TYPE_CHECKING:
+    from pilewise.options import RunOptions
+    from pilewise.pipeline import RunOutcome
 
 # click's exception classes, from wherever this typer takes them (recent typer carries its own copy of click)
 _click_errors: Any = importlib.import_module(typer.BadParameter.__module__)
@@ -198,7 +201,7 @@ Mode = Annotated[str, typer.Option(
     "--mode", metavar="memory|stream|auto",
     help="memory, stream (chunk by chunk, for very large collections), or auto (stream above 100 MB).")]
 Workers = Annotated[int, typer.Option(
-    "--workers", metavar="N", help="Tokenizing processes (streaming; in memory above 40,000 texts); 0 = one per core."
+    "--workers", metavar="N", help="Tokenizing processes (streaming; in memory from 10,000 texts); 0 = one per core."
 )]
 Engine = Annotated[str, typer.Option(
     "--engine", metavar="local|spark",
@@ -220,6 +223,8 @@ def parse_k(text: str) -> tuple[int, bool]:
 
 
 def parse_range(text: str, flag: str) -> tuple[int, int]:
+    from pilewise.clustering.sweep import parse_k_range
+
     try:
         return parse_k_range(text)
     except ValueError as err:
@@ -237,6 +242,8 @@ def _run_options(params: dict[str, Any], *, k: str | None, k_range: tuple[str, s
     Every problem is reported at once: a --k or range that cannot be read is named together with what
     `options.validate` finds in the other options.
     """
+    from pilewise.options import RunOptions, validate
+
     fields = {_OPTION_FIELDS.get(name, name): value for name, value in params.items() if name not in _COMMAND_ONLY}
     problems: list[str] = []
     k_value, k_auto = 0, True
@@ -306,6 +313,8 @@ def run(
     options = _run_options(locals(), k=k, k_range=(k_range, "--k-range"))
     if k is None and not options.quiet:
         typer.echo(f"no --k given: choosing k between {options.k_min} and {options.k_max} (--k auto)", err=True)
+    from pilewise.pipeline import run_collection
+
     _print_outcome(run_collection(options), quiet=options.quiet)
 
 
@@ -343,7 +352,10 @@ def sweep(
 ) -> None:
     """Score every k of a range (silhouette, Calinski-Harabasz, Davies-Bouldin, stability), recommend one,
     and write OUT/sweeps/NAME/."""
-    outcome = sweep_collection(_run_options(locals(), k=None, k_range=(k, "--k")))
+    options = _run_options(locals(), k=None, k_range=(k, "--k"))
+    from pilewise.pipeline import sweep_collection  # after locals() is read: it holds the options only
+
+    outcome = sweep_collection(options)
     typer.echo(f"recommended {outcome.reason}", err=True)
     typer.echo(str(outcome.page.resolve()))
 
@@ -360,6 +372,8 @@ def compare(
     ] = None,
 ) -> None:
     """Compare two runs: agreement figures, which clusters were kept, split or merged, which documents moved."""
+    from pilewise.pipeline import compare_runs
+
     typer.echo(str(compare_runs(run_a, run_b, out).resolve()))
 
 
@@ -389,6 +403,7 @@ def assign(
     """Read SOURCE as `run` reads it and place every document in the nearest cluster of the saved run RUN, with
     its distance and fit; write OUT/assigned/NAME/."""
     from pilewise.assign.command import assign_source
+    from pilewise.options import RunOptions
 
     reading = RunOptions(source=source, k=2, text_column=text_column, title_column=title_column,
                          id_column=id_column, date_column=date_column, delimiter=delimiter, encoding=encoding,
@@ -410,6 +425,8 @@ def demo(
 ) -> None:
     """Write the invented demo collection (a plant shop's customer messages) and cluster it."""
     from pilewise.demo.shop_messages import write_demo_collection
+    from pilewise.options import RunOptions, validate
+    from pilewise.pipeline import run_collection
 
     options = RunOptions(source=out.resolve() / "demo-data", k=k, out=out, seed=seed, name=f"demo-k{k}",
                          quiet=quiet)

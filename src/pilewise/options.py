@@ -88,7 +88,7 @@ class RunOptions:
     redact: bool = True
     near_duplicate: float = 0.8
     mode: str = "auto"  # memory, stream, or auto: stream above STREAM_ABOVE_BYTES of input
-    workers: int = 0  # tokenizing processes (streaming; memory mode above 40,000 texts); 0: one per core
+    workers: int = 0  # tokenizing processes (streaming; memory mode from 10,000 texts); 0: one per core
     engine: str = "local"  # local (this process), or spark (engines/spark_engine.py)
     spark_master: str = "local[*]"  # --spark-master: where the spark engine runs
     quiet: bool = False

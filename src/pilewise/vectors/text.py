@@ -38,7 +38,17 @@ TOKEN_PATTERN = f"[^\\W\\d_]+(?:{_MARKS})*(?:['\\-][^\\W\\d_]+(?:{_MARKS})*)*"
 # "break" item, which `normalize` never keeps, so that a phrase is two kept words with only white space
 # (at most one line break) between them; see `joined_to_previous`.
 BREAK_PATTERN = r"[^\w\s]+|[\d_]+|\n[^\S\n]*\n"
+# The same two patterns for a text of ASCII characters only, where each class is a plain character set that
+# `re` tests by one table lookup instead of by Unicode categories (the search 35-45% faster, measured in issue 15):
+# on ASCII, [^\W\d_] is [A-Za-z], \d is [0-9], \s is [\t\n\x0b\x0c\r\x1c-\x1f ] (as `str.isspace`), and no
+# combining mark occurs. Tested to give the same items as the patterns above on every ASCII character.
+_ASCII_SPACE = r"\t\n\x0b\x0c\r\x1c-\x1f "
+_ASCII_ITEMS = re.compile(
+    r"[A-Za-z]+(?:['\-][A-Za-z]+)*"  # TOKEN_PATTERN
+    rf"|[^A-Za-z0-9_{_ASCII_SPACE}]+|[0-9_]+|\n[^\S\n]*\n"  # BREAK_PATTERN
+)
 _WORD_START = re.compile(r"[^\W\d_]")  # how every token of TOKEN_PATTERN starts, and no break item
+_find_ascii_items = _ASCII_ITEMS.findall
 _MISSING = object()
 _DOTTED_CAPITAL_I = "\u0130"  # "İ": str.lower gives "i" plus a combining dot; Turkish reads it as "i"
 
@@ -135,6 +145,8 @@ class Analyzer:
     def words(self, text: str) -> list[str]:
         """The lower-cased words of `text` as `terms` reads them, before possessives, stop words and stemming,
         with the phrase breaks between them (BREAK_PATTERN; `normalize` gives None for a break)."""
+        if text.isascii():
+            return _find_ascii_items(text.lower())  # one call with plain character sets: most texts
         if CJK.search(text) is None:
             return self._find_words_and_breaks(lower(text))  # one call: the fast path of every Western text
         return [item for _, _, item in self.items(text)]
