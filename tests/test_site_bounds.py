@@ -6,6 +6,7 @@ import csv
 import json
 import random
 import unicodedata
+from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
@@ -68,7 +69,7 @@ def _collection(rng: random.Random) -> list[SearchDocument]:
 
 def _replaced_index(documents: list[SearchDocument]) -> list[list[object]]:
     """The index's documents as written before openings lost their title's copy (the replaced code path)."""
-    return [[d.title, search._snippet(d.text), d.cluster_id, d.href] for d in documents]
+    return [[d.title, search.opening(d.text), d.cluster_id, d.href] for d in documents]
 
 
 def test_openings_without_the_titles_copy_give_the_same_search_results() -> None:
@@ -139,3 +140,37 @@ def test_cluster_pages_list_the_nearest_members_and_link_every_member(
         with (run / link["href"]).open(encoding="utf-8", newline="") as handle:
             listed = sorted(row["doc_id"] for row in csv.DictReader(handle))
         assert listed == sorted(doc_id for _, doc_id in pairs)  # nothing lost: every member is in the file
+
+
+def test_the_index_written_in_pieces_is_one_json_dump_of_the_whole(monkeypatch: pytest.MonkeyPatch) -> None:
+    # the replaced code path: one json.dumps of the whole index (compact separators, Python json module docs),
+    # then "<", U+2028 and U+2029 escaped
+    monkeypatch.setattr(search, "PART_DOCUMENTS", 3)
+    hostile = "</script>\u2028\u2029 <b>x</b>"
+    clusters = [SearchCluster(0, hostile, ("a", hostile), "cluster-00.html"), SearchCluster(1, "b", (), "c1.html")]
+    rng = random.Random(7)
+    for n in (0, 1, 3, 4, 10):  # no document, one, a piece exactly full, one over, several pieces
+        documents = [d if i % 3 else SearchDocument(hostile, hostile + d.text, d.cluster_id, d.href)
+                     for i, d in enumerate(_collection(rng)[:n])]
+        data = {"clusters": [[c.cluster_id, c.label, list(c.terms), c.href] for c in clusters],
+                "docs": [[d.title, search._after_title(d.title, search.opening(d.text)), d.cluster_id, d.href]
+                         for d in documents],
+                "documents": n, "searched": "titles and text openings"}
+        payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
+        payload = payload.replace("<", "\\u003c").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+        parts = list(search.index_parts(clusters, iter(documents), n))
+        assert "".join(parts) == f"{PREFIX}{payload}{SUFFIX}"
+        assert len(parts) == 2 + -(-n // 3)  # head, one piece per 3 documents, tail
+
+
+def test_above_the_cap_the_documents_are_not_read_and_the_index_says_clusters_only() -> None:
+    def unread() -> Iterator[SearchDocument]:
+        raise AssertionError("documents read above DOCUMENTS_UP_TO")
+        yield  # pragma: no cover
+
+    script = "".join(search.index_parts([SearchCluster(0, "a", ("a",), "c.html")], unread(),
+                                        search.DOCUMENTS_UP_TO + 1))
+    data = json.loads(script[len(PREFIX):-len(SUFFIX)])
+    # regression: a run above the cap wrote "documents": 0 and "searched": "titles and text openings"
+    assert data["docs"] == [] and data["documents"] == search.DOCUMENTS_UP_TO + 1
+    assert data["searched"] == "clusters only"

@@ -10,7 +10,7 @@ no document text can run as code.
 from __future__ import annotations
 
 import json
-from collections.abc import Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 
 from pilewise.describe.snippets import ELLIPSIS, clip_text
@@ -20,6 +20,7 @@ SCRIPT_FILE = "pilewise-search.js"
 SNIPPET_CHARS = 200  # opening of each text kept for searching and for the result line
 SNIPPETS_UP_TO = 50_000  # above this many documents only titles are searched (the index stays near 10 MB)
 DOCUMENTS_UP_TO = 200_000  # above this many only clusters are searched
+PART_DOCUMENTS = 2_000  # documents per piece written: the whole index is never one string
 
 
 @dataclass(frozen=True)
@@ -44,22 +45,57 @@ def index_script(clusters: Sequence[SearchCluster], documents: Sequence[SearchDo
     JSON is a subset of JavaScript once U+2028 and U+2029 are escaped; "<" is escaped too so that no
     "</script>" in a document can end a script element if the file is ever inlined.
     """
-    with_text = len(documents) <= SNIPPETS_UP_TO
-    with_docs = len(documents) <= DOCUMENTS_UP_TO
-    data = {
-        "clusters": [[c.cluster_id, c.label, list(c.terms), c.href] for c in clusters],
-        "docs": [[d.title, _after_title(d.title, _snippet(d.text)) if with_text else "", d.cluster_id, d.href]
-                 for d in (documents if with_docs else ())],
-        "documents": len(documents),
-        "searched": "titles and text openings" if with_text else "titles" if with_docs else "clusters only",
-    }
-    payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
-    payload = payload.replace("<", "\\u003c").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
-    return f"window.pilewiseSearch = {payload};\n"
+    return "".join(index_parts(clusters, documents, len(documents)))
 
 
-def _snippet(text: str) -> str:
-    """The opening of a text for the index: whitespace folded and cut at a word boundary by the pages' one cutter."""
+def index_parts(
+    clusters: Sequence[SearchCluster], documents: Iterable[SearchDocument], count: int
+) -> Iterator[str]:
+    """`index_script` in pieces of `PART_DOCUMENTS` documents, for writing to a file as they are made.
+
+    Parameters
+    ----------
+    clusters : sequence of SearchCluster
+        Every cluster of the run.
+    documents : iterable of SearchDocument
+        Every document, in reading order; read only when `count` is at most `DOCUMENTS_UP_TO`.
+    count : int
+        How many documents the run has (the caps are decided by it).
+
+    Yields
+    ------
+    str
+        Pieces that join to one statement: the same text as one `json.dumps` of the whole index.
+    """
+    with_text = count <= SNIPPETS_UP_TO
+    with_docs = count <= DOCUMENTS_UP_TO
+    head = [[c.cluster_id, c.label, list(c.terms), c.href] for c in clusters]
+    yield f'window.pilewiseSearch = {{"clusters":{_json(head)},"docs":['
+    rows: list[str] = []
+    first = True
+    for d in documents if with_docs else ():
+        rows.append(_json([d.title, _after_title(d.title, opening(d.text)) if with_text else "", d.cluster_id,
+                           d.href]))
+        if len(rows) == PART_DOCUMENTS:
+            yield ("" if first else ",") + ",".join(rows)
+            rows, first = [], False
+    if rows:
+        yield ("" if first else ",") + ",".join(rows)
+    searched = "titles and text openings" if with_text else "titles" if with_docs else "clusters only"
+    yield f'],"documents":{count},"searched":{_json(searched)}}};\n'
+
+
+def _json(value: object) -> str:
+    """Compact JSON with "<", U+2028 and U+2029 escaped (see `index_script`)."""
+    text = json.dumps(value, ensure_ascii=False, separators=(",", ":"))
+    return text.replace("<", "\\u003c").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
+
+
+def opening(text: str) -> str:
+    """The opening of a text for the index: whitespace folded and cut at a word boundary by the pages' one cutter.
+
+    An opening given again comes back unchanged (it is folded and fits), so callers may cut texts early.
+    """
     return clip_text(text[: SNIPPET_CHARS * 2], SNIPPET_CHARS)
 
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import os
 import posixpath
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
@@ -205,17 +205,20 @@ def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any
     docs = result.collection.documents
     clusters = [search.SearchCluster(card["id"], card["title"], tuple(t.term for t in c.chi2_terms[:20]), card["href"])
                 for card, c in zip(cards, result.clusters, strict=True)]
-    found: list[search.SearchDocument] = []
-    if len(docs) <= search.DOCUMENTS_UP_TO:  # above it the index holds clusters only: build nothing
-        labels = result.clustering.labels[result.collection.text_of_doc]
-        with_text = len(docs) <= search.SNIPPETS_UP_TO
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    with_text = len(docs) <= search.SNIPPETS_UP_TO
+
+    def found() -> Iterator[search.SearchDocument]:
+        """The documents one at a time, written as they come: the index is never held whole."""
         for i, doc in enumerate(docs):
             cluster_id = int(labels[i])
             # a placeholder cut at the end of the slice may show half; the index keeps only the opening
             text = display_text(doc.text[: search.SNIPPET_CHARS * 3]) if with_text else ""
             href = doc_page_name(i) if with_doc_pages else cluster_page_name(cluster_id)
-            found.append(search.SearchDocument(doc.title, text, cluster_id, href))
-    _write(folder / search.INDEX_FILE, search.index_script(clusters, found))
+            yield search.SearchDocument(doc.title, text, cluster_id, href)
+
+    with (folder / search.INDEX_FILE).open("w", encoding="utf-8") as handle:
+        handle.writelines(search.index_parts(clusters, found(), len(docs)))
     script = files("pilewise.output.site").joinpath("static", search.SCRIPT_FILE)
     (folder / search.SCRIPT_FILE).write_bytes(script.read_bytes())
 
