@@ -21,6 +21,7 @@ SNIPPET_CHARS = 200  # opening of each text kept for searching and for the resul
 SNIPPETS_UP_TO = 50_000  # above this many documents only titles are searched (the index stays near 10 MB)
 DOCUMENTS_UP_TO = 200_000  # above this many only clusters are searched
 PART_DOCUMENTS = 2_000  # documents per piece written: the whole index is never one string
+_ENCODER = json.JSONEncoder(ensure_ascii=False, separators=(",", ":"))  # json.dumps with these options
 
 
 @dataclass(frozen=True)
@@ -71,23 +72,22 @@ def index_parts(
     with_docs = count <= DOCUMENTS_UP_TO
     head = [[c.cluster_id, c.label, list(c.terms), c.href] for c in clusters]
     yield f'window.pilewiseSearch = {{"clusters":{_json(head)},"docs":['
-    rows: list[str] = []
+    rows: list[list[object]] = []
     first = True
     for d in documents if with_docs else ():
-        rows.append(_json([d.title, _after_title(d.title, opening(d.text)) if with_text else "", d.cluster_id,
-                           d.href]))
+        rows.append([d.title, _after_title(d.title, opening(d.text)) if with_text else "", d.cluster_id, d.href])
         if len(rows) == PART_DOCUMENTS:
-            yield ("" if first else ",") + ",".join(rows)
+            yield ("" if first else ",") + _json(rows)[1:-1]  # a list's items without its brackets
             rows, first = [], False
     if rows:
-        yield ("" if first else ",") + ",".join(rows)
+        yield ("" if first else ",") + _json(rows)[1:-1]
     searched = "titles and text openings" if with_text else "titles" if with_docs else "clusters only"
     yield f'],"documents":{count},"searched":{_json(searched)}}};\n'
 
 
 def _json(value: object) -> str:
     """Compact JSON with "<", U+2028 and U+2029 escaped (see `index_script`)."""
-    text = json.dumps(value, ensure_ascii=False, separators=(",", ":"))
+    text = _ENCODER.encode(value)
     return text.replace("<", "\\u003c").replace("\u2028", "\\u2028").replace("\u2029", "\\u2029")
 
 
