@@ -54,7 +54,6 @@ DATA_FILES: dict[str, str] = {
 SITE_FILES: dict[str, str] = {
     "index.html": "the run's overview: every cluster on a card",
     "cluster-N.html": "a cluster's page: rule, terms, attributes, members nearest first",
-    "cluster-N-members-N.html": "further pages of a cluster's members",
     "docs/dN.html": "a document's page, the cluster's terms marked",
     "map.html": "a map of the documents (t-SNE of the clustering space), coloured by cluster",
     "levels.html": "coarser and finer cuts of the tree",

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import os
 import posixpath
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
@@ -31,8 +31,9 @@ from pilewise.output.outfolder import write_text_atomically
 from pilewise.output.plots import trend_bars_svg, trend_rows_svg
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
-MEMBERS_PER_PAGE = 500
-MEMBERS_LISTED = 5_000  # members listed per cluster (nearest first, 10 pages); assignments.csv has them all
+# members listed on a cluster's page, nearest the centroid first: a reader scans a few hundred excerpts, not
+# thousands; members/cluster-NN.csv (and assignments.csv) hold every member with its distance
+MEMBERS_LISTED = 200
 MARKED_TERMS = 12
 GROUP_LISTED = 50  # copies and near-duplicates linked from a document page
 SNIPPET_CHARS = 160  # a member's excerpt in lists, cut at a word boundary
@@ -80,8 +81,8 @@ class Segment:
     marked: bool
 
 
-def cluster_page_name(cluster_id: int, page: int = 1) -> str:
-    return f"cluster-{cluster_id:02d}.html" if page == 1 else f"cluster-{cluster_id:02d}-members-{page}.html"
+def cluster_page_name(cluster_id: int) -> str:
+    return f"cluster-{cluster_id:02d}.html"
 
 
 def doc_page_name(doc_index: int) -> str:
@@ -91,8 +92,8 @@ def doc_page_name(doc_index: int) -> str:
 def render_run_site(
     folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
 ) -> None:
-    """Write index.html, one page per cluster (members paged), document pages, the ingest page, the map and
-    the search index."""
+    """Write index.html, one page per cluster (the MEMBERS_LISTED members nearest its centroid), document pages,
+    the ingest page, the map and the search index."""
     env = _environment()
     _copy_stylesheet(folder)
     docs = result.collection.documents
@@ -146,33 +147,26 @@ def render_run_site(
     # every member when documents have pages (their previous/next links follow this order), else the listed ones
     members_by_cluster = _members_nearest_first(result, None if with_doc_pages else MEMBERS_LISTED)
     for position, (cluster, card) in enumerate(zip(result.clusters, cards, strict=True)):
-        members = members_by_cluster[cluster.cluster_id][:MEMBERS_LISTED]
-        pages = max(1, -(-len(members) // MEMBERS_PER_PAGE))
-        for page in range(1, pages + 1):
-            chunk = members[(page - 1) * MEMBERS_PER_PAGE : page * MEMBERS_PER_PAGE]
-            rows = [_member_row(i, dist, docs[i], with_doc_pages, shown) for i, dist in chunk]
-            context = {
-                "card": card,
-                "cluster": cluster,
-                "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages, shown)
-                            for n in cluster.nearest],
-                "kwic_groups": _kwic_groups(cluster, with_doc_pages, shown),
-                "members": rows,
-                "profile": result.profiles[cluster.cluster_id],
-                "attributes": _attributes(result, cluster.cluster_id),
-                "page": page,
-                "pages": [(p, cluster_page_name(cluster.cluster_id, p)) for p in range(1, pages + 1)],
-                "first_rank": (page - 1) * MEMBERS_PER_PAGE + 1,
-                "listed": len(members),
-                # written with the assignments; a Spark run above its single-file cap has only Spark's parts
-                "members_csv": members_csv_name(cluster.cluster_id)
-                if (folder / members_csv_name(cluster.cluster_id)).is_file() else "",
-                "prev_cluster": _cluster_link(cards[position - 1]) if position > 0 else None,
-                "next_cluster": _cluster_link(cards[position + 1]) if position + 1 < len(cards) else None,
-                "up": "",
-            }
-            _write(folder / cluster_page_name(cluster.cluster_id, page),
-                   env.get_template("cluster.html").render(common, **context))
+        listed = members_by_cluster[cluster.cluster_id][:MEMBERS_LISTED]
+        csv_name = members_csv_name(cluster.cluster_id)
+        context = {
+            "card": card,
+            "cluster": cluster,
+            "nearest": [_member_row(n.doc_index, n.distance, docs[n.doc_index], with_doc_pages, shown)
+                        for n in cluster.nearest],
+            "kwic_groups": _kwic_groups(cluster, with_doc_pages, shown),
+            "members": [_member_row(i, dist, docs[i], with_doc_pages, shown) for i, dist in listed],
+            "profile": result.profiles[cluster.cluster_id],
+            "attributes": _attributes(result, cluster.cluster_id),
+            "listed": len(listed),
+            # written with the assignments; a Spark run above its single-file cap has only Spark's parts
+            "members_csv": csv_name if (folder / csv_name).is_file() else "",
+            "prev_cluster": _cluster_link(cards[position - 1]) if position > 0 else None,
+            "next_cluster": _cluster_link(cards[position + 1]) if position + 1 < len(cards) else None,
+            "up": "",
+        }
+        _write(folder / cluster_page_name(cluster.cluster_id),
+               env.get_template("cluster.html").render(common, **context))
     if with_doc_pages:
         (folder / "docs").mkdir()
         template = env.get_template("document.html")
@@ -211,17 +205,20 @@ def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any
     docs = result.collection.documents
     clusters = [search.SearchCluster(card["id"], card["title"], tuple(t.term for t in c.chi2_terms[:20]), card["href"])
                 for card, c in zip(cards, result.clusters, strict=True)]
-    found: list[search.SearchDocument] = []
-    if len(docs) <= search.DOCUMENTS_UP_TO:  # above it the index holds clusters only: build nothing
-        labels = result.clustering.labels[result.collection.text_of_doc]
-        with_text = len(docs) <= search.SNIPPETS_UP_TO
+    labels = result.clustering.labels[result.collection.text_of_doc]
+    with_text = len(docs) <= search.SNIPPETS_UP_TO
+
+    def found() -> Iterator[search.SearchDocument]:
+        """The documents one at a time, written as they come: the index is never held whole."""
         for i, doc in enumerate(docs):
             cluster_id = int(labels[i])
             # a placeholder cut at the end of the slice may show half; the index keeps only the opening
             text = display_text(doc.text[: search.SNIPPET_CHARS * 3]) if with_text else ""
             href = doc_page_name(i) if with_doc_pages else cluster_page_name(cluster_id)
-            found.append(search.SearchDocument(doc.title, text, cluster_id, href))
-    _write(folder / search.INDEX_FILE, search.index_script(clusters, found))
+            yield search.SearchDocument(doc.title, text, cluster_id, href)
+
+    with (folder / search.INDEX_FILE).open("w", encoding="utf-8") as handle:
+        handle.writelines(search.index_parts(clusters, found(), len(docs)))
     script = files("pilewise.output.site").joinpath("static", search.SCRIPT_FILE)
     (folder / search.SCRIPT_FILE).write_bytes(script.read_bytes())
 
