@@ -518,13 +518,16 @@ def run_on_spark(options: RunOptions, reporter: Reporter, compute: Callable[[Spa
         return compute(prepared)
 
 
-def _partitions(options: RunOptions) -> int:
-    """Shuffle partitions of a session started here: two per local core (Spark's 200 are made for clusters)."""
+def _partitions(options: RunOptions) -> int | None:
+    """Shuffle partitions of a session started here: two per local core (Spark's 200 are made for clusters);
+    None for a cluster's master, whose executors' cores set them once they have registered."""
     import os
 
     master = options.spark_master
+    if master == "local":
+        return 2
     if master.startswith("local["):
         inner = master[6:-1]
         cores = os.cpu_count() or 2 if inner in ("*", "") else int(inner) if inner.isdigit() else 2
         return max(2, 2 * cores)
-    return 200
+    return None
