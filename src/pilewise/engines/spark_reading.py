@@ -51,10 +51,41 @@ class SparkSource:
 
 def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
     """Read SOURCE on Spark as a table or as a folder of files, chosen by its name or its files' names."""
+    check_file_system(spark, source)
     kind = _table_kind(source)
     if kind is not None:
         return _read_table(spark, source, kind, columns, limits)
     return _read_files(spark, source, limits, columns.encoding)
+
+
+CONNECTORS = {  # schemes whose Hadoop file system is not in PySpark's own jars: where it comes from
+    "s3a": "the S3A connector (hadoop-aws of Spark's Hadoop version and the AWS SDK bundle it was built with)",
+    "gs": "the Cloud Storage connector (gcs-connector, shaded)",
+    "abfs": "the Azure connector (hadoop-azure)", "abfss": "the Azure connector (hadoop-azure)",
+    "wasb": "the Azure connector (hadoop-azure)", "wasbs": "the Azure connector (hadoop-azure)",
+}
+
+
+MISSING_FILE_SYSTEM = ("UnsupportedFileSystemException", "ClassNotFoundException", "NoClassDefFoundError")
+
+
+def check_file_system(spark: Any, source: str) -> None:
+    """One line naming the fix when Spark has no Hadoop file system for SOURCE's scheme (PySpark ships HDFS and
+    local files, not the object-store connectors); checked before reading, on the driver."""
+    scheme = urlparse(source).scheme.lower() if "://" in source else ""
+    if not scheme or scheme == "file":
+        return
+    jvm = spark.sparkContext._jvm
+    try:
+        jvm.org.apache.hadoop.fs.FileSystem.getFileSystemClass(scheme, spark.sparkContext._jsc.hadoopConfiguration())
+    except Exception as err:  # Py4J wraps Hadoop's error: no class named for the scheme, or the class missing
+        if not any(sign in str(err) for sign in MISSING_FILE_SYSTEM):
+            raise
+        what = CONNECTORS.get(scheme, f"a Hadoop file system for {scheme}://")
+        raise PilewiseError(
+            f"Spark cannot read {scheme}:// paths here: {what} is not on its class path; add its jars with "
+            f"PYSPARK_SUBMIT_ARGS='--jars A.jar,B.jar pyspark-shell' (or spark-submit --jars), or copy SOURCE "
+            "to a local path") from None
 
 
 def _table_kind(source: str) -> str | None:
