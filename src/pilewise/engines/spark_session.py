@@ -44,6 +44,19 @@ def check_spark_available() -> None:
         raise PilewiseError(NEEDS_JAVA)
 
 
+def submitted_master() -> str | None:
+    """The master given to spark-submit when pilewise runs under it (its JVM is then already started, and
+    PYSPARK_GATEWAY_PORT names it); None otherwise."""
+    if not os.environ.get("PYSPARK_GATEWAY_PORT"):
+        return None
+    from pyspark import SparkContext
+
+    SparkContext._ensure_initialized()  # connects to spark-submit's JVM; starts nothing
+    jvm = SparkContext._jvm
+    master = jvm.java.lang.System.getProperty("spark.master") if jvm is not None else None
+    return str(master) if master else None
+
+
 @contextmanager
 def spark_session(master: str, *, quiet: bool, partitions: int | None,
                   say: Callable[[str], None] | None = None) -> Iterator[Any]:
