@@ -146,20 +146,28 @@ def _executor_python() -> tuple[str, str]:
     return f"{sys.version_info[0]}.{sys.version_info[1]}", str(shipped.__file__)
 
 
+# the executor's Python error as Python prints it ("ModuleNotFoundError: No module named 'numpy'", PySpark's
+# "...PySparkRuntimeError: [PYTHON_VERSION_MISMATCH] ..."), not a JVM frame or exception around it
+_PYTHON_ERROR = re.compile(r"^(?!(?:org|java|py4j|scala)\.)[A-Za-z_][\w.]*(?:Error|Exception): \S")
+
+
 def check_executors(context: Any) -> tuple[str, str]:
     """One small task on an executor: its Python must import numpy, scipy, scikit-learn and the shipped
     pilewise, in the driver's Python version (PySpark refuses another). One line naming the fix when not;
     returns the executor's Python version and its pilewise's file."""
     python = os.environ.get("PYSPARK_PYTHON") or context.getConf().get("spark.pyspark.python", "python3")
+    context.setLogLevel("OFF")  # a failed check is said in one line below, not as Spark's task error log
     try:
         return context.parallelize([0], 1).map(lambda _: _executor_python()).first()
     except Exception as err:  # Py4J wraps the executor's Python error; its last line names the module
         lines = [line.strip() for line in str(err).splitlines() if line.strip()]
-        cause = next((line for line in reversed(lines) if "Error" in line.split(":")[0] or "MISMATCH" in line),
+        cause = next((line for line in reversed(lines) if _PYTHON_ERROR.match(line)),
                      lines[0] if lines else type(err).__name__)
         raise PilewiseError(
             f"the Spark executors' Python ({python}) cannot run pilewise ({cause[:200]}); install numpy, scipy and "
             "scikit-learn there, in the driver's Python version, or set PYSPARK_PYTHON to such a Python") from None
+    finally:
+        context.setLogLevel("ERROR")
 
 
 JOB_LINE_EVERY = 10.0  # seconds between the lines of a running Spark job (and before its first)
