@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 from tests.helpers import TOPICS, invoke, read, read_assignments, read_ingest_report
 
-pytestmark = pytest.mark.spark
+pytestmark = [pytest.mark.spark, pytest.mark.slow]  # each starts Spark: over 10 s
 
 
 def _message(subject: str, body: str) -> EmailMessage:
