@@ -7,7 +7,10 @@ documents, then, each in its own subprocess:
 
 a. ``stream``        ``pilewise run <csv> --k 20 --mode stream``;
 b. ``spark-local1``  ``pilewise run <csv> --k 20 --engine spark --spark-master local[1]``;
-c. ``spark-local2``  the same with ``local[2]``.
+c. ``spark-local2``  the same with ``local[2]``;
+d. ``spark-cluster``  the same with ``--spark-master URL`` of ``--cluster URL`` (a standalone cluster started
+                      beforehand, e.g. as tests/test_spark_cluster.py starts one; its JVMs are not in the
+                      process tree, so its peak memory is the driver's alone).
 
 For each: wall time, peak resident memory of the whole process tree (the driver, Spark's JVM and its Python
 workers; sampled from /proc every 0.2 s, so a shorter peak can be missed) and the NMI of its clusters with
@@ -133,9 +136,13 @@ def main() -> None:
     parser.add_argument("--size", type=int, default=1_000_000)
     parser.add_argument("--k", type=int, default=20)
     parser.add_argument("--workdir", type=Path)
-    parser.add_argument("--only", nargs="*", choices=sorted(RUNS), default=sorted(RUNS))
+    parser.add_argument("--only", nargs="*", choices=[*sorted(RUNS), "spark-cluster"], default=sorted(RUNS))
+    parser.add_argument("--cluster", metavar="URL", help="also run on this Spark master (spark-cluster)")
     parser.add_argument("--event-log", type=Path, help="write Spark's event logs here and sum task times by stage")
     args = parser.parse_args()
+    if args.cluster:
+        RUNS["spark-cluster"] = ["--engine", "spark", "--spark-master", args.cluster]
+        args.only = [*args.only, "spark-cluster"] if "spark-cluster" not in args.only else args.only
     with tempfile.TemporaryDirectory() as scratch:
         folder = args.workdir or Path(scratch)
         folder.mkdir(parents=True, exist_ok=True)

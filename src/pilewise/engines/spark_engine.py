@@ -65,6 +65,7 @@ BOILERPLATE_SAMPLE = 20_000  # texts boilerplate lines are looked for in (the st
 SINGLE_CSV_UP_TO = 2_000_000  # documents up to which assignments.csv is also written as one file
 BATCH_ROWS = 10_000  # texts an executor's Python worker tokenizes or projects at once
 DOCS_PER_PARTITION = 50_000  # documents per partition of the distinct texts at most (1,000,000: 20 partitions)
+DEFAULT_MASTER = RunOptions.spark_master  # --spark-master when not given
 KMEANS_MAX_ITER = 100  # Spark ML's default is 20; the local engine runs to convergence (scikit-learn: 300)
 
 
@@ -510,21 +511,26 @@ def _assignment_row(fields: tuple[Any, ...], names: list[str], extra: list[str])
 
 def run_on_spark(options: RunOptions, reporter: Reporter, compute: Callable[[SparkPrepared], Any]) -> Any:
     """Start Spark for the run, prepare on it, and call `compute` (which describes and writes) while it runs."""
-    from pilewise.engines.spark_session import spark_session
+    from pilewise.engines.spark_session import check_spark_available, spark_session, submitted_master
 
-    with spark_session(options.spark_master, quiet=options.quiet, partitions=_partitions(options),
-                       say=reporter.say) as spark:
+    check_spark_available()
+    master = options.spark_master
+    if master == DEFAULT_MASTER:  # under spark-submit its --master counts unless --spark-master says otherwise
+        master = submitted_master() or master
+    with spark_session(master, quiet=options.quiet, partitions=_partitions(master), say=reporter.say) as spark:
         prepared = prepare_on_spark(spark, options, reporter)
         return compute(prepared)
 
 
-def _partitions(options: RunOptions) -> int:
-    """Shuffle partitions of a session started here: two per local core (Spark's 200 are made for clusters)."""
+def _partitions(master: str) -> int | None:
+    """Shuffle partitions of a session started here: two per local core (Spark's 200 are made for clusters);
+    None for a cluster's master, whose executors' cores set them once they have registered."""
     import os
 
-    master = options.spark_master
+    if master == "local":
+        return 2
     if master.startswith("local["):
         inner = master[6:-1]
         cores = os.cpu_count() or 2 if inner in ("*", "") else int(inner) if inner.isdigit() else 2
         return max(2, 2 * cores)
-    return 200
+    return None

@@ -10,7 +10,9 @@ few: skipped files and rows, notes), documents stay on Spark.
 from __future__ import annotations
 
 import json
+import os
 import posixpath
+import tempfile
 from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -20,12 +22,16 @@ from urllib.parse import urlparse
 from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import first_line_title
 from pilewise.ingest.reading import (
+    _MBOX_FROM_LINE,
     HTML_SUFFIXES,
     MAIL_SUFFIXES,
     MBOX_SUFFIXES,
     TEXT_SUFFIXES,
     UNSUPPORTED_SUFFIXES,
     ReadLimits,
+    _Planned,
+    _Progress,
+    _read_mbox,
     document_from_bytes,
     head_not_text,
 )
@@ -36,6 +42,7 @@ TABLE_KINDS = {".csv": "csv", ".tsv": "csv", ".jsonl": "json", ".ndjson": "json"
                ".parquet": "parquet"}
 ENTRIES_UP_TO = 100_000  # report entries brought back to the driver; above this the rest are counted in a note
 TITLE_CHARS = 200  # as the local table reader
+PER_FILE = 1 << 32  # a file's documents are numbered file * PER_FILE + message (mailboxes hold many)
 
 
 @dataclass(frozen=True)
@@ -51,10 +58,41 @@ class SparkSource:
 
 def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
     """Read SOURCE on Spark as a table or as a folder of files, chosen by its name or its files' names."""
+    check_file_system(spark, source)
     kind = _table_kind(source)
     if kind is not None:
         return _read_table(spark, source, kind, columns, limits)
     return _read_files(spark, source, limits, columns.encoding)
+
+
+CONNECTORS = {  # schemes whose Hadoop file system is not in PySpark's own jars: where it comes from
+    "s3a": "the S3A connector (hadoop-aws of Spark's Hadoop version and the AWS SDK bundle it was built with)",
+    "gs": "the Cloud Storage connector (gcs-connector, shaded)",
+    "abfs": "the Azure connector (hadoop-azure)", "abfss": "the Azure connector (hadoop-azure)",
+    "wasb": "the Azure connector (hadoop-azure)", "wasbs": "the Azure connector (hadoop-azure)",
+}
+
+
+MISSING_FILE_SYSTEM = ("UnsupportedFileSystemException", "ClassNotFoundException", "NoClassDefFoundError")
+
+
+def check_file_system(spark: Any, source: str) -> None:
+    """One line naming the fix when Spark has no Hadoop file system for SOURCE's scheme (PySpark ships HDFS and
+    local files, not the object-store connectors); checked before reading, on the driver."""
+    scheme = urlparse(source).scheme.lower() if "://" in source else ""
+    if not scheme or scheme == "file":
+        return
+    jvm = spark.sparkContext._jvm
+    try:
+        jvm.org.apache.hadoop.fs.FileSystem.getFileSystemClass(scheme, spark.sparkContext._jsc.hadoopConfiguration())
+    except Exception as err:  # Py4J wraps Hadoop's error: no class named for the scheme, or the class missing
+        if not any(sign in str(err) for sign in MISSING_FILE_SYSTEM):
+            raise
+        what = CONNECTORS.get(scheme, f"a Hadoop file system for {scheme}://")
+        raise PilewiseError(
+            f"Spark cannot read {scheme}:// paths here: {what} is not on its class path; add its jars with "
+            f"PYSPARK_SUBMIT_ARGS='--jars A.jar,B.jar pyspark-shell' (or spark-submit --jars), or copy SOURCE "
+            "to a local path") from None
 
 
 def _table_kind(source: str) -> str | None:
@@ -272,15 +310,17 @@ class _FileReader:
         for row, number in rows:
             rel = self.relative(row["path"])
             suffix = posixpath.splitext(rel)[1].lower()
-            if suffix in TABLE_KINDS or suffix in UNSUPPORTED_SUFFIXES or suffix in MBOX_SUFFIXES:
+            if suffix in TABLE_KINDS or suffix in UNSUPPORTED_SUFFIXES:
                 detail = ("the spark engine reads one table at a time; pass this table as SOURCE"
-                          if suffix in TABLE_KINDS else
-                          "the spark engine does not split mailboxes; run it with --engine local"
-                          if suffix in MBOX_SUFFIXES else f"file type {suffix}")
+                          if suffix in TABLE_KINDS else f"file type {suffix}")
                 yield "entry", IngestEntry(rel, "skipped", "unsupported", detail)
                 continue
             if row["length"] == 0:
                 yield "entry", IngestEntry(rel, "skipped", "empty", "0 bytes")
+                continue
+            head = bytes(row["content"][:1024]).split(b"\n", 1)[0]
+            if suffix in MBOX_SUFFIXES or (suffix == "" and _MBOX_FROM_LINE.match(head)):  # as the local reader
+                yield from self.messages(bytes(row["content"]), rel, number)
                 continue
             if row["length"] > self.limits.max_file_bytes:
                 yield "entry", IngestEntry(rel, "skipped", "too large", f"{row['length']:,} bytes; raise --max-file-mb")
@@ -296,4 +336,21 @@ class _FileReader:
                 if entry.status != "document" or entry.detail:  # plain "read" lines would repeat assignments.csv
                     yield "entry", entry
             if doc is not None:
-                yield "doc", (number, doc)
+                yield "doc", (number * PER_FILE, doc)
+
+    def messages(self, content: bytes, rel: str, number: int) -> Iterator[tuple[str, Any]]:
+        """An mbox file's messages as documents (``file#msgN``), split by the local reader's own code: it reads
+        a path (the standard library's mailbox), so the bytes go to a temporary file on the executor first.
+        No --max-file-mb limit, as locally: a mailbox is read one message at a time."""
+        handle, name = tempfile.mkstemp(prefix="pilewise-mbox-")
+        entries: list[IngestEntry] = []
+        try:
+            with os.fdopen(handle, "wb") as scratch:
+                scratch.write(content)
+            planned = _Planned(Path(name), rel, len(content), kind="mbox")
+            for message, doc in enumerate(_read_mbox(planned, self.limits, self.encoding, entries, _Progress())):
+                yield "doc", (number * PER_FILE + message, doc)
+        finally:
+            os.unlink(name)
+        for entry in entries:  # the mailbox's summary line comes first, as locally
+            yield "entry", entry

@@ -44,15 +44,30 @@ def check_spark_available() -> None:
         raise PilewiseError(NEEDS_JAVA)
 
 
+def submitted_master() -> str | None:
+    """The master given to spark-submit when pilewise runs under it (its JVM is then already started, and
+    PYSPARK_GATEWAY_PORT names it); None otherwise."""
+    if not os.environ.get("PYSPARK_GATEWAY_PORT"):
+        return None
+    from pyspark import SparkContext
+
+    SparkContext._ensure_initialized()  # connects to spark-submit's JVM; starts nothing
+    jvm = SparkContext._jvm
+    master = jvm.java.lang.System.getProperty("spark.master") if jvm is not None else None
+    return str(master) if master else None
+
+
 @contextmanager
-def spark_session(master: str, *, quiet: bool, partitions: int,
+def spark_session(master: str, *, quiet: bool, partitions: int | None,
                   say: Callable[[str], None] | None = None) -> Iterator[Any]:
     """A SparkSession on `master` for one run, stopped afterwards when this call started it.
 
     An active session (as under spark-submit or in a notebook) is used as it is and left running.
-    `partitions` sets the shuffle partitions of a session started here (Spark's default of 200 is made
-    for clusters; a local run wants about two per core). Spark's console progress bar is off (its carriage
-    returns would share a line with the stage lines); `say` gets a line on every long Spark job instead.
+    `partitions` sets the shuffle partitions and default parallelism of a session started here (a local
+    run wants about two per core); None (a cluster's master) leaves Spark's default parallelism, the
+    executors' cores, and sets the shuffle partitions to twice that once the first executor has registered.
+    Spark's console progress bar is off (its carriage returns would share a line with the stage lines);
+    `say` gets a line on every long Spark job instead.
     """
     check_spark_available()
     from pyspark.sql import SparkSession
@@ -66,11 +81,12 @@ def spark_session(master: str, *, quiet: bool, partitions: int,
         SparkSession.builder.master(master).appName("pilewise")
         .config("spark.ui.enabled", "false")  # no web server on a port the user did not ask for
         .config("spark.ui.showConsoleProgress", "false")  # our own whole lines instead (`job_progress`)
-        .config("spark.sql.shuffle.partitions", str(partitions))
-        .config("spark.default.parallelism", str(partitions))
         .config("spark.driver.memory", os.environ.get("PILEWISE_SPARK_DRIVER_MEMORY", "4g"))
         .config("spark.driver.extraJavaOptions", f"-Dlog4j.configurationFile={LOG_CONFIG.as_uri()}")
     )
+    if partitions is not None:
+        builder = (builder.config("spark.sql.shuffle.partitions", str(partitions))
+                   .config("spark.default.parallelism", str(partitions)))
     try:
         session = builder.getOrCreate()
     except Exception as err:  # Spark reports a failed start (no Java, a bad master URL) with several classes
@@ -79,6 +95,10 @@ def spark_session(master: str, *, quiet: bool, partitions: int,
     session.sparkContext.setLogLevel("ERROR")
     scratch = _ship_code(session)
     try:
+        if partitions is None:
+            _wait_for_executors(session.sparkContext, master)
+            session.conf.set("spark.sql.shuffle.partitions", str(2 * session.sparkContext.defaultParallelism))
+        check_executors(session.sparkContext)
         with job_progress(session.sparkContext, None if quiet else say):
             yield session
     except PilewiseError:
@@ -94,6 +114,60 @@ def spark_session(master: str, *, quiet: bool, partitions: int,
             session.stop()
         if scratch is not None:
             shutil.rmtree(scratch, ignore_errors=True)
+
+
+EXECUTOR_WAIT = 120.0  # seconds a cluster's master has to give the run its first executor
+
+
+def _wait_for_executors(context: Any, master: str, wait: float = EXECUTOR_WAIT) -> None:
+    """Block until an executor has registered (Spark's default parallelism is then the executors' cores);
+    a cluster without free workers would otherwise leave every job waiting without a word."""
+    until = time.monotonic() + wait
+    while context._jsc.sc().getExecutorIds().size() == 0:  # the driver is not among these ids
+        if time.monotonic() > until:
+            memory = context.getConf().get("spark.executor.memory", "1g")
+            raise PilewiseError(
+                f"no Spark executor started on {master!r} within {wait:.0f} s; check that the cluster has a "
+                f"worker with a free core and {memory} of free memory (spark.executor.memory), or pass another "
+                "--spark-master")
+        time.sleep(0.5)
+
+
+def _executor_python() -> tuple[str, str]:
+    """Run on an executor: its Python's version and where its pilewise was imported from."""
+    import sys
+
+    import numpy  # noqa: F401
+    import scipy  # noqa: F401
+    import sklearn  # noqa: F401
+
+    import pilewise as shipped
+
+    return f"{sys.version_info[0]}.{sys.version_info[1]}", str(shipped.__file__)
+
+
+# the executor's Python error as Python prints it ("ModuleNotFoundError: No module named 'numpy'", PySpark's
+# "...PySparkRuntimeError: [PYTHON_VERSION_MISMATCH] ..."), not a JVM frame or exception around it
+_PYTHON_ERROR = re.compile(r"^(?!(?:org|java|py4j|scala)\.)[A-Za-z_][\w.]*(?:Error|Exception): \S")
+
+
+def check_executors(context: Any) -> tuple[str, str]:
+    """One small task on an executor: its Python must import numpy, scipy, scikit-learn and the shipped
+    pilewise, in the driver's Python version (PySpark refuses another). One line naming the fix when not;
+    returns the executor's Python version and its pilewise's file."""
+    python = os.environ.get("PYSPARK_PYTHON") or context.getConf().get("spark.pyspark.python", "python3")
+    context.setLogLevel("OFF")  # a failed check is said in one line below, not as Spark's task error log
+    try:
+        return context.parallelize([0], 1).map(lambda _: _executor_python()).first()
+    except Exception as err:  # Py4J wraps the executor's Python error; its last line names the module
+        lines = [line.strip() for line in str(err).splitlines() if line.strip()]
+        cause = next((line for line in reversed(lines) if _PYTHON_ERROR.match(line)),
+                     lines[0] if lines else type(err).__name__)
+        raise PilewiseError(
+            f"the Spark executors' Python ({python}) cannot run pilewise ({cause[:200]}); install numpy, scipy and "
+            "scikit-learn there, in the driver's Python version, or set PYSPARK_PYTHON to such a Python") from None
+    finally:
+        context.setLogLevel("ERROR")
 
 
 JOB_LINE_EVERY = 10.0  # seconds between the lines of a running Spark job (and before its first)

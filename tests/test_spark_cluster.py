@@ -1,0 +1,188 @@
+"""The spark engine on a real standalone Spark cluster: a master and two workers started on this machine as
+separate JVM processes (loopback only), the driver in another process (`python -m pilewise.cli`), and the
+executors' Python workers started by the workers, so that nothing is shared with the driver but the files.
+
+Checks are against the same run in Spark's local mode (the adjusted Rand index between the two assignments)
+and against the planted topics of the collection. The cluster is started once for the module, within a
+bounded time, and always stopped.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+import random
+import shutil
+import socket
+import subprocess
+import sys
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+
+import pytest
+from sklearn.metrics import adjusted_rand_score
+from tests.helpers import TOPICS, read_assignments, read_clusters, read_ingest_report
+
+import pilewise
+from pilewise.output.exports import describe_file
+
+pytestmark = [pytest.mark.spark, pytest.mark.slow]
+
+START_WITHIN = 120.0  # seconds the master and both workers have to come up (JVM start on 2 shared cores)
+RUN_WITHIN = 600  # seconds one pilewise run may take before the test fails instead of hanging
+
+
+@dataclass(frozen=True)
+class StandaloneCluster:
+    """A running standalone cluster: its master URL and the environment a driver needs to reach it."""
+
+    master: str
+    env: dict[str, str]
+    logs: Path
+
+
+def _free_port() -> int:
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        return int(probe.getsockname()[1])
+
+
+def _spark_home() -> Path:
+    from pyspark.find_spark_home import _find_spark_home
+
+    return Path(_find_spark_home())
+
+
+def _loopback_env(work: Path) -> dict[str, str]:
+    """Environment of the cluster's JVMs and of the driver: loopback only, this interpreter for the executors'
+    Python workers, and this checkout's pilewise for the driver."""
+    env = dict(os.environ)
+    env.update({
+        "SPARK_HOME": str(_spark_home()),
+        "SPARK_LOCAL_IP": "127.0.0.1",  # RPC, block manager and the master's web page bind to loopback only
+        "PYSPARK_PYTHON": sys.executable,
+        "SPARK_WORKER_DIR": str(work / "worker-dirs"),
+        "SPARK_LOG_DIR": str(work / "logs"),
+        "PYTHONPATH": os.pathsep.join(filter(None, [str(Path(pilewise.__file__).parents[1]),
+                                                    os.environ.get("PYTHONPATH")])),
+    })
+    return env
+
+
+def _wait_for(log: Path, text: str, count: int, until: float, processes: list[subprocess.Popen[bytes]]) -> None:
+    while time.monotonic() < until:
+        if log.exists() and log.read_text(errors="replace").count(text) >= count:
+            return
+        dead = [p for p in processes if p.poll() is not None]
+        if dead:
+            raise RuntimeError(f"a cluster process ended early (exit {dead[0].returncode}); see {log.parent}")
+        time.sleep(0.5)
+    raise TimeoutError(f"{text!r} not seen {count} time(s) in {log} within {START_WITHIN:.0f} s")
+
+
+@pytest.fixture(scope="module")
+def cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[StandaloneCluster]:
+    """A standalone master and two workers of one core and 1 GB each, on 127.0.0.1; stopped afterwards."""
+    try:
+        import pyspark  # noqa: F401
+    except ImportError:
+        pytest.skip("PySpark missing (pip install '.[test]')")
+    if not os.environ.get("JAVA_HOME") and shutil.which("java") is None:
+        pytest.skip("Java 17 missing (apt-get install openjdk-17-jre-headless)")
+    work = tmp_path_factory.mktemp("spark-cluster")
+    env = _loopback_env(work)
+    (work / "logs").mkdir()
+    spark_class = str(_spark_home() / "bin" / "spark-class")
+    port = _free_port()
+    master = f"spark://127.0.0.1:{port}"
+    commands = {
+        "master": [spark_class, "org.apache.spark.deploy.master.Master", "--host", "127.0.0.1", "--port", str(port),
+                   "--webui-port", str(_free_port())],
+        **{f"worker{i}": [spark_class, "org.apache.spark.deploy.worker.Worker", master, "--host", "127.0.0.1",
+                          "--cores", "1", "--memory", "1g", "--webui-port", str(_free_port()),
+                          "--work-dir", str(work / f"worker{i}")] for i in (1, 2)},
+    }
+    processes: list[subprocess.Popen[bytes]] = []
+    until = time.monotonic() + START_WITHIN
+    try:
+        for name, command in commands.items():
+            with (work / "logs" / f"{name}.log").open("wb") as log:
+                # its own session: the JVM is stopped by its own id below, nothing else
+                processes.append(subprocess.Popen(command, stdout=log, stderr=subprocess.STDOUT, env=env,
+                                                  start_new_session=True))
+            if name == "master":
+                _wait_for(work / "logs" / "master.log", "I have been elected leader", 1, until, processes)
+        _wait_for(work / "logs" / "master.log", "Registering worker", 2, until, processes)
+        yield StandaloneCluster(master, env, work)
+    finally:
+        for process in reversed(processes):
+            process.terminate()
+        for process in processes:
+            try:
+                process.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                process.kill()
+                process.wait(timeout=10)
+
+
+def _planted_csv(path: Path, per_topic: int = 40, seed: int = 3) -> dict[str, str]:
+    """Three invented topics (helpers.TOPICS) with shared background words, as a CSV; returns id -> topic."""
+    rng = random.Random(seed)
+    background = ["today", "later", "often", "small", "large", "quick", "plain", "usual", "again", "around"]
+    truth: dict[str, str] = {}
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["id", "title", "body"])
+        for topic, words in TOPICS.items():
+            for i in range(per_topic):
+                body = " ".join(rng.choice(words if rng.random() < 0.6 else background) for _ in range(40))
+                doc_id = f"{topic[:2]}{i:03d}"
+                writer.writerow([doc_id, f"Note {i} on {topic}", body])
+                truth[doc_id] = topic
+    return truth
+
+
+def _run(cluster: StandaloneCluster, source: Path, out: Path, master: str) -> Path:
+    command = [sys.executable, "-m", "pilewise.cli", "run", str(source), "--k", "3", "--seed", "0", "--out", str(out),
+               "--engine", "spark", "--spark-master", master, "--quiet"]
+    done = subprocess.run(command, env=cluster.env, capture_output=True, text=True, timeout=RUN_WITHIN, check=False)
+    assert done.returncode == 0, done.stderr[-3000:]
+    return Path(done.stdout.strip().splitlines()[-1]).parent
+
+
+def test_a_standalone_cluster_gives_the_local_mode_clusters(cluster: StandaloneCluster, tmp_path: Path) -> None:
+    source = tmp_path / "notes.csv"
+    truth = _planted_csv(source)
+    started = time.monotonic()
+    on_cluster = _run(cluster, source, tmp_path / "cluster", cluster.master)
+    cluster_seconds = time.monotonic() - started
+    started = time.monotonic()
+    local = _run(cluster, source, tmp_path / "local", "local[2]")
+    local_seconds = time.monotonic() - started
+    print(f"standalone cluster run {cluster_seconds:.1f} s, local[2] run {local_seconds:.1f} s")
+    cluster_rows = read_assignments(on_cluster)
+    local_rows = {row["doc_id"]: row for row in read_assignments(local)}
+    # nothing lost: every row once, in reading order, on both
+    assert [row["doc_id"] for row in cluster_rows] == list(local_rows) == list(truth)
+    cluster_labels = [row["cluster"] for row in cluster_rows]
+    local_labels = [local_rows[row["doc_id"]]["cluster"] for row in cluster_rows]
+    planted = [truth[row["doc_id"]] for row in cluster_rows]
+    # the same seed and data give the same clusters wherever the executors run; ARI (Hubert and Arabie 1985)
+    # by scikit-learn. The planted topics are well apart (60 % topic words), so both find them.
+    ari = adjusted_rand_score(local_labels, cluster_labels)
+    print(f"ARI cluster against local[2]: {ari:.3f}; against the planted topics: "
+          f"{adjusted_rand_score(planted, cluster_labels):.3f}")
+    assert ari >= 0.95
+    assert adjusted_rand_score(planted, cluster_labels) >= 0.95
+    # the site is complete: pages, the executors' parts, and only files the pages describe
+    clusters = read_clusters(on_cluster)
+    assert clusters["documents"] == len(truth)
+    written = [p.relative_to(on_cluster).as_posix() for p in on_cluster.rglob("*") if p.is_file()]
+    assert {"index.html", "cluster-00.html", "cluster-02.html", "assignments.csv", "clusters.json", "cuts.csv",
+            "ingest-report.csv", "members/cluster-00.csv"} <= set(written)
+    assert any(name.startswith("assignments-parquet/") and name.endswith(".parquet") for name in written)
+    assert any(name.startswith("assignments-parts/") and name.endswith(".csv") for name in written)
+    assert [name for name in written if not describe_file(name)] == []
+    assert [row for row in read_ingest_report(on_cluster) if row["status"] == "skipped"] == []
