@@ -49,10 +49,11 @@ def test_executors_whose_python_lacks_the_libraries_are_one_line_naming_pyspark_
     # a virtual environment of this Python without its site-packages: the same version, no numpy (Python venv docs)
     subprocess.run([sys.executable, "-m", "venv", "--without-pip", str(tmp_path / "bare")], check=True)
     bare = tmp_path / "bare" / "bin" / "python"
-    # the module the executors miss first, found independently: that Python importing pilewise's Spark code
+    # the module the executors miss first, found independently: that Python importing pilewise's Spark code and
+    # the libraries a run needs there (pilewise's own package imports them lazily, so either may come first)
     shipped = Path(pilewise.__file__).parents[1]
-    tried = subprocess.run([str(bare), "-c", "import pilewise.engines.spark_session"], capture_output=True, text=True,
-                           env={"PYTHONPATH": str(shipped)}, check=False)
+    tried = subprocess.run([str(bare), "-c", "import pilewise.engines.spark_session; import numpy, scipy, sklearn"],
+                           capture_output=True, text=True, env={"PYTHONPATH": str(shipped)}, check=False)
     missing = tried.stderr.strip().splitlines()[-1]
     assert missing.startswith("ModuleNotFoundError: No module named"), tried.stderr
     monkeypatch.setenv("PYSPARK_PYTHON", str(bare))
