@@ -21,7 +21,7 @@ import numpy as np
 
 from pilewise.clustering.stability import STABILITY_ROWS
 from pilewise.clustering.sweep import RECOMMENDATION_RULE, Sweep
-from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
+from pilewise.csvcells import spreadsheet_row
 from pilewise.describe.names import write_names_csv
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.model import ClusterSummary, RunResult, TermScore
@@ -210,12 +210,15 @@ def write_document_tables(
     docs = result.collection.documents
     known = getattr(docs, "metadata_names", None)  # a shelf keeps them; a tuple is looked through
     extra = sorted(known if known is not None else {name for doc in docs for name, _ in doc.metadata})
-    labels = result.clustering.labels
-    distances = result.clustering.distances
-    text_of_doc = result.collection.text_of_doc
-    copies = result.collection.copies
+    # per distinct text, as Python values made once: a document reads them instead of numpy scalars
+    labels = np.asarray(result.clustering.labels, dtype=np.int64).tolist()
+    distances = np.asarray(result.clustering.distances, dtype=float).tolist()
+    text_of_doc = np.asarray(result.collection.text_of_doc, dtype=np.int64).tolist()
+    copies = np.asarray(result.collection.copies, dtype=np.int64).tolist()
     cuts = result.levels.cuts
     ks = sorted(cuts)
+    cut_table = np.column_stack([np.asarray(cuts[k], dtype=np.int32) for k in ks]) if ks else \
+        np.zeros((len(labels), 0), dtype=np.int32)  # one row per text, read a row at a time (bounded at 1M)
     shown = [c.shown for c in result.naming.clusters]
     header = spreadsheet_row(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies",
                               *extra])
@@ -230,13 +233,14 @@ def write_document_tables(
         for i, doc in track(numbered) if track else numbered:
             t = text_of_doc[i]
             meta = dict(doc.metadata)
+            label = labels[t]
             row = spreadsheet_row([
-                doc.doc_id, doc.source, doc.title, int(labels[t]), shown[labels[t]], f"{distances[t]:.6f}", doc.date,
-                int(copies[t]), *(meta.get(name, "") for name in extra),
+                doc.doc_id, doc.source, doc.title, label, shown[label], f"{distances[t]:.6f}", doc.date,
+                copies[t], *(meta.get(name, "") for name in extra),
             ])
             writer.writerow(row)
-            cuts_writer.writerow([spreadsheet_cell(doc.doc_id), *(int(cuts[k][t]) for k in ks)])
-            members.add(int(labels[t]), row)
+            cuts_writer.writerow([row[0], *cut_table[t].tolist()])
+            members.add(label, row)
     members.flush()
 
 
