@@ -22,7 +22,7 @@ from hypothesis import strategies as st
 
 from helpers import assert_one_line_error, invoke, read_assignments, read_clusters, read_csv, read_manifest
 from pilewise import pipeline
-from pilewise.csvcells import read_spreadsheet_cell, spreadsheet_cell
+from pilewise.csvcells import read_spreadsheet_cell, spreadsheet_cell, spreadsheet_row
 from pilewise.describe.compare import compare_run_folders
 from pilewise.describe.names import find_old_names, read_names_csv
 from pilewise.errors import PilewiseError
@@ -78,6 +78,13 @@ def test_plain_numbers_and_other_text_are_left_alone(value: str) -> None:
     # numbers stay numbers in a spreadsheet (common practice); text not starting with a formula sign is safe
     assert spreadsheet_cell(value) == value
     assert read_spreadsheet_cell(value) == value
+
+
+@given(st.lists(st.one_of(st.text(alphabet=st.sampled_from("'=+-@\t\r0123456789.eE ab"), max_size=6), st.text(),
+                          st.integers(), st.floats(allow_nan=False), st.none()), max_size=8))
+def test_a_row_escapes_exactly_the_cells_that_the_cell_rule_escapes(cells: list[object]) -> None:
+    # spreadsheet_row passes cells that cannot start a formula without the cell rule: the same row either way
+    assert spreadsheet_row(cells) == [spreadsheet_cell(cell) for cell in cells]
 
 
 @given(st.text(max_size=12))

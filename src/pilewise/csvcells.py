@@ -12,6 +12,7 @@ from collections.abc import Iterable
 _FORMULA_START = re.compile(r"'*[=+\-@\t\r]")  # OWASP: = + - @ tab CR start a formula; quotes counted
 _ESCAPED = re.compile(r"'+[=+\-@\t\r]")
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+_RISKY_FIRST = frozenset("'=+-@\t\r")  # the first characters _FORMULA_START can match
 
 
 def spreadsheet_cell(value: object) -> object:
@@ -28,8 +29,9 @@ def spreadsheet_cell(value: object) -> object:
 
 
 def spreadsheet_row(cells: Iterable[object]) -> list[object]:
-    """Every cell of a row through `spreadsheet_cell`."""
-    return [spreadsheet_cell(cell) for cell in cells]
+    """Every cell of a row through `spreadsheet_cell`; a text cell whose first character cannot start a formula
+    is passed as it is without the call (the same cells: a run's exports hold millions of them)."""
+    return [spreadsheet_cell(cell) if isinstance(cell, str) and cell[:1] in _RISKY_FIRST else cell for cell in cells]
 
 
 def read_spreadsheet_cell(cell: str) -> str:
