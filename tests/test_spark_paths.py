@@ -51,7 +51,9 @@ def test_executors_whose_python_lacks_the_libraries_are_one_line_naming_pyspark_
     bare = tmp_path / "bare" / "bin" / "python"
     # the module the executors miss first, found independently: that Python importing pilewise's Spark code and
     # the libraries a run needs there (pilewise's own package imports them lazily, so either may come first)
-    shipped = Path(pilewise.__file__).parents[1]
+    # pilewise's package alone on the path: an installed pilewise's parent folder is site-packages, numpy and all
+    shipped = tmp_path / "shipped"
+    shutil.copytree(Path(pilewise.__file__).parent, shipped / "pilewise")
     tried = subprocess.run([str(bare), "-c", "import pilewise.engines.spark_session; import numpy, scipy, sklearn"],
                            capture_output=True, text=True, env={"PYTHONPATH": str(shipped)}, check=False)
     missing = tried.stderr.strip().splitlines()[-1]
