@@ -70,9 +70,13 @@ def _fit_end(text: str, width: int) -> str:
     return _fit_start(text[::-1], width)[::-1]
 
 
-def kwic_line(text: str, analyzer: Analyzer, key: str, width: int = CONTEXT_CHARS) -> tuple[str, str, str] | None:
-    """The keyword-in-context line for the first occurrence of `key` in `text`, if any."""
-    found = find_term(analyzer.spans(text), key)
+def kwic_line(
+    text: str, analyzer: Analyzer, key: str, width: int = CONTEXT_CHARS, *,
+    spans: list[tuple[int, int, str]] | None = None,
+) -> tuple[str, str, str] | None:
+    """The keyword-in-context line for the first occurrence of `key` in `text`, if any; `spans`, when given, is
+    `analyzer.spans(text)` already found (a caller looking for several terms in one text finds them once)."""
+    found = find_term(analyzer.spans(text) if spans is None else spans, key)
     if found is None:
         return None
     return kwic_window(text, found[0], found[1], width)

@@ -19,7 +19,7 @@ from pilewise.clustering.kmeans import Clustering, cluster_sums
 from pilewise.clustering.levels import Levels
 from pilewise.clustering.stability import StabilityResult, mixed_stability_reading
 from pilewise.describe.headlines import HEADLINE_CANDIDATES, choose_headlines
-from pilewise.describe.kwic import find_term, kwic_window
+from pilewise.describe.kwic import kwic_line
 from pilewise.describe.names import suggested_name_from
 from pilewise.describe.stats import best_first, chi_square_2x2, informative_prior, log_odds_dirichlet
 from pilewise.model import ClusterSummary, Collection, KwicLine, Neighbour, QualityScores, TermScore
@@ -377,10 +377,9 @@ def _kwic_for(
             doc = collection.documents[doc_index]
             if doc_index not in spans_of:
                 spans_of[doc_index] = analyzer.spans(doc.text)
-            span = find_term(spans_of[doc_index], term.key)  # what kwic_line does, with the spans kept
-            if span is None:
+            line = kwic_line(doc.text, analyzer, term.key, spans=spans_of[doc_index])
+            if line is None:
                 continue
-            line = kwic_window(doc.text, span[0], span[1])
             lines.append(KwicLine(term.term, line[0], line[1], line[2], doc.doc_id, doc_index))
             found += 1
             if found == KWIC_LINES_PER_TERM:

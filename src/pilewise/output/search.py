@@ -99,7 +99,6 @@ def opening(text: str) -> str:
     return clip_text(text[: SNIPPET_CHARS * 2], SNIPPET_CHARS)
 
 
-
 def _after_title(title: str, opening: str) -> str:
     """`opening` less the title it starts with (titles taken from a text's first line), up to a space.
 
