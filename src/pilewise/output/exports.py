@@ -21,7 +21,7 @@ import numpy as np
 
 from pilewise.clustering.stability import STABILITY_ROWS
 from pilewise.clustering.sweep import RECOMMENDATION_RULE, Sweep
-from pilewise.csvcells import spreadsheet_row
+from pilewise.csvcells import spreadsheet_cell, spreadsheet_row
 from pilewise.describe.names import write_names_csv
 from pilewise.describe.rules import RULES_ROWS
 from pilewise.model import ClusterSummary, RunResult, TermScore
@@ -128,7 +128,13 @@ def write_exports(
     if result.population is not None:  # the documents are on the engine that read them; it writes assignments
         result.population.write_assignments(folder, [c.shown for c in result.naming.clusters], cut_groups(result))
     else:
-        write_document_tables(folder / "assignments.csv", folder / "cuts.csv", result, track)
+        DocumentTables(folder, result).write(track)
+    write_run_records(folder, result)
+
+
+def write_run_records(folder: Path, result: RunResult) -> None:
+    """The exports other than the per-document tables: clusters.json, manifest.json, ingest-report.csv,
+    levels.json, names.csv, boilerplate.csv and sweep.json."""
     _write_json(folder / "clusters.json", clusters_document(result))
     write_manifest(folder, result)
     write_ingest_report(folder / "ingest-report.csv", result)
@@ -202,46 +208,84 @@ def sweep_document(sweep: Sweep, name: str) -> dict[str, Any]:
     }
 
 
-def write_document_tables(
-    assignments: Path, cuts_path: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
-) -> None:
-    """assignments.csv (one row per document in reading order; metadata columns of table inputs follow) and
-    cuts.csv (its cluster at every cut of the tree, columns k2, k3, ...), in one pass over the documents."""
-    docs = result.collection.documents
-    known = getattr(docs, "metadata_names", None)  # a shelf keeps them; a tuple is looked through
-    extra = sorted(known if known is not None else {name for doc in docs for name, _ in doc.metadata})
-    # per distinct text, as Python values made once: a document reads them instead of numpy scalars
-    labels = np.asarray(result.clustering.labels, dtype=np.int64).tolist()
-    distances = np.asarray(result.clustering.distances, dtype=float).tolist()
-    text_of_doc = np.asarray(result.collection.text_of_doc, dtype=np.int64).tolist()
-    copies = np.asarray(result.collection.copies, dtype=np.int64).tolist()
-    cuts = result.levels.cuts
-    ks = sorted(cuts)
-    cut_table = np.column_stack([np.asarray(cuts[k], dtype=np.int32) for k in ks]) if ks else \
-        np.zeros((len(labels), 0), dtype=np.int32)  # one row per text, read a row at a time (bounded at 1M)
-    shown = [c.shown for c in result.naming.clusters]
-    header = spreadsheet_row(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date", "copies",
-                              *extra])
-    members = MemberFiles(assignments.parent, header, [c.cluster_id for c in result.clusters])
-    with assignments.open("w", encoding="utf-8", newline="") as handle, \
-            cuts_path.open("w", encoding="utf-8", newline="") as cuts_handle:
-        writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow(header)
-        cuts_writer = csv.writer(cuts_handle, lineterminator="\n")
-        cuts_writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
-        numbered = enumerate(docs)
-        for i, doc in track(numbered) if track else numbered:
-            t = text_of_doc[i]
-            meta = dict(doc.metadata)
-            label = labels[t]
-            row = spreadsheet_row([
-                doc.doc_id, doc.source, doc.title, label, shown[label], f"{distances[t]:.6f}", doc.date,
-                copies[t], *(meta.get(name, "") for name in extra),
-            ])
-            writer.writerow(row)
-            cuts_writer.writerow([row[0], *cut_table[t].tolist()])
-            members.add(label, row)
-    members.flush()
+class DocumentTables:
+    """assignments.csv (one row per document in reading order; metadata columns of table inputs follow),
+    cuts.csv (its cluster at every cut of the tree, columns k2, k3, ...) and members/cluster-NN.csv.
+
+    Made before the pages: the member files exist (with their header) from then on, so that the pages that
+    link them may be written while `write` fills them (in a worker process, see `output.writing`).
+    """
+
+    def __init__(self, folder: Path, result: RunResult) -> None:
+        self.folder = folder
+        self.result = result
+        docs = result.collection.documents
+        known = getattr(docs, "metadata_names", None)  # a shelf keeps them; a tuple is looked through
+        self.extra = sorted(known if known is not None else {name for doc in docs for name, _ in doc.metadata})
+        self.header = spreadsheet_row(["doc_id", "source", "title", "cluster", "cluster_name", "distance", "date",
+                                       "copies", *self.extra])
+        self._members()
+
+    def _members(self) -> MemberFiles:
+        return MemberFiles(self.folder, self.header, [c.cluster_id for c in self.result.clusters])
+
+    def write(self, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None) -> None:
+        """The three tables in one pass over the documents; each file is written from its start.
+
+        Every row is formatted once by the csv module (into a list of lines) and that line goes to both
+        assignments.csv and the cluster's member file. Cells that are never text (cluster, copies) or that
+        are the same for many rows (the cluster's name) are escaped once, not per row: the same cells as
+        `spreadsheet_row` of the whole row (tested).
+        """
+        result, extra = self.result, self.extra
+        docs = result.collection.documents
+        # per distinct text, as Python values made once: a document reads them instead of numpy scalars
+        labels = np.asarray(result.clustering.labels, dtype=np.int64).tolist()
+        distances = np.asarray(result.clustering.distances, dtype=float).tolist()
+        text_of_doc = np.asarray(result.collection.text_of_doc, dtype=np.int64).tolist()
+        copies = np.asarray(result.collection.copies, dtype=np.int64).tolist()
+        cuts = result.levels.cuts
+        ks = sorted(cuts)
+        cut_table = np.column_stack([np.asarray(cuts[k], dtype=np.int32) for k in ks]) if ks else \
+            np.zeros((len(labels), 0), dtype=np.int32)  # one row per text, read a row at a time (bounded at 1M)
+        shown = spreadsheet_row([c.shown for c in result.naming.clusters])
+        members = self._members()
+        lines, cut_lines = _Lines(), _Lines()
+        writer = csv.writer(lines, lineterminator="\n")
+        cuts_writer = csv.writer(cut_lines, lineterminator="\n")
+        with (self.folder / "assignments.csv").open("w", encoding="utf-8", newline="") as handle, \
+                (self.folder / "cuts.csv").open("w", encoding="utf-8", newline="") as cuts_handle:
+            writer.writerow(self.header)
+            cuts_writer.writerow(["doc_id", *(f"k{k}" for k in ks)])
+            numbered = enumerate(docs)
+            for i, doc in track(numbered) if track else numbered:
+                t = text_of_doc[i]
+                label = labels[t]
+                texts = [doc.doc_id, doc.source, doc.title, doc.date]
+                if extra:
+                    meta = dict(doc.metadata)
+                    texts.extend(meta.get(name, "") for name in extra)
+                doc_id, source, title, date, *more = spreadsheet_row(texts)
+                distance = f"{distances[t]:.6f}"
+                if distance[:1] == "-":  # a plain negative number stays as it is; "-inf" would not
+                    distance = str(spreadsheet_cell(distance))
+                writer.writerow([doc_id, source, title, label, shown[label], distance, date, copies[t], *more])
+                members.add_line(label, lines[-1])
+                cuts_writer.writerow([doc_id, *cut_table[t].tolist()])
+                if len(lines) >= MEMBER_ROWS_BUFFERED:
+                    handle.write("".join(lines))
+                    cuts_handle.write("".join(cut_lines))
+                    lines.clear()
+                    cut_lines.clear()
+            handle.write("".join(lines))
+            cuts_handle.write("".join(cut_lines))
+        members.flush()
+
+
+class _Lines(list[str]):
+    """A list that a csv writer writes into: every row it writes becomes one item, the row's formatted line."""
+
+    write = list.append  # the csv writer calls it once per row
 
 
 class MemberFiles:
@@ -249,25 +293,33 @@ class MemberFiles:
 
     def __init__(self, folder: Path, header: list[object], clusters: list[int]) -> None:
         self.folder = folder
-        self.rows: dict[int, list[list[object]]] = {c: [] for c in clusters}
+        self.lines: dict[int, list[str]] = {c: [] for c in clusters}
         self.held = 0
+        self._formatted = _Lines()
+        self._writer = csv.writer(self._formatted, lineterminator="\n")
         (folder / MEMBERS_FOLDER).mkdir(exist_ok=True)
         for c in clusters:  # every cluster gets its file, with the header, even before its first row
             with (folder / members_csv_name(c)).open("w", encoding="utf-8", newline="") as handle:
                 csv.writer(handle, lineterminator="\n").writerow(header)
 
     def add(self, cluster: int, row: list[object]) -> None:
-        self.rows[cluster].append(row)
+        """A row of cells (escaped already), formatted as the csv module writes it."""
+        self._writer.writerow(row)
+        self.add_line(cluster, self._formatted.pop())
+
+    def add_line(self, cluster: int, line: str) -> None:
+        """A row already formatted by a csv writer with "\\n" line ends (as every pilewise CSV)."""
+        self.lines[cluster].append(line)
         self.held += 1
         if self.held >= MEMBER_ROWS_BUFFERED:
             self.flush()
 
     def flush(self) -> None:
-        for c, rows in self.rows.items():
-            if rows:
+        for c, lines in self.lines.items():
+            if lines:
                 with (self.folder / members_csv_name(c)).open("a", encoding="utf-8", newline="") as handle:
-                    csv.writer(handle, lineterminator="\n").writerows(rows)
-                rows.clear()
+                    handle.write("".join(lines))
+                lines.clear()
         self.held = 0
 
 

@@ -2,17 +2,18 @@
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 import shutil
 import tempfile
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
 from pilewise.model import RunResult
-from pilewise.output.exports import write_compare_json, write_exports, write_manifest
+from pilewise.output.exports import DocumentTables, cut_groups, write_compare_json, write_manifest, write_run_records
 from pilewise.output.outfolder import (
     check_replaceable,
     inside,
@@ -24,6 +25,9 @@ from pilewise.output.outfolder import (
 )
 from pilewise.output.site import render_comparison, render_run_site
 from pilewise.progress import Reporter
+from pilewise.vectors.streaming import default_workers
+
+TABLES_BESIDE_FROM = 10_000  # documents from which the document tables are written in a worker beside the pages
 
 
 @contextmanager
@@ -68,11 +72,82 @@ def _process_alive(pid: str) -> bool:
 def _write_run(folder: Path, result: RunResult, reporter: Reporter) -> None:
     start = time.perf_counter()
     total = len(result.collection.documents)
-    write_exports(folder, result, track=lambda items: reporter.track(items, total=total, label="writing exports"))
-    render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"))
+    tables = None
+    if result.population is not None:  # the documents are on the engine that read them; it writes assignments
+        result.population.write_assignments(folder, [c.shown for c in result.naming.clusters], cut_groups(result))
+    else:
+        tables = DocumentTables(folder, result)
+    with _TablesBeside(tables, background=tables_beside(result),
+                       track=lambda items: reporter.track(items, total=total, label="writing exports")) as beside:
+        write_run_records(folder, result)
+        render_run_site(folder, result, track=lambda items: reporter.track(items, total=total, label="writing pages"),
+                        exports_written=beside.wait)
     # the manifest is written again last, so that its timings include writing the exports and pages
     result.timings["writing site"] = round(time.perf_counter() - start, 3)
     write_manifest(folder, result)
+
+
+def tables_beside(result: RunResult) -> bool:
+    """Whether the document tables are written in a forked worker while the pages are rendered: with a second
+    core (not --workers 1), from TABLES_BESIDE_FROM documents, and where processes can be forked."""
+    return (result.population is None and (result.options.workers or default_workers()) > 1
+            and len(result.collection.documents) >= TABLES_BESIDE_FROM
+            and "fork" in multiprocessing.get_all_start_methods())
+
+
+def _write_tables_in_worker(tables: DocumentTables) -> None:
+    """The worker's job; any failure is only its exit status, since the caller writes the tables again in place
+    and reports the error there as it would without the worker."""
+    try:
+        tables.write()
+    except BaseException:  # the caller writes them again and raises the error itself
+        os._exit(1)
+
+
+class _TablesBeside:
+    """`DocumentTables.write` in one forked worker process beside the caller's work, or in place.
+
+    The worker inherits the run's result at the fork (no copy is pickled) and writes assignments.csv, cuts.csv
+    and members/ into the staging folder; `wait` returns when they are complete. A worker that fails (an
+    error, out of memory, a signal) leaves the tables to the calling process, which writes them again from the
+    start in place, so an error (a full disk) is raised there as one line. Without `background` the tables are
+    written in place when the block starts (the order of a sequential writer). Leaving the block on an error
+    stops the worker before the staging folder is removed.
+    """
+
+    def __init__(self, tables: DocumentTables | None, *, background: bool,
+                 track: Callable[[Iterable[Any]], Iterable[Any]] | None = None) -> None:
+        self.tables = tables
+        self.background = background and tables is not None
+        self.track = track
+        self.process: multiprocessing.process.BaseProcess | None = None
+
+    def __enter__(self) -> _TablesBeside:
+        if self.tables is None:
+            return self
+        if self.background:
+            self.process = multiprocessing.get_context("fork").Process(
+                target=_write_tables_in_worker, args=(self.tables,), daemon=True)
+            self.process.start()
+        else:
+            self.tables.write(self.track)
+        return self
+
+    def wait(self) -> None:
+        """Return once the tables are complete (written again in place if the worker failed)."""
+        process, self.process = self.process, None
+        if process is None:
+            return
+        process.join()
+        if process.exitcode != 0 and self.tables is not None:
+            self.tables.write(self.track)
+
+    def __exit__(self, kind: type[BaseException] | None, *_: object) -> None:
+        if kind is not None and self.process is not None:
+            self.process.terminate()
+            self.process.join()
+            self.process = None
+        self.wait()
 
 
 def _write_atomically(target: Path, write: Callable[[Path], None]) -> None:

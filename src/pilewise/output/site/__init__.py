@@ -90,10 +90,24 @@ def doc_page_name(doc_index: int) -> str:
 
 
 def render_run_site(
-    folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None
+    folder: Path, result: RunResult, track: Callable[[Iterable[Any]], Iterable[Any]] | None = None,
+    exports_written: Callable[[], None] | None = None,
 ) -> None:
     """Write index.html, one page per cluster (the MEMBERS_LISTED members nearest its centroid), document pages,
-    the ingest page, the map and the search index."""
+    the ingest page, the map and the search index.
+
+    Parameters
+    ----------
+    folder : Path
+        The run's folder, its exports written or being written (their member files made).
+    result : RunResult
+        The finished run.
+    track : callable, optional
+        Wraps the pass over the documents (a progress bar).
+    exports_written : callable, optional
+        Returns once every export is complete (the document tables may be written beside the pages by
+        another process); called before the pages that list the exports' files (index.html, files.html).
+    """
     env = _environment()
     _copy_stylesheet(folder)
     docs = result.collection.documents
@@ -119,7 +133,6 @@ def render_run_site(
         "resamples": result.stability.resamples,
         "finder": True,  # base.html: the search form and the run's two script files
     }
-    common["exports"] = listed_files(folder, data_only=True)  # the exports are written before the pages
     cards = [_card(c, result) for c in result.clusters]
     _write_search(folder, result, cards, with_doc_pages)
     _render_map(folder, result, env, common, cards, with_doc_pages)
@@ -134,9 +147,6 @@ def render_run_site(
         hrefs={c.cluster_id: cluster_page_name(c.cluster_id) for c in result.clusters}, up=""))
     if result.sweep is not None:
         render_sweep(folder, result.sweep, name=result.name, in_run=True)
-    _write(folder / "index.html", env.get_template("run_index.html").render(
-        common, cards=cards, overview=_overview(cards), first=_first_listed(result, cards),
-        over_time=_over_time(result, cards), up=""))
     _write(folder / "ingest.html", env.get_template("ingest.html").render(
         common, entries=[{"source": shown(e.source), "status": e.status, "reason": e.reason, "detail": shown(e.detail)}
                          for e in result.ingested.entries], notes=result.ingested.notes,
@@ -195,6 +205,12 @@ def render_run_site(
                 distance=float(result.clustering.distances[t]),
                 copies=int(result.collection.copies[t]), up="../",
                 group=[{"title": docs[j].title, "href": "../" + doc_page_name(j)} for j in group]))
+    if exports_written is not None:
+        exports_written()
+    # the overview lists the exports' files, so it waits for them (no other page reads the folder's files)
+    _write(folder / "index.html", env.get_template("run_index.html").render(
+        common, exports=listed_files(folder, data_only=True), cards=cards, overview=_overview(cards),
+        first=_first_listed(result, cards), over_time=_over_time(result, cards), up=""))
     # last, so that it lists every file written before it (and the few written when the run is put in place)
     _write(folder / "files.html", env.get_template("files.html").render(
         common, files=listed_files(folder, late=(*LATE_FILES, "files.html")), up=""))
