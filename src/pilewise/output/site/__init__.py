@@ -221,16 +221,17 @@ def _write_search(folder: Path, result: RunResult, cards: Sequence[dict[str, Any
     docs = result.collection.documents
     clusters = [search.SearchCluster(card["id"], card["title"], tuple(t.term for t in c.chi2_terms[:20]), card["href"])
                 for card, c in zip(cards, result.clusters, strict=True)]
-    labels = result.clustering.labels[result.collection.text_of_doc]
+    labels = result.clustering.labels[result.collection.text_of_doc].tolist()  # Python ints, made once
     with_text = len(docs) <= search.SNIPPETS_UP_TO
+    cluster_pages = [cluster_page_name(c) for c in range(max(labels, default=-1) + 1)]
 
     def found() -> Iterator[search.SearchDocument]:
         """The documents one at a time, written as they come: the index is never held whole."""
         for i, doc in enumerate(docs):
-            cluster_id = int(labels[i])
+            cluster_id = labels[i]
             # a placeholder cut at the end of the slice may show half; the index keeps only the opening
             text = display_text(doc.text[: search.SNIPPET_CHARS * 3]) if with_text else ""
-            href = doc_page_name(i) if with_doc_pages else cluster_page_name(cluster_id)
+            href = doc_page_name(i) if with_doc_pages else cluster_pages[cluster_id]
             yield search.SearchDocument(doc.title, text, cluster_id, href)
 
     with (folder / search.INDEX_FILE).open("w", encoding="utf-8") as handle:
