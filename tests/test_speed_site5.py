@@ -242,3 +242,25 @@ def test_leaving_on_an_error_stops_the_worker(result: RunResult, tmp_path: Path)
         raise RuntimeError("the pages failed")
     assert process.exitcode is not None  # joined: no worker left writing into a staging folder being removed
     assert beside.process is None
+
+
+@needs_fork
+def test_an_interrupted_wait_still_stops_the_worker(result: RunResult, tmp_path: Path) -> None:
+    """Ctrl-C while waiting for the worker: leaving the block terminates and joins it all the same."""
+    tables = DocumentTables(tmp_path, result)
+    with pytest.raises(KeyboardInterrupt), writing._TablesBeside(tables, background=True) as beside:
+        process = beside.process
+        assert process is not None
+        join = process.join
+        calls: list[int] = []
+
+        def interrupted(timeout: float | None = None) -> None:
+            calls.append(1)
+            if len(calls) == 1:
+                raise KeyboardInterrupt
+            join(timeout)
+
+        process.join = interrupted  # type: ignore[method-assign]
+        beside.wait()
+    assert len(calls) == 2 and process.exitcode is not None
+    assert beside.process is None

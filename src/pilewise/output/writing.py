@@ -135,10 +135,10 @@ class _TablesBeside:
 
     def wait(self) -> None:
         """Return once the tables are complete (written again in place if the worker failed)."""
-        process, self.process = self.process, None
-        if process is None:
+        if self.process is None:
             return
-        process.join()
+        self.process.join()  # interrupted here (Ctrl-C), the worker is still known to __exit__, which stops it
+        process, self.process = self.process, None
         if process.exitcode != 0 and self.tables is not None:
             self.tables.write(self.track)
 
