@@ -89,6 +89,18 @@ def test_dead_worker_leaves_its_starts_here(monkeypatch: pytest.MonkeyPatch) -> 
     assert np.array_equal(labels, model.labels_) and inertia == model.inertia_
 
 
+def test_no_process_started_runs_every_start_here(monkeypatch: pytest.MonkeyPatch) -> None:
+    space, weights = _blobs(700, 8, 5, 6)
+    model = _reference(space, weights, 5, 6, 4)
+
+    def refuse(*_: object, **__: object) -> None:
+        raise OSError("Resource temporarily unavailable")  # what fork() raises at a process limit (EAGAIN)
+
+    monkeypatch.setattr(kmeans.ProcessPoolExecutor, "submit", refuse)
+    labels, inertia = kmeans.split_starts(space, weights, k=5, seed=6, n_init=4)
+    assert np.array_equal(labels, model.labels_) and inertia == model.inertia_
+
+
 def test_wrong_predicted_states_fall_back_to_one_process(monkeypatch: pytest.MonkeyPatch) -> None:
     # every start handed the generator of start 0: the checks fail and the starts run again in order
     space, weights = _blobs(800, 8, 6, 1)

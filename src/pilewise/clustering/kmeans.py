@@ -110,10 +110,12 @@ def _split_starts(
     here = (n_init + 1) // 2
     global _handed_starts
     _handed_starts = {"space": space, "weights": weights, "k": k, "states": states}
-    executor: ProcessPoolExecutor | None = None
+    executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
     try:
-        executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
         later = executor.submit(_handed_run, here, n_init)  # the fork happens here and inherits the inputs
+    except OSError:  # no process could be started (a process limit): every start here, in order
+        executor.shutdown(wait=False, cancel_futures=True)
+        return _best_start(run_starts(space, weights, k=k, states=states, first=0, stop=n_init, trust=False), k)
     finally:
         _handed_starts = {}
     try:
