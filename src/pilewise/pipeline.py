@@ -477,7 +477,7 @@ def _clustered(
             k = options.k
             clustering = _cluster_at(space, weights, k, tree, seed=options.seed,
                                      starts=kmeans_starts(options, distinct), streamed=prepared.streamed,
-                                     reporter=reporter)
+                                     reporter=reporter, workers=options.workers or default_workers())
     return k, clustering, tree, sweep
 
 

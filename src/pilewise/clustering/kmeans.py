@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+import copy
 import itertools
+import multiprocessing
 import warnings
 from collections.abc import Callable, Iterable
+from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -44,20 +49,162 @@ def kmeans_clusters(
     seed: int,
     n_init: int,
     init: np.ndarray | None = None,
+    workers: int = 1,
 ) -> Clustering:
-    """Seeded k-means (k-means++ starts, or the given `init` centroids) with duplicate counts as weights."""
-    model = KMeans(n_clusters=k, n_init=1 if init is not None else n_init, random_state=seed,
-                   init=init if init is not None else "k-means++")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)  # checked just below, with a message that helps
-        raw_labels = model.fit_predict(space, sample_weight=weights)
+    """Seeded k-means (k-means++ starts, or the given `init` centroids) with duplicate counts as weights.
+
+    With `workers` > 1, at least SPLIT_STARTS_MIN rows and more than one start, the later half of the starts
+    runs in a forked process (`split_starts`); the clustering is the same as with one process. Only where
+    OpenMP runs one thread (`--threads 1`, OMP_NUM_THREADS=1): with more, scikit-learn's k-means already
+    uses the cores.
+    """
+    if (init is None and n_init > 1 and workers > 1 and space.shape[0] >= SPLIT_STARTS_MIN and _can_fork()
+            and _one_openmp_thread()):
+        raw_labels, inertia = split_starts(space, weights, k=k, seed=seed, n_init=n_init)
+    else:
+        model = KMeans(n_clusters=k, n_init=1 if init is not None else n_init, random_state=seed,
+                       init=init if init is not None else "k-means++")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)  # checked just below, with a message that helps
+            raw_labels = model.fit_predict(space, sample_weight=weights)
+        inertia = float(model.inertia_)
     found = int(np.unique(raw_labels).size)
     if found < k:
         raise PilewiseError(
             f"k={k} is more than the {found} groups of texts that differ in their counted words; "
             f"pass a smaller --k (at most {found})"
         )
-    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=float(model.inertia_))
+    return clustering_from_labels(space, weights, raw_labels, k=k, inertia=inertia)
+
+
+SPLIT_STARTS_MIN = 10_000  # rows from which the k-means starts are split over two processes (a fork costs ~0.1 s)
+Start = tuple[np.ndarray, float, bool]  # one start's labels, its inertia, whether its generator state was right
+_handed_starts: dict[str, Any] = {}  # the forked process's inputs, inherited at the fork instead of pickled
+
+
+def split_starts(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int, n_init: int
+) -> tuple[np.ndarray, float]:
+    """`KMeans(n_init=n_init, random_state=seed)`'s labels and inertia, its starts run on two processes.
+
+    scikit-learn runs the starts one after the other on one `RandomState(seed)`; each k-means++ start
+    draws a fixed count of numbers from it (one for the first centre, then `2 + log k` per centre
+    whatever the rows), so the generator at start j is known beforehand (`start_states`). The first
+    half of the starts runs here, the rest in a forked process from their own states; every process checks
+    that the generator it ends a start with is the state predicted for the next one, and a start whose
+    state was not the predicted one (another scikit-learn) is run again here in order. The winner is
+    chosen as scikit-learn chooses it (`_best_start`), so labels and inertia are the same bit for bit as
+    KMeans on one OpenMP thread. Both processes run one OpenMP thread: OpenMP's thread pool does not
+    survive a fork (a forked child that starts OpenMP threads can hang).
+    """
+    from threadpoolctl import threadpool_limits  # a dependency of scikit-learn
+
+    with threadpool_limits(limits=1, user_api="openmp"):
+        return _split_starts(space, weights, k=k, seed=seed, n_init=n_init)
+
+
+def _split_starts(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, seed: int, n_init: int
+) -> tuple[np.ndarray, float]:
+    states = start_states(k, seed, n_init + 1)
+    here = (n_init + 1) // 2
+    global _handed_starts
+    _handed_starts = {"space": space, "weights": weights, "k": k, "states": states}
+    executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
+    try:
+        later = executor.submit(_handed_run, here, n_init)  # the fork happens here and inherits the inputs
+    except OSError:  # no process could be started (a process limit): every start here, in order
+        executor.shutdown(wait=False, cancel_futures=True)
+        return _best_start(run_starts(space, weights, k=k, states=states, first=0, stop=n_init, trust=False), k)
+    finally:
+        _handed_starts = {}
+    try:
+        starts = run_starts(space, weights, k=k, states=states, first=0, stop=here)
+        try:
+            starts += later.result()
+        except BrokenProcessPool:  # a worker that died (memory, a signal) leaves its starts to this process
+            starts += run_starts(space, weights, k=k, states=states, first=here, stop=n_init)
+    finally:
+        executor.shutdown(wait=False, cancel_futures=True)
+    if not all(checked for _, _, checked in starts):
+        starts = run_starts(space, weights, k=k, states=states, first=0, stop=n_init, trust=False)
+    return _best_start(starts, k)
+
+
+def _handed_run(first: int, stop: int) -> list[Start]:
+    h = _handed_starts
+    return run_starts(h["space"], h["weights"], k=h["k"], states=h["states"], first=first, stop=stop)
+
+
+def start_states(k: int, seed: int, count: int) -> list[np.random.RandomState]:
+    """The generator as `KMeans(random_state=seed)` holds it before each of `count` k-means++ starts.
+
+    Found by seeding k single points with each start's generator: k-means++ draws the same count of numbers
+    whatever the rows (checked by every start of `run_starts`).
+    """
+    generator = np.random.RandomState(seed)
+    points = np.arange(k, dtype=np.float64)[:, None]
+    states = []
+    for _ in range(count):
+        states.append(copy.deepcopy(generator))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            KMeans(n_clusters=k, n_init=1, max_iter=1, random_state=generator).fit(points)
+    return states
+
+
+def run_starts(
+    space: np.ndarray | sp.csr_matrix, weights: np.ndarray, *, k: int, states: list[np.random.RandomState],
+    first: int, stop: int, trust: bool = True,
+) -> list[Start]:
+    """Starts `first` to `stop - 1` as one-start fits, each from `states[first]` on one running generator.
+
+    Each start records whether its generator ended at the state predicted for the next start. With `trust`
+    False (the fallback of `split_starts`, from start 0) the starts are run as scikit-learn runs them and
+    marked as checked.
+    """
+    generator = copy.deepcopy(states[first])
+    done: list[Start] = []
+    for j in range(first, stop):
+        model = KMeans(n_clusters=k, n_init=1, random_state=generator)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            labels = model.fit_predict(space, sample_weight=weights)
+        done.append((labels, float(model.inertia_), not trust or _same_state(generator, states[j + 1])))
+    return done
+
+
+def _same_state(a: np.random.RandomState, b: np.random.RandomState) -> bool:
+    state_a, state_b = a.get_state(legacy=False), b.get_state(legacy=False)
+    return bool(state_a["state"]["pos"] == state_b["state"]["pos"]
+                and np.array_equal(state_a["state"]["key"], state_b["state"]["key"])
+                and state_a["has_gauss"] == state_b["has_gauss"])
+
+
+def _best_start(starts: list[Start], k: int) -> tuple[np.ndarray, float]:
+    """The start KMeans keeps: the first, replaced by each later one of lower inertia and another partition."""
+    best_labels, best_inertia, _ = starts[0]
+    for labels, inertia, _ in starts[1:]:
+        if inertia < best_inertia and not _same_partition(labels, best_labels, k):
+            best_labels, best_inertia = labels, inertia
+    return best_labels, best_inertia
+
+
+def _same_partition(labels: np.ndarray, best: np.ndarray, k: int) -> bool:
+    """scikit-learn's `_is_same_clustering`: every label of `labels` maps to one label of `best`."""
+    pairs = np.unique(labels.astype(np.int64) * k + best)
+    return bool(np.unique(pairs // k).size == pairs.size)
+
+
+def _one_openmp_thread() -> bool:
+    """Whether OpenMP (scikit-learn's k-means) runs one thread in this process."""
+    from threadpoolctl import threadpool_info
+
+    return all(pool["num_threads"] == 1 for pool in threadpool_info() if pool["user_api"] == "openmp")
+
+
+def _can_fork() -> bool:
+    return "fork" in multiprocessing.get_all_start_methods()
 
 
 MINIBATCH_ROWS = 4_096  # rows per mini-batch step

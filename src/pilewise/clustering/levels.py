@@ -87,15 +87,14 @@ def build_levels(
         block = space[begin : begin + ROW_BLOCK]
         block = normalize(block) if sp.issparse(block) else normalize(np.asarray(block, dtype=np.float64))
         similarity = np.asarray(block @ stacked.T)
+        leaves = _LeafGroups(tree.leaf_of_row[begin : begin + ROW_BLOCK])
         rows = np.arange(similarity.shape[0])
         for k, offset in zip(ks, offsets, strict=True):
             labels = cuts[k][begin : begin + ROW_BLOCK]
             distance = np.clip(1.0 - similarity[rows, offset + labels], 0.0, 2.0)
-            order = np.lexsort((rows, distance, labels))
-            present, first = np.unique(labels[order], return_index=True)
-            candidate = order[first]
-            better = distance[candidate] < best_distance[k][present]  # strict: ties keep the earlier row
-            best_distance[k][present[better]] = distance[candidate[better]]
+            present, candidate, candidate_distance = leaves.nearest(distance, labels)
+            better = candidate_distance < best_distance[k][present]  # strict: ties keep the earlier row
+            best_distance[k][present[better]] = candidate_distance[better]
             best_row[k][present[better]] = begin + candidate[better]
     run_k_of = int(run_labels.max()) + 1
     clusters: dict[int, tuple[LevelCluster, ...]] = {}
@@ -111,3 +110,30 @@ def build_levels(
     drawing = dendrogram_svg(tree, top=min(DENDROGRAM_LEAVES, tree.n_leaves), labels=leaf_names,
                              cut_k=run_k if run_k <= tree.n_leaves else None)
     return Levels(tree.method, k_min, k_max, cuts, clusters, splits, drawing)
+
+
+class _LeafGroups:
+    """A block's rows grouped by their leaf of the tree, in row order: every cut gives all rows of a leaf one
+    cluster, so a cluster's nearest row is the nearest of its leaves' nearest rows (k x leaves, not k x rows,
+    sorted)."""
+
+    def __init__(self, leaf_of_row: np.ndarray) -> None:
+        self.order = np.argsort(leaf_of_row, kind="stable")  # rows of one leaf together, earlier rows first
+        leaf = leaf_of_row[self.order]
+        self.starts = np.flatnonzero(np.r_[True, leaf[1:] != leaf[:-1]])
+        self.lengths = np.diff(np.r_[self.starts, leaf.size])
+        self.positions = np.arange(leaf.size)
+
+    def nearest(self, distance: np.ndarray, labels: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Per cluster present in `labels`: the cluster, its row of least distance (ties: the earlier row), that
+        distance."""
+        by_leaf = distance[self.order]
+        leaf_min = np.minimum.reduceat(by_leaf, self.starts)
+        at_min = by_leaf == np.repeat(leaf_min, self.lengths)
+        first = np.minimum.reduceat(np.where(at_min, self.positions, self.positions.size), self.starts)
+        leaf_row = self.order[first]  # each leaf's earliest row at its least distance
+        cluster = labels[leaf_row]
+        order = np.lexsort((leaf_row, leaf_min, cluster))
+        present, first_of = np.unique(cluster[order], return_index=True)
+        chosen = order[first_of]
+        return present, leaf_row[chosen], leaf_min[chosen]

@@ -27,16 +27,17 @@ def _dense(space: np.ndarray | sp.csr_matrix) -> np.ndarray:
 
 def _cluster_at(
     space: np.ndarray | sp.csr_matrix, weights: np.ndarray, k: int, tree: Tree | None, *, seed: int, starts: int,
-    streamed: bool = False, reporter: Reporter | None = None,
+    streamed: bool = False, reporter: Reporter | None = None, workers: int = 1,
 ) -> Clustering:
-    """One clustering at k: a cut of the Ward tree, mini-batch k-means (streamed), or k-means."""
+    """One clustering at k: a cut of the Ward tree, mini-batch k-means (streamed), or k-means (its starts on
+    two processes with `workers` > 1, the same clustering)."""
     if tree is not None:
         return clustering_from_labels(space, weights, cut_tree(tree, k), k=k)
     if streamed:
         track = (lambda steps, total: reporter.track(steps, total=total, label="mini-batches", unit="batch")) \
             if reporter is not None else None
         return minibatch_clusters(space, weights, k=k, seed=seed, track=track)
-    return kmeans_clusters(space, weights, k=k, seed=seed, n_init=starts)
+    return kmeans_clusters(space, weights, k=k, seed=seed, n_init=starts, workers=workers)
 
 
 def _stability_fn(method: str, k: int, cache: dict[int, Tree] | None = None) -> ClusterFn:

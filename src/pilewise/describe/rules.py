@@ -260,12 +260,16 @@ def _ranked_columns(df_in: np.ndarray, sizes: np.ndarray, total: float, top: int
     ranks, columns, order_in_rank = [], [], []
     for c in range(sizes.size):
         size, rest = sizes[c], total - sizes[c]
-        df_c = by_class[c]
-        df_out = df_all - df_c
+        # only columns present in the class can be over-represented in it (df_out = df_all there, so
+        # `over` fails); the scores of the others are never read, and elementwise arithmetic on the rest
+        # gives the same numbers as on all columns
+        held = np.flatnonzero(by_class[c] > 0)
+        df_c = by_class[c][held]
+        df_out = df_all[held] - df_c
         scores = chi_square_2x2(df_c, df_out, size - df_c, rest - df_out)
         over = df_c * rest > df_out * size  # share in the class above the share outside
         candidates = np.flatnonzero(over & (scores > 0))
-        best = best_first(candidates, scores, top)
+        best = held[best_first(candidates, scores, top)]  # `held` ascends: ties still go to the lower column
         ranks.append(np.arange(best.size))
         columns.append(best)
         order_in_rank.append(np.full(best.size, c))

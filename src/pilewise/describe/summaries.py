@@ -333,16 +333,20 @@ def _chi2_terms(
     df_in: np.ndarray, df_all: np.ndarray, size: float, total: float,
     shown: Sequence[str], keys: Sequence[str], top: int,
 ) -> tuple[TermScore, ...]:
-    df_out = df_all - df_in
+    # only terms held in the cluster can score (an absent term's share in it, 0, is never above its share
+    # outside); elementwise arithmetic on the held ones gives the same numbers as on all terms
+    held = np.flatnonzero(df_in > 0)
+    df_in = df_in[held]
+    df_out = df_all[held] - df_in
     rest = total - size
     scores = chi_square_2x2(df_in, df_out, size - df_in, rest - df_out)
     share_in = df_in / size
     share_out = df_out / rest if rest > 0 else np.zeros_like(df_out)
     over = share_in > share_out
     candidates = np.flatnonzero(over & (scores > 0))
-    ranked = best_first(candidates, scores, top)
+    ranked = best_first(candidates, scores, top)  # positions in `held`, which ascends: ties by the lower term
     return tuple(
-        TermScore(shown[i], keys[i], float(scores[i]), int(round(df_in[i])), int(round(df_out[i])),
+        TermScore(shown[held[i]], keys[held[i]], float(scores[i]), int(round(df_in[i])), int(round(df_out[i])),
                   float(share_in[i]), float(share_out[i]))
         for i in ranked
     )
