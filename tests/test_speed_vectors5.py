@@ -9,6 +9,8 @@ import random
 
 import numpy as np
 import pytest
+import scipy.sparse as sp
+from sklearn.preprocessing import normalize
 
 from pilewise.vectors import tfidf
 from pilewise.vectors.text import Analyzer, load_stop_words
@@ -98,3 +100,32 @@ def test_phrases_in_space_give_the_same_vectors_with_workers(small_fit: None) ->
     settings = tfidf.VectorSettings(lsa_components=10, bigrams_in_space=True)
     _equal(tfidf.vectorize(texts, _analyzer(), settings, workers=1),
            tfidf.vectorize(texts, _analyzer(), settings, workers=2))
+
+
+def _tfidf_rows_before(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
+    """The replaced `tfidf_rows`: new arrays for every step, sklearn's normalize on a copy."""
+    weighted = sp.csr_matrix(counts, dtype=np.float64, copy=True)
+    weighted.data = (1.0 + np.log(weighted.data)) * idf[weighted.indices]
+    return sp.csr_matrix(normalize(weighted))
+
+
+@pytest.mark.parametrize("entries", [1, 7, 1 << 20])
+def test_tfidf_rows_in_place_equals_the_replaced_steps(monkeypatch: pytest.MonkeyPatch, entries: int) -> None:
+    monkeypatch.setattr(tfidf, "WEIGH_ENTRIES", entries)  # idf gathered in several pieces, or at once
+    rng = np.random.default_rng(5)
+    counts = sp.random(60, 40, density=0.2, format="csr", random_state=rng, dtype=np.float64)
+    counts.data = rng.integers(1, 50, counts.data.size).astype(np.int32)
+    counts.data[counts.indptr[3] : counts.indptr[4]] = 0  # a text without terms keeps an empty row
+    counts.eliminate_zeros()
+    counts = sp.csr_matrix(counts, dtype=np.int32)
+    original = counts.copy()
+    idf = tfidf.smooth_idf(rng.integers(1, 60, 40), 60)
+    before, after = _tfidf_rows_before(counts, idf), tfidf.tfidf_rows(counts, idf)
+    for part in ("data", "indices", "indptr"):
+        assert np.array_equal(getattr(before, part), getattr(after, part))  # bit for bit (numpy array_equal)
+    assert np.array_equal(counts.data, original.data) and np.array_equal(counts.indices, original.indices)
+    expected = counts.toarray().astype(float)  # scikit-learn's TfidfTransformer weighting, computed densely
+    expected[expected > 0] = 1 + np.log(expected[expected > 0])
+    expected *= idf
+    norms = np.linalg.norm(expected, axis=1, keepdims=True)
+    np.testing.assert_allclose(after.toarray(), np.divide(expected, norms, where=norms > 0, out=expected * 0))

@@ -144,12 +144,25 @@ def document_frequency(counts: sp.csr_matrix, copies: np.ndarray | None = None) 
     return np.bincount(counts.indices, weights=row_weights, minlength=counts.shape[1])
 
 
+WEIGH_ENTRIES = 1 << 20  # stored entries whose idf is gathered at once in `tfidf_rows` (8 MB of float64)
+
+
 def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
     """L2-normalized sublinear TF-IDF rows, as `tfidf_weights`, with a given
-    idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection)."""
+    idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection).
+
+    The weights are computed in place in the one float64 copy of `counts`, the idf gathered WEIGH_ENTRIES
+    entries at a time, and the rows normalized in place: the same operations in the same order as
+    `(1 + log(tf)) * idf[column]` and sklearn's `normalize`, so the same values, without four temporaries
+    of the copy's size (at 50,000 texts, 5.4 M entries: 43 MB each; the peak of the describing stage).
+    """
     weighted = sp.csr_matrix(counts, dtype=np.float64, copy=True)
-    weighted.data = (1.0 + np.log(weighted.data)) * idf[weighted.indices]
-    return sp.csr_matrix(normalize(weighted))
+    data, indices = weighted.data, weighted.indices
+    np.log(data, out=data)
+    data += 1.0
+    for begin in range(0, data.size, WEIGH_ENTRIES):
+        data[begin : begin + WEIGH_ENTRIES] *= idf[indices[begin : begin + WEIGH_ENTRIES]]
+    return sp.csr_matrix(normalize(weighted, copy=False))
 
 
 def with_phrases(terms: list[str]) -> list[str]:
