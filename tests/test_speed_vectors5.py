@@ -77,11 +77,18 @@ def _die() -> None:
     os._exit(3)  # the worker dies as under the out-of-memory killer
 
 
-def test_dead_fit_worker_leaves_the_fit_to_this_process(small_fit: None, monkeypatch: pytest.MonkeyPatch) -> None:
+def _fail() -> None:
+    raise MemoryError("the worker's own allocation failed")
+
+
+@pytest.mark.parametrize("worker", [_die, _fail])
+def test_dead_fit_worker_leaves_the_fit_to_this_process(
+    small_fit: None, monkeypatch: pytest.MonkeyPatch, worker: object
+) -> None:
     texts = _texts(700, seed=1)
     settings = tfidf.VectorSettings(lsa_components=15, seed=0)
     in_place = tfidf.vectorize(texts, _analyzer(), settings, workers=1)
-    monkeypatch.setattr(tfidf, "_fit_words", _die)
+    monkeypatch.setattr(tfidf, "_fit_words", worker)
     _equal(in_place, tfidf.vectorize(texts, _analyzer(), settings, workers=2))
 
 

@@ -18,7 +18,6 @@ from array import array
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
-from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 
 import numpy as np
@@ -154,7 +153,7 @@ def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
     The weights are computed in place in the one float64 copy of `counts`, the idf gathered WEIGH_ENTRIES
     entries at a time, and the rows normalized in place: the same operations in the same order as
     `(1 + log(tf)) * idf[column]` and sklearn's `normalize`, so the same values, without four temporaries
-    of the copy's size (at 50,000 texts, 5.4 M entries: 43 MB each; the peak of the describing stage).
+    of the copy's size (at 50,000 texts, 5.4 M entries: 43 MB each; it was the describing stage's peak).
     """
     weighted = sp.csr_matrix(counts, dtype=np.float64, copy=True)
     data, indices = weighted.data, weighted.indices
@@ -579,10 +578,11 @@ class FitBeside:
             _fit_inputs = None
 
     def fitted(self) -> TruncatedSVD | None:
-        """The fitted model, or None when the worker died."""
+        """The fitted model, or None when the worker died or failed (the caller then fits in place, where a
+        real failure shows itself again)."""
         try:
             return self.future.result()
-        except BrokenProcessPool:
+        except Exception:  # BrokenProcessPool (a dead worker) or the fit's own error
             return None
         finally:
             self.close()
@@ -611,8 +611,8 @@ def weigh_and_reduce(
     projection (U times Sigma) is the space; otherwise it is fitted on a seeded sample of at most `fit_rows`
     rows and every row is projected block by block (`block_rows` rows at a time, `track` showing the blocks),
     so that the TF-IDF of the whole collection is never held at once. Projected rows are L2-normalized and
-    stored as `space_dtype`. `beside` is the same sampled fit started in a worker (`_counted`); where it
-    fitted other columns or died, the fit is done here.
+    stored as `space_dtype`. `beside` is the same sampled fit started in a worker (`_counted`); where its
+    worker died, the fit is done here.
     """
     counts, n = kept.counts, kept.counts.shape[0]
     n_phrases = int(kept.is_phrase.sum())
