@@ -17,6 +17,7 @@ import multiprocessing
 from array import array
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -142,12 +143,25 @@ def document_frequency(counts: sp.csr_matrix, copies: np.ndarray | None = None) 
     return np.bincount(counts.indices, weights=row_weights, minlength=counts.shape[1])
 
 
+WEIGH_ENTRIES = 1 << 20  # stored entries whose idf is gathered at once in `tfidf_rows` (8 MB of float64)
+
+
 def tfidf_rows(counts: sp.csr_matrix, idf: np.ndarray) -> sp.csr_matrix:
     """L2-normalized sublinear TF-IDF rows, as `tfidf_weights`, with a given
-    idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection)."""
+    idf = ln((1 + n) / (1 + df)) + 1 (for blocks of rows of a larger collection).
+
+    The weights are computed in place in the one float64 copy of `counts`, the idf gathered WEIGH_ENTRIES
+    entries at a time, and the rows normalized in place: the same operations in the same order as
+    `(1 + log(tf)) * idf[column]` and sklearn's `normalize`, so the same values, without four temporaries
+    of the copy's size (at 50,000 texts, 5.4 M entries: 43 MB each; it was the describing stage's peak).
+    """
     weighted = sp.csr_matrix(counts, dtype=np.float64, copy=True)
-    weighted.data = (1.0 + np.log(weighted.data)) * idf[weighted.indices]
-    return sp.csr_matrix(normalize(weighted))
+    data, indices = weighted.data, weighted.indices
+    np.log(data, out=data)
+    data += 1.0
+    for begin in range(0, data.size, WEIGH_ENTRIES):
+        data[begin : begin + WEIGH_ENTRIES] *= idf[indices[begin : begin + WEIGH_ENTRIES]]
+    return sp.csr_matrix(normalize(weighted, copy=False))
 
 
 def with_phrases(terms: list[str]) -> list[str]:
@@ -167,7 +181,8 @@ PAIR_BLOCK_TEXTS = 20_000  # texts whose adjacent pairs are sorted at once (boun
 
 
 def count_terms(
-    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None, workers: int = 1
+    texts: Iterable[str], analyzer: Analyzer, min_df: float = 1, copies: np.ndarray | None = None, workers: int = 1,
+    on_words: Callable[[sp.csr_matrix, list[str]], None] | None = None,
 ) -> tuple[sp.csr_matrix, list[str], sp.csr_matrix, np.ndarray]:
     """Word counts and adjacent-word-pair counts of every text, with integer ids instead of strings.
 
@@ -179,13 +194,16 @@ def count_terms(
     dictionaries. Pairs with a word in fewer than `min_df` documents are left out: a pair is never in more
     documents than either of its words. Documents are counted with `copies` (documents per text; default
     one), as `document_frequency`. `workers` > 1 tokenizes a large sequence of texts in that many forked
-    processes (the result is the same).
+    processes (the result is the same). `on_words(words, terms)` is called once the word matrix is made,
+    before the pairs are counted (`exact_counts` starts the LSA fit there).
     """
     word_ids, bounds, terms, joined = _term_ids(texts, analyzer, workers)
     n_texts, n_words = bounds.size - 1, max(len(terms), 1)
     words = sp.csr_matrix((np.ones(word_ids.size, dtype=np.int32), word_ids.copy(), bounds.copy()),
                           shape=(n_texts, n_words))
     words.sum_duplicates()
+    if on_words is not None:
+        on_words(words, terms)
     weight = np.ones(n_texts) if copies is None else np.asarray(copies, dtype=np.float64)
     frequent = document_frequency(words, weight) >= min_df
     # distinct (pair, text) entries with their counts, block by block of texts, sorted by pair code; each
@@ -436,11 +454,59 @@ def exact_counts(
     Phrases are pairs of adjacent kept words; at most MAX_PHRASES of them are kept, the most widespread
     first. `copies` (n_texts,) says how many documents each text stands for.
     """
+    return _counted(texts, analyzer, settings, copies, track, workers)[0]
+
+
+def _counted(
+    texts: Sequence[str],
+    analyzer: Analyzer,
+    settings: VectorSettings,
+    copies: np.ndarray,
+    track: Callable[[Iterable[str]], Iterable[str]] | None = None,
+    workers: int = 1,
+    fit_rows: int | None = None,
+) -> tuple[TermCounts, FitBeside | None]:
+    """`exact_counts`, and with `fit_rows` (a sampled LSA fit) where `fit_beside` allows it, the fit of the
+    single words' sample started in a forked worker while this process counts the phrases."""
+    n_documents = float(copies.sum())
+    beside: list[FitBeside] = []
+
+    def start_fit(words: sp.csr_matrix, word_terms: list[str]) -> None:
+        # the words' limits and columns as `_kept_terms` finds them (they depend on the words only)
+        low, high = term_limits(settings, n_documents, median_content_words(words))
+        keep = within_limits(document_frequency(words, copies), low, high, n_documents)
+        if keep.size and fit_rows is not None:
+            columns = keep[alphabetical([word_terms[i] for i in keep])]
+            beside.append(FitBeside(words, keep, columns, copies, n_documents, settings, fit_rows))
+
+    early = start_fit if fit_rows is not None and fit_beside(len(texts), settings, workers) else None
+    try:
+        kept, keep_words = _kept_terms(texts, analyzer, settings, copies, track, workers, early)
+    except BaseException:
+        for started in beside:
+            started.close()
+        raise
+    if beside and not np.array_equal(beside[0].keep, keep_words):  # cannot differ (the same steps); never trusted
+        beside.pop().close()
+    return kept, (beside[0] if beside else None)
+
+
+def _kept_terms(
+    texts: Sequence[str],
+    analyzer: Analyzer,
+    settings: VectorSettings,
+    copies: np.ndarray,
+    track: Callable[[Iterable[str]], Iterable[str]] | None,
+    workers: int,
+    on_words: Callable[[sp.csr_matrix, list[str]], None] | None,
+) -> tuple[TermCounts, np.ndarray]:
+    """The body of `exact_counts`, with the kept words' ids (`on_words` as in `count_terms`)."""
     n_documents = float(copies.sum())
     min_df, max_df = term_limits(settings, n_documents)  # the floor: the length of the texts can only raise it
     parallel = workers > 1 and len(texts) >= PARALLEL_MIN_TEXTS  # worker processes need the sequence, not a bar
     words, word_terms, pairs, pair_words = count_terms(
-        track(texts) if track and not parallel else texts, analyzer, min_df, copies, workers=workers)
+        track(texts) if track and not parallel else texts, analyzer, min_df, copies, workers=workers,
+        on_words=on_words)
     min_df, max_df = term_limits(settings, n_documents, median_content_words(words))
     df_words, df_pairs = document_frequency(words, copies), document_frequency(pairs, copies)
     keep_words = within_limits(df_words, min_df, max_df, n_documents)
@@ -460,7 +526,70 @@ def exact_counts(
         is_phrase=np.fromiter((" " in t for t in terms), dtype=bool, count=len(terms)),
         df=np.concatenate([df_words[keep_words], df_pairs[keep_pairs]])[order], n_documents=n_documents,
         min_df=min_df, max_df=max_df, facts={"phrases_within_df": phrases_within_df},
-    )
+    ), keep_words
+
+
+# The LSA fit of a sample needs only the single words' columns (phrases are not in the space by default), so
+# with a second core it runs in one forked worker while this process counts the phrases and orders the columns
+# (at 50,000 texts a 2.5 s fit beside 1.4 s of phrase counting). The same matrix, sample and seed: the same fit.
+_fit_inputs: tuple[sp.csr_matrix, np.ndarray, np.ndarray, float, VectorSettings, int] | None = None
+
+
+def fit_beside(n_texts: int, settings: VectorSettings, workers: int) -> bool:
+    """Whether the sampled LSA fit runs in a forked worker while the phrases are counted: with a second core,
+    more than LSA_FIT_ROWS texts (a sampled fit), LSA on, and phrases not in the space."""
+    return (workers > 1 and n_texts > LSA_FIT_ROWS and settings.lsa_components > 0
+            and not settings.bigrams_in_space and "fork" in multiprocessing.get_all_start_methods())
+
+
+def lsa_sample(n_rows: int, fit_rows: int, seed: int) -> np.ndarray:
+    """The rows (sorted) of the seeded sample that LSA is fitted on."""
+    return np.sort(np.random.default_rng(seed).choice(n_rows, min(n_rows, fit_rows), replace=False))
+
+
+def _fit_words() -> TruncatedSVD | None:
+    """In the worker: the space's columns of the sample's rows, weighted as `weigh_and_reduce` weights them."""
+    assert _fit_inputs is not None
+    words, columns, copies, n_documents, settings, fit_rows = _fit_inputs
+    n = words.shape[0]
+    components = lsa_size(settings, n, int(columns.size))
+    if components < 2:
+        return None
+    sample = lsa_sample(n, fit_rows, settings.seed)
+    idf = smooth_idf(document_frequency(words, copies)[columns], n_documents)
+    svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
+    return svd.fit(tfidf_rows(words[sample][:, columns], idf))
+
+
+class FitBeside:
+    """The LSA fit of a sample of the single words' columns, in one forked worker (it inherits the word
+    matrix at the fork; only the fitted model comes back pickled). `fitted()` waits for it; a worker that
+    died gives None, and the caller fits in place."""
+
+    def __init__(self, words: sp.csr_matrix, keep: np.ndarray, columns: np.ndarray, copies: np.ndarray,
+                 n_documents: float, settings: VectorSettings, fit_rows: int) -> None:
+        global _fit_inputs
+        self.keep = keep  # the kept words (by word id) that `columns` orders alphabetically
+        _fit_inputs = (words, columns, copies, n_documents, settings, fit_rows)
+        try:  # the worker is forked at the submit and inherits the inputs
+            self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
+            self.future = self.executor.submit(_fit_words)
+        finally:
+            _fit_inputs = None
+
+    def fitted(self) -> TruncatedSVD | None:
+        """The fitted model, or None when the worker died or failed (the caller then fits in place, where a
+        real failure shows itself again)."""
+        try:
+            return self.future.result()
+        except Exception:  # BrokenProcessPool (a dead worker) or the fit's own error
+            return None
+        finally:
+            self.close()
+
+    def close(self) -> None:
+        """Let the worker go (a fit not yet taken is dropped)."""
+        self.executor.shutdown(wait=False, cancel_futures=True)
 
 
 def weigh_and_reduce(
@@ -472,6 +601,7 @@ def weigh_and_reduce(
     space_dtype: type = np.float64,
     say: Callable[[str], None] | None = None,
     track: Callable[[range], Iterable[int]] | None = None,
+    beside: FitBeside | None = None,
 ) -> Vectorized:
     """The one weighting and reduction step of both modes: sublinear TF-IDF, then LSA.
 
@@ -481,7 +611,8 @@ def weigh_and_reduce(
     projection (U times Sigma) is the space; otherwise it is fitted on a seeded sample of at most `fit_rows`
     rows and every row is projected block by block (`block_rows` rows at a time, `track` showing the blocks),
     so that the TF-IDF of the whole collection is never held at once. Projected rows are L2-normalized and
-    stored as `space_dtype`.
+    stored as `space_dtype`. `beside` is the same sampled fit started in a worker (`_counted`); where its
+    worker died, the fit is done here.
     """
     counts, n = kept.counts, kept.counts.shape[0]
     n_phrases = int(kept.is_phrase.sum())
@@ -516,8 +647,12 @@ def weigh_and_reduce(
     if fit_rows is None:
         space = normalize(svd.fit_transform(tfidf_rows(in_space, idf))).astype(space_dtype, copy=False)
     else:
-        sample = np.sort(np.random.default_rng(settings.seed).choice(n, min(n, fit_rows), replace=False))
-        svd.fit(tfidf_rows(in_space[sample], idf))
+        sample = lsa_sample(n, fit_rows, settings.seed)
+        fitted = beside.fitted() if beside is not None else None
+        if fitted is not None and fitted.n_components == components:
+            svd = fitted
+        else:
+            svd.fit(tfidf_rows(in_space[sample], idf))
         space = np.empty((n, components), dtype=space_dtype)
         starts = range(0, n, block_rows)
         for start in track(starts) if track else starts:
@@ -553,7 +688,12 @@ def vectorize(
     weight = np.ones(n) if copies is None else np.asarray(copies, dtype=np.float64)
     if weight.shape != (n,) or np.any(weight < 1):
         raise ValueError(f"copies must hold one count of at least 1 per text ({n}), got shape {weight.shape}")
-    kept = exact_counts(texts, analyzer, settings, weight, track=track, workers=workers)
     # above LSA_FIT_ROWS texts LSA is fitted on a sample, as in streaming mode: a third of the time at 50,000
     # texts, and NMI within the spread of seeds (docs/performance.md, "Issue 15")
-    return weigh_and_reduce(kept, settings, fit_rows=LSA_FIT_ROWS if n > LSA_FIT_ROWS else None, say=progress)
+    fit_rows = LSA_FIT_ROWS if n > LSA_FIT_ROWS else None
+    kept, beside = _counted(texts, analyzer, settings, weight, track=track, workers=workers, fit_rows=fit_rows)
+    try:
+        return weigh_and_reduce(kept, settings, fit_rows=fit_rows, say=progress, beside=beside)
+    finally:
+        if beside is not None:
+            beside.close()
