@@ -11,7 +11,7 @@ from typing import Any
 import pytest
 from tests.helpers import TOPICS, invoke, read, read_assignments, read_ingest_report
 
-pytestmark = pytest.mark.spark
+pytestmark = [pytest.mark.spark, pytest.mark.slow]  # a Spark run: over 10 s
 
 
 def _message(subject: str, body: str) -> EmailMessage:

@@ -18,7 +18,7 @@ from tests.helpers import assert_one_line_error, invoke
 
 import pilewise
 
-pytestmark = pytest.mark.spark
+pytestmark = [pytest.mark.spark, pytest.mark.slow]  # a Spark run: over 10 s
 
 
 def test_an_s3a_path_without_the_connector_is_one_line_naming_the_fix(spark: Any, tmp_path: Path) -> None:
