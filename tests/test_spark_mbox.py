@@ -4,15 +4,14 @@ split into one document per message, by the local reader's own code, as the othe
 from __future__ import annotations
 
 import mailbox
-import os
-import shutil
 from email.message import EmailMessage
 from pathlib import Path
+from typing import Any
 
 import pytest
 from tests.helpers import TOPICS, invoke, read, read_assignments, read_ingest_report
 
-pytestmark = [pytest.mark.spark, pytest.mark.slow]  # each starts Spark: over 10 s
+pytestmark = [pytest.mark.spark, pytest.mark.slow]  # a Spark run: over 10 s
 
 
 def _message(subject: str, body: str) -> EmailMessage:
@@ -23,11 +22,9 @@ def _message(subject: str, body: str) -> EmailMessage:
     return msg
 
 
-def test_spark_splits_mailboxes_into_messages_like_the_local_reader(tmp_path: Path) -> None:
+def test_spark_splits_mailboxes_into_messages_like_the_local_reader(
+        spark: Any, one_kmeans_start: None, tmp_path: Path) -> None:
     """Before: the spark engine skipped every .mbox file ("does not split mailboxes")."""
-    pytest.importorskip("pyspark")
-    if not os.environ.get("JAVA_HOME") and shutil.which("java") is None:
-        pytest.skip("Java 17 missing (apt-get install openjdk-17-jre-headless)")
     folder = tmp_path / "mail"
     folder.mkdir()
     box = mailbox.mbox(folder / "support.mbox")
@@ -46,7 +43,7 @@ def test_spark_splits_mailboxes_into_messages_like_the_local_reader(tmp_path: Pa
         b"From - Sun Jan 04 09:30:00 2026\nSubject: Mulch\nFrom: b@example.org\n\nWhich mulch and compost?\n")
     (folder / "note.txt").write_text("The oven and the whisk, flour and butter.\n", encoding="utf-8")
     local = read(folder)
-    result = invoke("run", str(folder), "--k", "3", "--engine", "spark", "--spark-master", "local[1]", "--quiet",
+    result = invoke("run", str(folder), "--k", "3", "--engine", "spark", "--quiet",
                     "--out", str(tmp_path / "out"))
     assert result.exit_code == 0, result.output
     run = Path(result.output.strip().splitlines()[-1]).parent

@@ -9,7 +9,6 @@ from typing import Any
 
 import pytest
 from tests.helpers import read
-from tests.test_spark_engine import spark  # noqa: F401 (the module's one local Spark session)
 
 from pilewise.ingest.reading import ReadLimits
 from pilewise.ingest.tables import ColumnChoice
@@ -17,7 +16,7 @@ from pilewise.ingest.tables import ColumnChoice
 pytestmark = pytest.mark.spark
 
 
-def test_nested_json_lines_read_on_spark_as_locally(spark: Any, tmp_path: Path) -> None:  # noqa: F811
+def test_nested_json_lines_read_on_spark_as_locally(spark: Any, tmp_path: Path) -> None:
     from pilewise.engines.spark_reading import read_on_spark
 
     records = [{"id": f"t{i}", "tags": ["pump", "ü"],
@@ -36,7 +35,7 @@ def test_nested_json_lines_read_on_spark_as_locally(spark: Any, tmp_path: Path) 
     assert any("guessed text column 'attributes.body'" in note for note in source.notes)
 
 
-def test_files_of_no_known_type_are_read_on_spark_as_locally(spark: Any, tmp_path: Path) -> None:  # noqa: F811
+def test_files_of_no_known_type_are_read_on_spark_as_locally(spark: Any, tmp_path: Path) -> None:
     from pilewise.engines.spark_reading import read_on_spark
 
     folder = tmp_path / "pile"

@@ -88,7 +88,8 @@ class SparkPrepared:
 def spark_source(options: RunOptions) -> str:
     """SOURCE as Spark reads it: a URL keeps its '//' (a Path folds it), a local path is made absolute."""
     text = str(options.source)
-    for scheme in ("hdfs:", "s3a:", "s3:", "gs:", "abfs:", "abfss:", "wasb:", "wasbs:", "viewfs:"):
+    for scheme in ("hdfs:", "s3a:", "s3:", "gs:", "abfs:", "abfss:", "wasb:", "wasbs:", "viewfs:",
+                   "webhdfs:", "swebhdfs:"):
         if text.startswith(scheme) and not text.startswith(scheme + "//"):
             return scheme + "//" + text[len(scheme):].lstrip("/")
     return text if is_url(text) else str(options.source.resolve())

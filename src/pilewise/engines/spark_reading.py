@@ -59,6 +59,7 @@ class SparkSource:
 def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
     """Read SOURCE on Spark as a table or as a folder of files, chosen by its name or its files' names."""
     check_file_system(spark, source)
+    check_reachable(spark, source)
     kind = _table_kind(source)
     if kind is not None:
         return _read_table(spark, source, kind, columns, limits)
@@ -95,6 +96,57 @@ def check_file_system(spark: Any, source: str) -> None:
             "to a local path") from None
 
 
+# Hadoop's IPC client retries a refused connection ipc.client.connect.max.retries (10) times, a second apart,
+# and a timed-out one 45 times (core-default.xml): the probe below asks once, so that a namenode that is not
+# there is one line within seconds; the reading itself keeps the configured retries
+PROBE_SETTINGS = {"ipc.client.connect.max.retries": "0", "ipc.client.connect.max.retries.on.timeouts": "0",
+                  "ipc.client.connect.timeout": "10000"}
+
+
+def check_reachable(spark: Any, source: str) -> None:
+    """One line naming the fix when SOURCE's file system server (an HDFS namenode, a WebHDFS endpoint) cannot be
+    reached: asked once on the driver, before Spark reads with its retries, which would take minutes and end in
+    a Java stack trace."""
+    scheme = urlparse(source).scheme.lower() if "://" in source else ""
+    if not scheme or scheme == "file":
+        return
+    context = spark.sparkContext
+    jvm = context._jvm
+    settings = jvm.org.apache.hadoop.conf.Configuration(context._jsc.hadoopConfiguration())
+    for key, value in PROBE_SETTINGS.items():
+        settings.set(key, value)
+    try:
+        system = jvm.org.apache.hadoop.fs.FileSystem.newInstance(jvm.java.net.URI(source), settings)
+        try:
+            system.exists(jvm.org.apache.hadoop.fs.Path(source))
+        finally:
+            system.close()
+    except Exception as err:  # Py4J wraps Hadoop's ConnectException, UnknownHostException, ...
+        cause = java_cause(err)
+        if not any(sign in cause for sign in UNREACHABLE):
+            return  # not a connection failure (permissions, a missing file): the reading says it in its words
+        server = urlparse(source).netloc or "the default file system"
+        raise PilewiseError(
+            f"Spark cannot reach {scheme}://{server} ({cause}); check the host and port in SOURCE and that the "
+            "namenode (or other server) is running and reachable from this machine") from None
+
+
+UNREACHABLE = ("ConnectException", "UnknownHostException", "NoRouteToHostException", "SocketTimeoutException",
+               "ConnectTimeoutException", "Connection refused")
+
+
+def java_cause(err: BaseException) -> str:
+    """The Java exception behind a Py4J error, shortened to its first clause ("java.net.ConnectException: Call
+    From a to b failed on connection exception"), instead of Py4J's "An error occurred while calling o41.csv"."""
+    lines = [line.strip() for line in str(err).splitlines() if line.strip()]
+    if not lines:
+        return type(err).__name__
+    if lines[0].startswith("An error occurred while calling") and len(lines) > 1:
+        lines = lines[1:]
+    first = lines[0].removeprefix(": ")
+    return first.split("; For more details see")[0][:300]
+
+
 def _table_kind(source: str) -> str | None:
     """"csv", "json" or "parquet" when SOURCE is a table file or a local folder of one kind of table parts."""
     suffix = posixpath.splitext(urlparse(source).path if "://" in source else source)[1].lower()
@@ -124,8 +176,8 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     try:
         frame = _load_table(spark, source, kind, choice)
     except Exception as err:  # Spark's analysis errors: a path that does not exist, a file it cannot parse
-        first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
-        raise PilewiseError(f"Spark could not read {source!r} ({first}); check the path and its format") from None
+        raise PilewiseError(f"Spark could not read {source!r} ({java_cause(err)}); check the path and its "
+                            "format") from None
     frame = flat_frame(frame)
     corrupt = "_corrupt_record" in frame.columns
     header = [c for c in frame.columns if c != "_corrupt_record"]
