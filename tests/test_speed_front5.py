@@ -174,19 +174,31 @@ def _write_footed_collection(path: Path) -> None:
             writer.writerow([f"t{i}", text])
 
 
+@pytest.mark.parametrize("early", [True, False])
 def test_detection_beside_grouping_with_boilerplate_equals_detection_in_place(
-        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    """prepare_collection with the detection worker forked before boilerplate stripping (workers 2) gives the
-    codes that detection after grouping gives in place (workers 1), and the same grouping."""
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch, early: bool) -> None:
+    """prepare_collection with the detection worker forked before reading (`early`: the texts are sent to it)
+    or after it (the texts inherited), and before boilerplate stripping either way (workers 2), gives the codes
+    that detection after grouping gives in place (workers 1), and the same grouping."""
     source = tmp_path / "footed.csv"
     _write_footed_collection(source)
     monkeypatch.setattr(pipeline, "CLASSIFY_PARALLEL_MIN", 10)
+    monkeypatch.setattr(pipeline, "DETECT_EARLY_BYTES", 1 if early else 10**9)
+    forks = []
+    beside = pipeline._Beside
+
+    def noted(jobs: dict[str, pipeline.Job], *, background: bool) -> pipeline._Beside:
+        forks.append(sorted(jobs))
+        return beside(jobs, background=background)
+
+    monkeypatch.setattr(pipeline, "_Beside", noted)
     results = {}
     for workers in (2, 1):
         options = RunOptions(source=source, k=3, out=tmp_path / f"site{workers}", seed=3, quiet=True,
                              workers=workers)
         results[workers] = pipeline.prepare_collection(options, Reporter(quiet=True), k_needed=3)
     beside, after = results[2], results[1]
+    assert forks == ([["model"]] if early else [["screen"]])  # workers 1 forks nothing
     assert after.boilerplate.lines  # the footer was found: the changed texts were sent to the worker
     footed = languages.detect_languages([doc.text for doc in after.ingested.documents]).count("en")
     stripped = sum(n for code, n in zip(after.text_languages, after.collection.copies.tolist(), strict=True)
@@ -195,3 +207,15 @@ def test_detection_beside_grouping_with_boilerplate_equals_detection_in_place(
     assert beside.text_languages == after.text_languages
     assert np.array_equal(beside.collection.first_doc_of_text, after.collection.first_doc_of_text)
     assert {"de", "es", "en"} <= set(after.text_languages)  # py3langid tells them apart (from memory)
+
+
+# Every white space of str.split (Python docs: Unicode White_Space and the ASCII separators \x1c-\x1f) and
+# unprintable characters that are not white space.
+_SPACES = st.sampled_from([" ", "  ", "\t", "\n", "\r\n", "\x0b", "\x0c", "\x1c", "\x1f", "\x85", "\xa0", "\u2028",
+                           "\u3000", "\x00", "\x7f", "a", "Wort", "é", "\u200b"])
+
+
+@settings(max_examples=300)
+@given(st.lists(_SPACES, max_size=30).map("".join))
+def test_distinct_key_equals_split_and_join(text: str) -> None:
+    assert dedup.distinct_key(text) == " ".join(text.split())

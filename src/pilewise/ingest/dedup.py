@@ -75,8 +75,9 @@ class NearDuplicates:
 def distinct_key(text: str) -> str:
     """What makes two texts exact duplicates: the same words after collapsing every run of whitespace.
 
-    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest)."""
-    return " ".join(text.split())
+    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest). It is
+    `collapse_space`, which returns most texts of one line as they are without splitting them."""
+    return collapse_space(text)
 
 
 def near_duplicate_groups(

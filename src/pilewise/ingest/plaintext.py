@@ -213,7 +213,7 @@ def first_line_title(text: str) -> str:
     return "(untitled)"
 
 
-_TITLE_HEAD = 8 * TITLE_CHARS  # characters of a text that `first_line_title` reads first
+_TITLE_HEAD = 2 * TITLE_CHARS  # characters of a text that `first_line_title` reads first (any number gives the same)
 
 
 def _title_of_line(line: str) -> str:

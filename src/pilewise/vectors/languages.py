@@ -222,6 +222,19 @@ def screen_ahead(texts: Sequence[str]) -> None:
         _model()
 
 
+# Input bytes taken as one text when guessing, before reading, whether a source holds CLASSIFY_PARALLEL_MIN
+# texts (pipeline.prepare_collection forks the detection worker then): 1 KB is long for messages and tickets.
+# A wrong guess either way costs little: a model loaded in vain on the idle core, or the worker forked after
+# reading.
+DETECT_EARLY_BYTES = 1024
+
+
+def load_model() -> None:
+    """Load the detection model into this process ahead of `detect_languages` (a worker does it while the
+    texts are still read)."""
+    _model()
+
+
 def screened_ahead(changed: Mapping[int, str]) -> tuple[list[str], list[bool]]:
     """The texts given to `screen_ahead` with `changed` (index -> new text) put in, and `looks_english` of
     each (the changed texts screened anew): `detect_languages(texts, english=...)` then gives the codes that
