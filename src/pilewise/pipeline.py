@@ -13,7 +13,7 @@ import time
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import Future, ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
-from contextlib import ExitStack
+from contextlib import ExitStack, suppress
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -66,9 +66,13 @@ from pilewise.output.writing import _claim_name, _work_folder, _write_atomically
 from pilewise.progress import Reporter
 from pilewise.vectors.languages import (
     CLASSIFY_PARALLEL_MIN,
+    DETECT_EARLY_BYTES,
     detect_languages,
     language_mix,
+    load_model,
     present_languages,
+    screen_ahead,
+    screened_ahead,
     shares,
 )
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
@@ -274,6 +278,11 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
         reporter.warn(f"reading {source.total_bytes / 1e6:,.0f} MB of input in memory (about 1 GB per 100,000 "
                       "short texts); on a collection this large, choose k on a sample of a few hundred thousand "
                       "texts and stream the full run with --mode stream --k N")
+    workers = options.workers or default_workers()
+    # The detection worker is forked before reading, while this process is small, and loads the model while
+    # the texts are read (the second core idles then); it is sent the distinct texts afterwards, or stopped.
+    detecting = _Beside({"model": (load_model, (), {})}, background=True).__enter__() \
+        if _detect_beside(source.total_bytes // DETECT_EARLY_BYTES, options.language, workers) else None
     with reporter.stage("reading"):
         documents = list(source.read(track=lambda paths: reporter.track(paths, total=len(paths),
                                                                           label="reading files")))
@@ -297,25 +306,39 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
             reporter.say(BOILERPLATE_OFF)
         collection = collect_distinct(ingested.documents)
         reporter.say(_reading_line(ingested, collection))
-    check_k(k_needed, int(collection.copies.size))
-    workers = options.workers or default_workers()
     with ExitStack() as beside_grouping:
+        if detecting is not None:
+            beside_grouping.push(detecting)
+        check_k(k_needed, int(collection.copies.size))
         with reporter.stage("grouping near-duplicates"):
             texts = [collection.documents[i].text for i in collection.first_doc_of_text]
+            # Languages are detected on the same distinct texts, in the worker forked before reading, while the
+            # grouping runs here (on two cores both take seconds at 50,000 texts). There every distinct text is
+            # detected; a text's code does not depend on the others, so the codes of the texts left are those
+            # that detection after grouping gives (as below CLASSIFY_PARALLEL_MIN texts, with --language or
+            # --workers 1). The worker screens the texts while boilerplate lines are found here; it is then sent
+            # the texts that stripping changed.
+            if detecting is not None and not _detect_beside(len(texts), options.language, workers):
+                detecting.__exit__()
+                detecting = None
+            if detecting is not None:
+                detecting.then("screen", (screen_ahead, (texts,), {}), in_place=(_nothing, (), {}))
+            elif _detect_beside(len(texts), options.language, workers):  # fewer bytes than texts were expected
+                detecting = beside_grouping.enter_context(
+                    _Beside({"screen": (screen_ahead, (texts,), {})}, background=True))
             boilerplate = find_boilerplate(texts) if options.boilerplate else NO_BOILERPLATE
             if boilerplate.lines:
                 stripped = strip_texts(texts, boilerplate)
+                changed = {i: new for i, (old, new) in enumerate(zip(texts, stripped.texts, strict=True))
+                           if new != old}
                 texts = stripped.texts
                 reporter.say(_boilerplate_line(boilerplate, stripped.lines_removed, stripped.texts_changed,
                                                stripped.lines_kept))
-            # Languages are detected on the same distinct texts, in a forked worker while the grouping runs
-            # here (on two cores both take seconds at 50,000 texts). There every distinct text is detected; a
-            # text's code does not depend on the others, so the codes of the texts left are those that detection
-            # after grouping gives (as below CLASSIFY_PARALLEL_MIN texts, with --language or --workers 1).
-            detecting = _Beside({"languages": (detect_languages, (texts, options.language), {})},
-                                background=True) if _detect_beside(len(texts), options.language, workers) else None
+            else:
+                changed = {}
             if detecting is not None:
-                beside_grouping.enter_context(detecting)
+                detecting.then("languages", (_detect_changed, (changed, options.language), {}),
+                               in_place=(detect_languages, (texts, options.language), {}))
             near = near_duplicate_groups(texts, threshold=options.near_duplicate, seed=options.seed,
                                          workers=workers) if options.near_duplicate < 1.0 else None
             left = near.representative if near is not None else np.arange(len(texts))
@@ -605,6 +628,16 @@ class _Beside:
         if self.executor is not None:
             self.executor.shutdown(wait=False, cancel_futures=True)
 
+    def then(self, name: str, job: Job, *, in_place: Job) -> None:
+        """One more job for the worker, after those it has; its arguments go to it pickled. It may use what the
+        earlier jobs left in the worker's memory, so `in_place` is what the calling process runs instead when
+        the worker is gone (or without `background`): the same result from its own inputs."""
+        self.jobs[name] = in_place
+        if self.executor is not None:
+            fn, args, kwargs = job
+            with suppress(BrokenProcessPool):  # a worker already gone: `result` runs `in_place`
+                self.futures[name] = self.executor.submit(fn, *args, **kwargs)
+
     def result(self, name: str) -> Any:
         fn, args, kwargs = self.jobs[name]
         if name in self.futures:
@@ -629,6 +662,17 @@ def _detect_beside(n_texts: int, forced: str | None, workers: int) -> bool:
     prepare_collection): with a second core, no --language, and as many texts as detection's own workers need."""
     return (workers > 1 and forced is None and n_texts >= CLASSIFY_PARALLEL_MIN
             and "fork" in multiprocessing.get_all_start_methods())
+
+
+def _nothing() -> None:
+    """The in-place form of a job that only prepares the worker's memory for a later one."""
+
+
+def _detect_changed(changed: dict[int, str], forced: str | None) -> tuple[str, ...]:
+    """Languages of the distinct texts after boilerplate stripping, in the worker that ran `screen_ahead` on
+    them before (see prepare_collection): only the texts in `changed` are screened again."""
+    texts, english = screened_ahead(changed)
+    return detect_languages(texts, forced, english=english)
 
 
 def redact_documents(ingested: Ingested) -> tuple[Ingested, dict[str, int]]:

@@ -23,6 +23,7 @@ from collections import Counter
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from functools import cached_property
+from typing import cast
 
 import numpy as np
 from scipy.stats import binom
@@ -74,8 +75,9 @@ class NearDuplicates:
 def distinct_key(text: str) -> str:
     """What makes two texts exact duplicates: the same words after collapsing every run of whitespace.
 
-    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest)."""
-    return " ".join(text.split())
+    Both preparation paths group documents by it (the streaming one by its BLAKE2b digest). It is
+    `collapse_space`, which returns most texts of one line as they are without splitting them."""
+    return collapse_space(text)
 
 
 def near_duplicate_groups(
@@ -155,8 +157,8 @@ def near_duplicate_groups(
     if n == 0:
         empty = np.zeros(0, dtype=np.int64)
         return NearDuplicates(empty, empty.copy(), empty.copy(), float(threshold))
-    hashes, offsets = shingle_hashes(texts, workers)
-    signatures = minhash_signatures(hashes, offsets, num_perm=num_perm, seed=seed)
+    hashes, offsets, signed = _shingled(texts, workers, (num_perm, seed))
+    signatures = cast("np.ndarray", signed)  # given, as (num_perm, seed) is
     bands, rows = lsh_bands(num_perm, threshold)
     codes = _candidate_codes(signatures, bands, rows)
     agreeing = _agreements(signatures, codes, n)
@@ -204,57 +206,84 @@ def shingle_hashes(texts: Sequence[str], workers: int = 1) -> tuple[np.ndarray, 
     offsets : ndarray of int64, shape (n_texts + 1,)
         Text i's shingles are ``hashes[offsets[i]:offsets[i + 1]]``; every text has at least one.
     """
-    parts: list[np.ndarray] = []
-    counts: list[np.ndarray] = []
-    for hashes, windows in _shingle_ranges(texts, workers):
+    hashes, offsets, _ = _shingled(texts, workers, None)
+    return hashes, offsets
+
+
+_PARALLEL_MIN_TEXTS = 40_000  # fewer texts are shingled in this process (a fork costs more than it saves)
+_RANGE_TEXTS = 4 * _BATCH_TEXTS  # texts per range in one process
+Minhash = tuple[int, int]  # (num_perm, seed) of `minhash_signatures`
+Shingled = tuple[np.ndarray, np.ndarray, np.ndarray | None]  # hashes, shingles per text, signatures
+_shared: tuple[Sequence[str], Minhash | None] | None = None  # what forked workers read (set before the fork)
+
+
+def _shingled(texts: Sequence[str], workers: int, minhash: Minhash | None) -> tuple[np.ndarray, np.ndarray,
+                                                                                   np.ndarray | None]:
+    """`shingle_hashes` of `texts`, with their `minhash_signatures` when `minhash` gives (num_perm, seed)."""
+    parts, counts, signed = [], [], []
+    for hashes, windows, signatures in _shingle_ranges(texts, workers, minhash):
         parts.append(hashes)
         counts.append(windows)
+        signed.append(signatures)
     offsets = np.zeros(len(texts) + 1, dtype=np.int64)
     if parts:
         np.cumsum(np.concatenate(counts), out=offsets[1:])
-    return (np.concatenate(parts) if parts else np.zeros(0, dtype=np.uint64)), offsets
+    hashes = np.concatenate(parts) if parts else np.zeros(0, dtype=np.uint64)
+    if minhash is None:
+        return hashes, offsets, None
+    if not signed:
+        return hashes, offsets, minhash_signatures(hashes, offsets, num_perm=minhash[0], seed=minhash[1])
+    return hashes, offsets, np.concatenate(cast("list[np.ndarray]", signed))
 
 
-_PARALLEL_MIN_TEXTS = 40_000  # fewer texts are shingled in this process (a pool costs more than it saves)
-_RANGE_TEXTS = 4 * _BATCH_TEXTS  # texts per worker task
-_shared_texts: Sequence[str] | None = None  # what forked workers read (set before the fork)
-
-
-def _shingle_ranges(texts: Sequence[str], workers: int) -> Iterator[tuple[np.ndarray, np.ndarray]]:
-    """`_range_shingles` of consecutive ranges of texts, in order; in forked worker processes when asked and
-    worth it. A shingle's hash depends only on its words, so every split gives the same hashes."""
-    global _shared_texts
-    ranges = [(b, min(b + _RANGE_TEXTS, len(texts))) for b in range(0, len(texts), _RANGE_TEXTS)]
-    if workers > 1 and len(texts) >= _PARALLEL_MIN_TEXTS and "fork" in multiprocessing.get_all_start_methods():
-        _shared_texts = texts
+def _shingle_ranges(texts: Sequence[str], workers: int, minhash: Minhash | None) -> Iterator[Shingled]:
+    """`_range_shingles` of consecutive ranges of texts, in order. With `workers` > 1 and enough texts, the
+    texts are cut into `workers` equal ranges: forked processes take all but the first, which this process
+    takes meanwhile (it would otherwise wait idle). A shingle's hash and a text's MinHash signature depend
+    only on the text's words, so every split gives the same hashes and signatures."""
+    global _shared
+    n = len(texts)
+    if workers > 1 and n >= _PARALLEL_MIN_TEXTS and "fork" in multiprocessing.get_all_start_methods():
+        cuts = np.linspace(0, n, workers + 1).round().astype(int).tolist()
+        ranges = list(itertools.pairwise(cuts))
+        _shared = (texts, minhash)
         try:
-            with multiprocessing.get_context("fork").Pool(min(workers, len(ranges))) as pool:
-                yield from pool.imap(_shared_range, ranges)
+            with multiprocessing.get_context("fork").Pool(workers - 1) as pool:
+                later = pool.map_async(_shared_range, ranges[1:])
+                _shared = None  # the workers are forked: this process keeps no reference for them
+                yield _range_shingles(texts, ranges[0], _Vocabulary(), minhash)
+                yield from later.get()
         finally:
-            _shared_texts = None
+            _shared = None
         return
     vocabulary = _Vocabulary()
-    for bounds in ranges:
-        yield _range_shingles(texts, bounds, vocabulary)
+    for begin in range(0, n, _RANGE_TEXTS):
+        yield _range_shingles(texts, (begin, min(begin + _RANGE_TEXTS, n)), vocabulary, minhash)
 
 
-def _shared_range(bounds: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
-    assert _shared_texts is not None
-    return _range_shingles(_shared_texts, bounds, _Vocabulary())
+def _shared_range(bounds: tuple[int, int]) -> Shingled:
+    assert _shared is not None
+    texts, minhash = _shared
+    return _range_shingles(texts, bounds, _Vocabulary(), minhash)
 
 
 def _range_shingles(
-    texts: Sequence[str], bounds: tuple[int, int], vocabulary: _Vocabulary
-) -> tuple[np.ndarray, np.ndarray]:
+    texts: Sequence[str], bounds: tuple[int, int], vocabulary: _Vocabulary, minhash: Minhash | None
+) -> Shingled:
     """Shingle hashes of texts[begin:end] and their number per text, in batches, so that the per-word
-    temporaries stay small next to the result."""
+    temporaries stay small next to the result; with the texts' MinHash signatures when `minhash` is given."""
     parts, counts = [], []
     for first in range(bounds[0], bounds[1], _BATCH_TEXTS):
         hashes, windows = _batch_shingles([texts[i] for i in range(first, min(first + _BATCH_TEXTS, bounds[1]))],
                                           vocabulary)
         parts.append(hashes)
         counts.append(windows)
-    return np.concatenate(parts), np.concatenate(counts)
+    hashes, windows = np.concatenate(parts), np.concatenate(counts)
+    if minhash is None:
+        return hashes, windows, None
+    offsets = np.zeros(windows.size + 1, dtype=np.int64)
+    np.cumsum(windows, out=offsets[1:])
+    return hashes, windows, minhash_signatures(hashes, offsets, num_perm=minhash[0], seed=minhash[1])
 
 
 def _batch_shingles(texts: Sequence[str], vocabulary: _Vocabulary) -> tuple[np.ndarray, np.ndarray]:

@@ -193,14 +193,35 @@ def _reads_as_cp1252_as_well(raw: bytes, detected: str) -> bool:
 
 def first_line_title(text: str) -> str:
     """The first non-empty line, cut at about TITLE_CHARS characters on a word boundary."""
+    # Most texts are long and their title is in their first few hundred characters: the lines of a head of the
+    # text are the text's lines, but for the last one, which may go on; its collapsed form is a prefix of the
+    # whole line's, so once it is longer than TITLE_CHARS the title is the same (tested against the whole text).
+    head = text[:_TITLE_HEAD]
+    if len(head) < len(text):
+        lines = head.splitlines()
+        for line in lines[:-1]:
+            line = " ".join(line.split())
+            if line:
+                return _title_of_line(line)
+        last = " ".join(lines[-1].split()) if lines else ""
+        if len(last) > TITLE_CHARS:
+            return _title_of_line(last)
     for line in text.splitlines():
         line = " ".join(line.split())
         if line:
-            if len(line) <= TITLE_CHARS:
-                return line
-            cut = line[:TITLE_CHARS].rsplit(" ", 1)[0]
-            return (cut if len(cut) > TITLE_CHARS // 2 else line[:TITLE_CHARS]) + "…"
+            return _title_of_line(line)
     return "(untitled)"
+
+
+_TITLE_HEAD = 2 * TITLE_CHARS  # characters of a text that `first_line_title` reads first (any number gives the same)
+
+
+def _title_of_line(line: str) -> str:
+    """A collapsed, non-empty line cut at about TITLE_CHARS characters on a word boundary."""
+    if len(line) <= TITLE_CHARS:
+        return line
+    cut = line[:TITLE_CHARS].rsplit(" ", 1)[0]
+    return (cut if len(cut) > TITLE_CHARS // 2 else line[:TITLE_CHARS]) + "…"
 
 
 # A character then a backspace: terminal overstrike, as man and nroff write bold ("N\bN") and underline

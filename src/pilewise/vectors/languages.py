@@ -16,7 +16,7 @@ import multiprocessing
 import re
 import unicodedata
 from collections import Counter
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from functools import cache
 from typing import TYPE_CHECKING, Any
@@ -177,17 +177,21 @@ def _confident(code: str, probability: float) -> str:
     return str(code) if probability >= MIN_CONFIDENCE else UNDETERMINED
 
 
-def detect_languages(texts: Sequence[str], forced: str | None = None, workers: int = 1) -> tuple[str, ...]:
+def detect_languages(texts: Sequence[str], forced: str | None = None, workers: int = 1, *,
+                     english: Sequence[bool] | None = None) -> tuple[str, ...]:
     """The language of every text (`forced`, from --language, for all when given).
 
     Texts that `looks_english` are English without the model. When every other text is short and in ASCII
     letters, those are "und" and the model is never loaded: a plain English pile runs as fast as before
     languages were detected. Otherwise every other text goes to the model, all at once (`classify_many`, in
-    `workers` processes when there are many; the codes of `detect_language` one by one).
+    `workers` processes when there are many; the codes of `detect_language` one by one). `english`, when
+    given, is `looks_english` of every text's first DETECT_CHARS characters, found beforehand (`screen_ahead`).
     """
     if forced is not None:
         return (forced,) * len(texts)
-    codes = ["en" if looks_english(text[:DETECT_CHARS]) else "" for text in texts]
+    if english is None:
+        english = [looks_english(text[:DETECT_CHARS]) for text in texts]
+    codes = ["en" if is_english else "" for is_english in english]
     rest = [i for i, code in enumerate(codes) if not code]
     if all(_short_and_plain(texts[i][:DETECT_CHARS]) for i in rest):
         return tuple(code or UNDETERMINED for code in codes)
@@ -200,6 +204,50 @@ def detect_languages(texts: Sequence[str], forced: str | None = None, workers: i
     for i, code in zip(asked, classify_many([texts[i][:DETECT_CHARS] for i in asked], workers), strict=True):
         codes[i] = code
     return tuple(codes)
+
+
+_ahead: tuple[list[str], list[bool]] | None = None  # texts and their `looks_english`, from `screen_ahead`
+
+
+def screen_ahead(texts: Sequence[str]) -> None:
+    """The part of `detect_languages` that can run before the texts are final, kept in this process for
+    `screened_ahead`: `looks_english` of every text, and the model loaded when any other text is not short
+    and plain (as `detect_languages` would). A worker forked before boilerplate lines are stripped does it
+    while they are found; most texts lose none, and only those that do are screened again."""
+    global _ahead
+    english = [looks_english(text[:DETECT_CHARS]) for text in texts]
+    _ahead = (list(texts), english)
+    rest = (text for text, is_english in zip(texts, english, strict=True) if not is_english)
+    if not all(_short_and_plain(text[:DETECT_CHARS]) for text in rest):
+        _model()
+
+
+# Input bytes taken as one text when guessing, before reading, whether a source holds CLASSIFY_PARALLEL_MIN
+# texts (pipeline.prepare_collection forks the detection worker then): 1 KB is long for messages and tickets.
+# A wrong guess either way costs little: a model loaded in vain on the idle core, or the worker forked after
+# reading.
+DETECT_EARLY_BYTES = 1024
+
+
+def load_model() -> None:
+    """Load the detection model into this process ahead of `detect_languages` (a worker does it while the
+    texts are still read)."""
+    _model()
+
+
+def screened_ahead(changed: Mapping[int, str]) -> tuple[list[str], list[bool]]:
+    """The texts given to `screen_ahead` with `changed` (index -> new text) put in, and `looks_english` of
+    each (the changed texts screened anew): `detect_languages(texts, english=...)` then gives the codes that
+    it gives on these texts alone."""
+    global _ahead
+    if _ahead is None:
+        raise RuntimeError("screened_ahead needs screen_ahead first, in the same process")
+    texts, english = _ahead
+    _ahead = None
+    for i, text in changed.items():
+        texts[i] = text
+        english[i] = looks_english(text[:DETECT_CHARS])
+    return texts, english
 
 
 # What the batched path reads of py3langid's identifier (its 0.4 layout: one feature per automaton state)
