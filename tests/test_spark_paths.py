@@ -88,8 +88,9 @@ def test_executors_whose_python_lacks_the_libraries_are_one_line_naming_pyspark_
     for i in range(4):
         (tmp_path / "notes" / f"{i}.txt").write_text(f"note {i} on soil and compost\n", encoding="utf-8")
     env = {**os.environ, "PYSPARK_PYTHON": str(bare),
-           "PYTHONPATH": os.pathsep.join(filter(None, [str(Path(pilewise.__file__).parents[1]),
-                                                       os.environ.get("PYTHONPATH")]))}
+           # the package's copy alone: an installed pilewise's parent folder is site-packages, which would hand the
+           # executors numpy and all (CI's non-editable install); the driver has its libraries in its own site-packages
+           "PYTHONPATH": os.pathsep.join(filter(None, [str(shipped), os.environ.get("PYTHONPATH")]))}
     done = subprocess.run([sys.executable, "-m", "pilewise.cli", "run", str(tmp_path / "notes"), "--k", "2",
                            "--engine", "spark", "--spark-master", "local[1]", "--out", str(tmp_path / "out")],
                           capture_output=True, text=True, env=env, timeout=300, check=False)
