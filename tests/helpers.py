@@ -111,3 +111,21 @@ def read_clusters(run: Path) -> Any:
 def read_manifest(run: Path) -> Any:
     """The run folder's manifest.json."""
     return read_json(run / "manifest.json")
+
+
+def planted_notes_csv(path: Path, *, per_topic: int, seed: int) -> dict[str, str]:
+    """Three invented topics (TOPICS), 60 % topic words among shared background words, as an id,title,body CSV;
+    returns id -> topic. Shared by the Spark tests that compare a run's clusters with the planted topics."""
+    rng = random.Random(seed)
+    background = ["today", "later", "often", "small", "large", "quick", "plain", "usual", "again", "around"]
+    truth: dict[str, str] = {}
+    with path.open("w", encoding="utf-8", newline="") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["id", "title", "body"])
+        for topic, words in TOPICS.items():
+            for i in range(per_topic):
+                body = " ".join(rng.choice(words if rng.random() < 0.6 else background) for _ in range(40))
+                doc_id = f"{topic[:2]}{i:03d}"
+                writer.writerow([doc_id, f"Note {i} on {topic}", body])
+                truth[doc_id] = topic
+    return truth

@@ -9,9 +9,7 @@ The cluster is started once for the module, within a bounded time, and always st
 
 from __future__ import annotations
 
-import csv
 import os
-import random
 import shutil
 import socket
 import subprocess
@@ -23,7 +21,7 @@ from pathlib import Path
 
 import pytest
 from sklearn.metrics import adjusted_rand_score
-from tests.helpers import TOPICS, invoke, read_assignments, read_clusters, read_ingest_report
+from tests.helpers import invoke, planted_notes_csv, read_assignments, read_clusters, read_ingest_report
 
 import pilewise
 from pilewise.output.exports import describe_file
@@ -127,23 +125,6 @@ def cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[StandaloneClus
                 process.wait(timeout=10)
 
 
-def _planted_csv(path: Path, per_topic: int = 40, seed: int = 3) -> dict[str, str]:
-    """Three invented topics (helpers.TOPICS) with shared background words, as a CSV; returns id -> topic."""
-    rng = random.Random(seed)
-    background = ["today", "later", "often", "small", "large", "quick", "plain", "usual", "again", "around"]
-    truth: dict[str, str] = {}
-    with path.open("w", encoding="utf-8", newline="") as handle:
-        writer = csv.writer(handle)
-        writer.writerow(["id", "title", "body"])
-        for topic, words in TOPICS.items():
-            for i in range(per_topic):
-                body = " ".join(rng.choice(words if rng.random() < 0.6 else background) for _ in range(40))
-                doc_id = f"{topic[:2]}{i:03d}"
-                writer.writerow([doc_id, f"Note {i} on {topic}", body])
-                truth[doc_id] = topic
-    return truth
-
-
 def _run(cluster: StandaloneCluster, source: Path, out: Path, master: str) -> Path:
     command = [sys.executable, "-m", "pilewise.cli", "run", str(source), "--k", "3", "--seed", "0", "--out", str(out),
                "--engine", "spark", "--spark-master", master, "--quiet"]
@@ -154,7 +135,7 @@ def _run(cluster: StandaloneCluster, source: Path, out: Path, master: str) -> Pa
 
 def test_a_standalone_cluster_gives_the_in_memory_clusters(cluster: StandaloneCluster, tmp_path: Path) -> None:
     source = tmp_path / "notes.csv"
-    truth = _planted_csv(source)
+    truth = planted_notes_csv(source, per_topic=40, seed=3)
     started = time.monotonic()
     on_cluster = _run(cluster, source, tmp_path / "cluster", cluster.master)
     print(f"standalone cluster run {time.monotonic() - started:.1f} s")

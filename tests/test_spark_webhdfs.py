@@ -10,9 +10,7 @@ RPC (`hdfs://`), which needs a real namenode and is not tried here.
 
 from __future__ import annotations
 
-import csv
 import json
-import random
 import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -23,7 +21,7 @@ from urllib.parse import parse_qs, quote, unquote, urlsplit
 
 import pytest
 from sklearn.metrics import adjusted_rand_score
-from tests.helpers import TOPICS, invoke, read_assignments
+from tests.helpers import invoke, planted_notes_csv, read_assignments
 
 pytestmark = pytest.mark.spark
 
@@ -131,27 +129,11 @@ def webhdfs(root: Path) -> Iterator[tuple[int, list[str]]]:
         thread.join(timeout=5)
 
 
-def _planted_csv(path: Path, per_topic: int = 30, seed: int = 5) -> dict[str, str]:
-    """Three invented topics (helpers.TOPICS), 60 % topic words among shared background words; id -> topic."""
-    rng = random.Random(seed)
-    background = ["today", "later", "often", "small", "large", "quick", "plain", "usual", "again", "around"]
-    truth: dict[str, str] = {}
-    with path.open("w", encoding="utf-8", newline="") as handle:
-        writer = csv.writer(handle)
-        writer.writerow(["id", "title", "body"])
-        for topic, words in TOPICS.items():
-            for i in range(per_topic):
-                body = " ".join(rng.choice(words if rng.random() < 0.6 else background) for _ in range(40))
-                writer.writerow([f"{topic[:2]}{i:03d}", f"Note {i} on {topic}", body])
-                truth[f"{topic[:2]}{i:03d}"] = topic
-    return truth
-
-
 def test_spark_reads_a_table_over_webhdfs_as_the_local_run_reads_it(
         spark: Any, one_kmeans_start: None, tmp_path: Path) -> None:
     root = tmp_path / "served"
     (root / "in").mkdir(parents=True)
-    truth = _planted_csv(root / "in" / "notes.csv")
+    truth = planted_notes_csv(root / "in" / "notes.csv", per_topic=30, seed=5)
     with webhdfs(root) as (port, asked):
         result = invoke("run", f"webhdfs://127.0.0.1:{port}/in/notes.csv", "--k", "3", "--seed", "0",
                         "--engine", "spark", "--quiet", "--out", str(tmp_path / "spark"))
