@@ -18,7 +18,7 @@ import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "src" / "pilewise"
 STAGES = ("ingest", "vectors", "clustering", "describe", "output")
-BASE = frozenset({"errors", "model", "progress", "csvcells"})
+BASE = frozenset({"errors", "model", "progress", "csvcells", "cores"})
 
 
 def module_name(path: Path) -> str:

@@ -28,6 +28,7 @@ from pilewise.clustering.methods import _cluster_at, _dense, _stability_fn, swee
 from pilewise.clustering.quality import assess
 from pilewise.clustering.stability import bootstrap_stability, stability_rows
 from pilewise.clustering.sweep import Sweep
+from pilewise.cores import one_thread_each
 from pilewise.describe.compare import RunPair, compare_run_folders, comparison_document, site_comparisons
 from pilewise.describe.names import carry_names, earlier_run_problems, find_old_names
 from pilewise.describe.profiles import analyse_metadata, metadata_columns, term_profiles_from_counts
@@ -612,11 +613,13 @@ class _Beside:
         self.background = background
         self.executor: ProcessPoolExecutor | None = None
         self.futures: dict[str, Future[Any]] = {}
+        self.limits: Any = None
 
     def __enter__(self) -> _Beside:
         if self.background:
             global _handed
             _handed = self.jobs
+            self.limits = one_thread_each()  # before the fork: the worker inherits the limit
             try:  # the worker is forked at the first submit and inherits the jobs
                 self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
                 self.futures = {name: self.executor.submit(_run_handed, name) for name in self.jobs}
@@ -627,6 +630,9 @@ class _Beside:
     def __exit__(self, *_: object) -> None:
         if self.executor is not None:
             self.executor.shutdown(wait=False, cancel_futures=True)
+        if self.limits is not None:
+            self.limits.restore_original_limits()
+            self.limits = None
 
     def then(self, name: str, job: Job, *, in_place: Job) -> None:
         """One more job for the worker, after those it has; its arguments go to it pickled. It may use what the

@@ -26,6 +26,7 @@ from sklearn.decomposition import TruncatedSVD
 from sklearn.feature_extraction.text import TfidfTransformer
 from sklearn.preprocessing import normalize
 
+from pilewise.cores import one_thread_each
 from pilewise.errors import PilewiseError
 from pilewise.vectors.text import Analyzer, joined_to_previous
 
@@ -558,7 +559,8 @@ def _fit_words() -> TruncatedSVD | None:
     sample = lsa_sample(n, fit_rows, settings.seed)
     idf = smooth_idf(document_frequency(words, copies)[columns], n_documents)
     svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
-    return svd.fit(tfidf_rows(words[sample][:, columns], idf))
+    with one_thread_each():  # the main process counts phrases on the other core meanwhile
+        return svd.fit(tfidf_rows(words[sample][:, columns], idf))
 
 
 class FitBeside:
