@@ -75,6 +75,7 @@ from pilewise.vectors.languages import (
     screen_ahead,
     screened_ahead,
     shares,
+    shares_line,
 )
 from pilewise.vectors.streaming import CHUNK_DOCUMENTS, default_workers, prepare_streamed
 from pilewise.vectors.text import Analyzer, load_stop_words
@@ -432,8 +433,7 @@ STREAM_LANGUAGE_SAMPLE = 2_000  # documents whose languages choose a streamed ru
 
 
 def _languages_line(codes: Sequence[str], weights: np.ndarray, *, forced: bool) -> str:
-    found = ", ".join(f"{code} {share:.0%}" for code, share in shares(codes, weights)[:6])
-    return f"languages ({'--language' if forced else 'detected per text'}): {found}"
+    return f"languages ({'--language' if forced else 'detected per text'}): {shares_line(shares(codes, weights))}"
 
 
 def _redaction_line(redacted: dict[str, int]) -> str:

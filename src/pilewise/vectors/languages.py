@@ -368,6 +368,20 @@ def shares(codes: Sequence[str], weights: np.ndarray) -> tuple[tuple[str, float]
     return tuple(sorted(((code, n / total) for code, n in counts.items()), key=lambda item: (-item[1], item[0])))
 
 
+def shares_line(found: Sequence[tuple[str, float]], most: int = 6) -> str:
+    """"en 60%, undetermined 40%, 3 others under 1%": shares for a line of text, largest first.
+
+    A language is named when its share shows as at least 1% (at most `most` of them); the rest are counted.
+    "und" reads "undetermined" (too short or too unsure to tell)."""
+    named = [(code, share) for code, share in found if f"{share:.0%}" != "0%"][:most]  # "0%" would read as absent
+    parts = [f"{'undetermined' if code == UNDETERMINED else code} {share:.0%}" for code, share in named]
+    rest = len(found) - len(named)
+    if rest:
+        under = all(f"{share:.0%}" == "0%" for _, share in found[len(named):])
+        parts.append(f"{rest} other{'s' if rest > 1 else ''}" + (" under 1%" if under else ""))
+    return ", ".join(parts)
+
+
 def present_languages(codes: Sequence[str], weights: np.ndarray) -> tuple[str, ...]:
     """Languages of at least PRESENT_SHARE of the documents ("und" left out), largest first."""
     return tuple(code for code, share in shares(codes, weights) if code != UNDETERMINED and share >= PRESENT_SHARE)

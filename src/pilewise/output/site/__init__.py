@@ -29,6 +29,7 @@ from pilewise.output import docmap, search
 from pilewise.output.exports import LATE_FILES, listed_files, members_csv_name
 from pilewise.output.outfolder import write_text_atomically
 from pilewise.output.plots import trend_bars_svg, trend_rows_svg
+from pilewise.vectors.languages import shares_line
 
 DOC_PAGE_CAP = 20_000  # above this many documents no page per document is written
 # members listed on a cluster's page, nearest the centroid first: a reader scans a few hundred excerpts, not
@@ -393,8 +394,8 @@ def _kwic_groups(cluster: ClusterSummary, with_pages: bool, shown: Callable[[str
 
 
 def _language_line(shares: Sequence[tuple[str, float]]) -> str:
-    """"de 80%, en 20%": a cluster's languages for its card."""
-    return ", ".join(f"{code} {share:.0%}" for code, share in shares)
+    """"de 80%, en 20%": a cluster's languages for its card (`languages.shares_line`)."""
+    return shares_line(shares)
 
 
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
