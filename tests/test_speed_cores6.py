@@ -9,13 +9,17 @@ No test here times anything.
 from __future__ import annotations
 
 import multiprocessing
+from pathlib import Path
 
 import numpy as np
 import pytest
 from threadpoolctl import threadpool_info
 
 from pilewise.cores import one_thread_each
-from pilewise.pipeline import _Beside
+from pilewise.errors import PilewiseError
+from pilewise.options import RunOptions
+from pilewise.pipeline import _Beside, run_collection
+from pilewise.vectors.languages import CLASSIFY_PARALLEL_MIN, DETECT_EARLY_BYTES
 
 needs_fork = pytest.mark.skipif("fork" not in multiprocessing.get_all_start_methods(), reason="needs fork")
 
@@ -63,3 +67,22 @@ def test_beside_in_place_leaves_the_limits_alone() -> None:
     before = _thread_counts()
     with _Beside({"threads": (_thread_counts, (), {})}, background=False) as beside:
         assert beside.result("threads") == before  # no second process, no reason to limit
+
+
+@needs_fork
+def test_a_failed_read_gives_the_threads_back(tmp_path: Path) -> None:
+    """The detection worker is forked before reading when the source holds 8 MB or more; a read that fails
+    (here: more documents than --max-documents) lets it go, and the thread limit ends with it."""
+    _pools_loaded()
+    before = _thread_counts()
+    source = tmp_path / "notes.csv"
+    line = "note about the parcel that came late and the refund that never came through again " * 4
+    with source.open("w", encoding="utf-8") as out:
+        out.write("text\n")
+        for i in range(26_000):
+            out.write(f"{line} {i}\n")
+    assert source.stat().st_size >= DETECT_EARLY_BYTES * CLASSIFY_PARALLEL_MIN  # the early worker is forked
+    options = RunOptions(source=source, out=tmp_path / "site", k=2, max_documents=100, workers=2, quiet=True)
+    with pytest.raises(PilewiseError, match="more than --max-documents 100"):
+        run_collection(options)
+    assert _thread_counts() == before

@@ -283,34 +283,34 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
     workers = options.workers or default_workers()
     # The detection worker is forked before reading, while this process is small, and loads the model while
     # the texts are read (the second core idles then); it is sent the distinct texts afterwards, or stopped.
-    detecting = _Beside({"model": (load_model, (), {})}, background=True).__enter__() \
-        if _detect_beside(source.total_bytes // DETECT_EARLY_BYTES, options.language, workers) else None
-    with reporter.stage("reading"):
-        documents = list(source.read(track=lambda paths: reporter.track(paths, total=len(paths),
-                                                                          label="reading files")))
-        ingested = source.ingested(documents)
-        if len(ingested.documents) > options.max_documents:
-            raise PilewiseError(
-                f"found {len(ingested.documents):,} documents, more than --max-documents "
-                f"{options.max_documents:,}; raise --max-documents or point SOURCE at fewer files"
-            )
-        for note in ingested.notes:
-            reporter.say(note)
-        if options.redact:
-            ingested, redacted = redact_documents(ingested)
-            if redacted:
-                reporter.say(_redaction_line(redacted))
-        else:
-            redacted = {}
-            reporter.warn(REDACTION_OFF)
-        if not options.boilerplate:
-            ingested = replace(ingested, notes=(*ingested.notes, BOILERPLATE_OFF))
-            reporter.say(BOILERPLATE_OFF)
-        collection = collect_distinct(ingested.documents)
-        reporter.say(_reading_line(ingested, collection))
-    with ExitStack() as beside_grouping:
-        if detecting is not None:
-            beside_grouping.push(detecting)
+    with ExitStack() as early:  # a failed read lets the worker go (and the thread limit with it)
+        detecting = early.enter_context(_Beside({"model": (load_model, (), {})}, background=True)) \
+            if _detect_beside(source.total_bytes // DETECT_EARLY_BYTES, options.language, workers) else None
+        with reporter.stage("reading"):
+            documents = list(source.read(track=lambda paths: reporter.track(paths, total=len(paths),
+                                                                              label="reading files")))
+            ingested = source.ingested(documents)
+            if len(ingested.documents) > options.max_documents:
+                raise PilewiseError(
+                    f"found {len(ingested.documents):,} documents, more than --max-documents "
+                    f"{options.max_documents:,}; raise --max-documents or point SOURCE at fewer files"
+                )
+            for note in ingested.notes:
+                reporter.say(note)
+            if options.redact:
+                ingested, redacted = redact_documents(ingested)
+                if redacted:
+                    reporter.say(_redaction_line(redacted))
+            else:
+                redacted = {}
+                reporter.warn(REDACTION_OFF)
+            if not options.boilerplate:
+                ingested = replace(ingested, notes=(*ingested.notes, BOILERPLATE_OFF))
+                reporter.say(BOILERPLATE_OFF)
+            collection = collect_distinct(ingested.documents)
+            reporter.say(_reading_line(ingested, collection))
+        handed = early.pop_all()  # the worker stays for the grouping below
+    with handed as beside_grouping:
         check_k(k_needed, int(collection.copies.size))
         with reporter.stage("grouping near-duplicates"):
             texts = [collection.documents[i].text for i in collection.first_doc_of_text]
