@@ -102,3 +102,12 @@ def test_chart_of_all_clusters_over_time() -> None:
     texts = [t.text for t in root.findall(f"{SVG}text")]
     assert "rising" in texts and "steady" in texts and starts[0] in texts and starts[-1] in texts
     assert not re.search(r"(href|src)=", svg)
+
+
+def test_row_label_keeps_the_start_of_a_long_first_word() -> None:
+    # seen on a mail folder of package change logs: a headline starting with a long file path read "11…"
+    name = "11 debian/patches/hurd-i386/local-mach_print.diff: Keep mach_print@GLIBC_2.21 for now"
+    svg = trend_rows_svg(["2024-01-01"], [(name, [1], [1.0], "steady")], label="Share per year")
+    labels = [t.text for t in ET.fromstring(svg).findall(f"{SVG}text")]
+    assert labels[0] == "11 debian/patches/hurd-i386/local…"  # the same cut as every clipped title (clip_text)
+    assert len(labels[0]) <= 34

@@ -6,6 +6,8 @@ import io
 from collections.abc import Sequence
 from typing import Any
 
+from pilewise.describe.snippets import clip_text
+
 INK = "#1d2327"
 ACCENT = "#2f5d62"
 WARM = "#b5651d"
@@ -114,7 +116,7 @@ def trend_rows_svg(
         top_y = r * row_height
         base_y = top_y + row_height - pad
         peak = max(max(shares, default=0.0), 1e-12)
-        parts.append(f'<text x="0" y="{base_y - 3}" {text}>{_escape(_clip(name, 34))}</text>')
+        parts.append(f'<text x="0" y="{base_y - 3}" {text}>{_escape(clip_text(name, 34))}</text>')
         parts.append(f'<line x1="{name_w}" y1="{base_y}" x2="{name_w + plot_w:.1f}" y2="{base_y}" stroke="{GRID}" '
                      'stroke-width="1"/>')
         for i, (start, count, share) in enumerate(zip(starts, counts, shares, strict=True)):
@@ -132,9 +134,3 @@ def trend_rows_svg(
     return "".join(parts)
 
 
-def _clip(text: str, limit: int) -> str:
-    """`text` cut at a word boundary to at most `limit` characters, with an ellipsis when cut."""
-    if len(text) <= limit:
-        return text
-    cut = text[: limit - 1].rsplit(" ", 1)[0] or text[: limit - 1]
-    return cut + "…"
