@@ -97,7 +97,7 @@ def test_spark_agrees_with_the_local_engine_on_an_open_corpus(newsgroup_runs: tu
 
 def test_the_same_seed_gives_the_same_assignments(newsgroup_runs: tuple[Any, Path, Path, Path],
                                                  tmp_path: Path) -> None:
-    # a second Spark run of the open corpus with the fixture's seed, in the same session layout (local[2], 4
+    # a second Spark run of the open corpus with the fixture's seed, in the same session layout (local[2], 2
     # partitions): real posts, where k-means' start matters (the engines agree only at ARI 0.85-0.92)
     corpus, source, first, _ = newsgroup_runs
     second = _run(source, tmp_path / "b", "--k", str(len(set(corpus.labels))), "--engine", "spark", "--seed", "0")
