@@ -2,7 +2,7 @@
 /usr/share/common-licenses), files that are not documents, and mailboxes, read by one Spark run and compared
 with the local reader on the same folder (the same documents in the same reading order, the same report lines).
 
-One run serves both checks: a Spark run costs half a minute of fixed work however small its folder.
+One run serves both checks: a Spark run is some 60 Spark jobs of fixed cost however small its folder.
 """
 
 from __future__ import annotations
