@@ -42,12 +42,16 @@ def needs_spark() -> None:
 
 @pytest.fixture(scope="session")
 def spark() -> Iterator[Any]:
-    """One local Spark session (local[2], 4 partitions, as `--spark-master local[2]` starts it) for every Spark
-    test of the session: runs in this process find it active and use it, so the JVM and the session start once."""
+    """One local Spark session (local[2]) for every Spark test of the session: runs in this process find it active
+    and use it, so the JVM and the session start once.
+
+    Two partitions, one per core, where `--spark-master local[2]` starts four (two per core, for uneven tasks on
+    large inputs): on the tests' small inputs every task is fixed cost (a Python worker's round trip, about 0.1 s),
+    and a run is some 60 Spark jobs. The code paths are the same; docs/scale.md has the timings."""
     needs_spark()
     from pilewise.engines.spark_session import spark_session
 
-    with spark_session("local[2]", quiet=False, partitions=4) as session:
+    with spark_session("local[2]", quiet=False, partitions=2) as session:
         yield session
 
 

@@ -39,6 +39,7 @@ def test_an_s3a_path_without_the_connector_is_one_line_naming_the_fix(spark: Any
         "local path"))
 
 
+@pytest.mark.timeout(120)  # a hang on the socket fails the test (pytest-timeout) instead of blocking the run
 def test_an_hdfs_namenode_that_is_not_there_is_one_line_within_seconds(spark: Any, tmp_path: Path) -> None:
     """Before: Hadoop's IPC client retried the refused connection (ipc.client.connect.max.retries, 10 by default,
     a second apart: core-default.xml) and the line quoted Py4J ('An error occurred while calling o111.csv.')."""

@@ -189,6 +189,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
                   .map(lambda item: _redacted(item, redact)).persist(keep))
         documents = marked.map(lambda row: (row[0], row[1]))
         redacted = marked.map(lambda row: row[2]).filter(bool).fold({}, _add_counts)
+        read.release()  # `marked` holds the documents now
         if n_docs > options.max_documents:
             raise PilewiseError(f"found {n_docs:,} documents, more than --max-documents {options.max_documents:,}; "
                                 "raise --max-documents or point SOURCE at fewer files")
@@ -254,9 +255,11 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         renumber[order] = np.arange(options.k)
         unit = normalize(centroids[order])
         labelled = placed.map(lambda row: (*row, *_place(row[5], centroids, renumber, unit))).persist(keep)
-        placed.unpersist()
     with reporter.stage("summarizing on Spark"):
         totals = _totals(labelled, options.k, len(terms))
+        # only now is `labelled` kept: released earlier, `placed` was computed again (every text tokenized and
+        # projected a second time) by this first job on `labelled`
+        placed.unpersist()
         nearest = _nearest_keys(labelled, options.k)
         sample_rows = {row[0]: row for row in labelled.takeSample(False, SAMPLE_TEXTS, options.seed)}
         wanted_nearest = spark.sparkContext.broadcast(nearest - set(sample_rows))
@@ -348,10 +351,13 @@ def _kmeans(spark: Any, placed: Any, k: int, seed: int, starts: int) -> tuple[np
     fits seeded seed, seed+1, ..., the one of least cost kept (as the local engine keeps the best of its starts)."""
     from pyspark import StorageLevel
     from pyspark.ml.clustering import KMeans
-    from pyspark.ml.linalg import Vectors
+    from pyspark.ml.linalg import Vectors, VectorUDT
+    from pyspark.sql.types import DoubleType, StructField, StructType
 
+    # the schema given, not inferred: inferring runs a Spark job on the first rows
+    schema = StructType([StructField("copies", DoubleType()), StructField("features", VectorUDT())])
     frame = spark.createDataFrame(placed.map(lambda row: (float(row[2]), Vectors.dense(row[5]))),
-                                  ["copies", "features"]).persist(StorageLevel.MEMORY_AND_DISK)
+                                  schema).persist(StorageLevel.MEMORY_AND_DISK)
     best: tuple[float, np.ndarray] | None = None
     for start in range(starts):
         model = KMeans(k=k, seed=seed + start, initMode="k-means||", maxIter=KMEANS_MAX_ITER, tol=1e-6,
@@ -464,15 +470,18 @@ def _write_assignments(
     joined = placed_docs.map(lambda item: (item[0], _assignment_row(item[1], names, extra),
                                            [spreadsheet_cell(item[1][0]), *(groups[k][item[1][3]] for k in ks)]))
     columns = [*ASSIGNMENT_COLUMNS, *extra]
-    spark.createDataFrame(joined.map(lambda row: row[1]), columns).write.parquet(str(folder / "assignments-parquet"))
-    escaped = spark.createDataFrame(joined.map(lambda row: [str(c) for c in spreadsheet_row(row[1])]), columns)
+    # by place: a metadata column may share a name with one of ASSIGNMENT_COLUMNS
+    typed = _schema(columns, whole={ASSIGNMENT_COLUMNS.index("cluster"), ASSIGNMENT_COLUMNS.index("copies")})
+    spark.createDataFrame(joined.map(lambda row: row[1]), typed).write.parquet(str(folder / "assignments-parquet"))
+    escaped = spark.createDataFrame(joined.map(lambda row: [str(c) for c in spreadsheet_row(row[1])]),
+                                    _schema(columns))
     escaped.write.option("header", True).option("escape", '"').csv(str(folder / "assignments-parts"))
     written = ["assignments-parquet", "assignments-parts"]
     cut_header = ["doc_id", *(f"k{k}" for k in ks)]
     if not ks:  # a Ward tree over the texts cuts across the run's clusters; the sample cannot say how
         reporter.say("the levels do not map the run's clusters to coarser groups: cuts.csv is not written")
     else:
-        cut_frame = spark.createDataFrame(joined.map(lambda row: [str(c) for c in row[2]]), cut_header)
+        cut_frame = spark.createDataFrame(joined.map(lambda row: [str(c) for c in row[2]]), _schema(cut_header))
         cut_frame.write.option("header", True).option("escape", '"').csv(str(folder / "cuts-parts"))
         written.append("cuts-parts")
     if n_docs <= SINGLE_CSV_UP_TO:  # also every cluster's members/cluster-NN.csv, as the other modes write
@@ -494,6 +503,15 @@ def _write_assignments(
                      f"(one assignments.csv, cuts.csv and the per-cluster members/ files up to {SINGLE_CSV_UP_TO:,})")
     placed_docs.unpersist()
     return written
+
+
+def _schema(columns: list[str], whole: frozenset[int] | set[int] = frozenset()) -> Any:
+    """The frame's columns as Spark would infer them from the rows (text, and 64-bit integers at the places in
+    `whole`), given instead of inferred: inferring runs a Spark job over the first rows."""
+    from pyspark.sql.types import LongType, StringType, StructField, StructType
+
+    return StructType([StructField(name, LongType() if at in whole else StringType())
+                       for at, name in enumerate(columns)])
 
 
 def _csv_writer(files: contextlib.ExitStack, path: Path, header: list[Any]) -> Any:

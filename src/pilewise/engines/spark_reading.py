@@ -54,6 +54,12 @@ class SparkSource:
     notes: tuple[str, ...]
     files_found: int
     count: int | None = None  # documents, when reading counted them (a table); None: not counted
+    kept: Any = None  # an RDD reading persisted so that its jobs parse the files once; None: nothing kept
+
+    def release(self) -> None:
+        """Drop what reading kept, once the documents are kept elsewhere (the engine's redacted copy)."""
+        if self.kept is not None:
+            self.kept.unpersist()
 
 
 def read_on_spark(spark: Any, source: str, columns: ColumnChoice, limits: ReadLimits) -> SparkSource:
@@ -193,9 +199,8 @@ def _read_table(spark: Any, source: str, kind: str, choice: ColumnChoice, limits
     rows = frame.select(*(_quoted(c) for c in picked)).rdd.zipWithIndex()
     layout = _Layout(rel, text_col, title_col, id_col, date_col, tuple(extra), corrupt, limits.max_doc_chars)
     made = rows.mapPartitions(layout.documents)
-    documents = _unique_ids(made.filter(lambda item: item[0] == "doc").map(lambda item: item[1]))
+    documents, n_docs = _unique_ids(made.filter(lambda item: item[0] == "doc").map(lambda item: item[1]))
     entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
-    n_docs = documents.count()
     summary = IngestEntry(rel, "document", "table", f"{n_docs:,} rows became documents (text column {text_col!r})")
     notes = [f"{rel}: {note}" for note in guesses] + more
     return SparkSource(documents, (summary, *entries), tuple(notes), 1, n_docs)
@@ -285,12 +290,12 @@ class _Layout:
             ))
 
 
-def _unique_ids(documents: Any) -> Any:
-    """Documents whose id is empty or repeated get their row's place as id (as the local reader does)."""
-    repeated = set(
-        documents.map(lambda item: (item[1].doc_id, 1)).filter(lambda pair: pair[0] != "")
-        .reduceByKey(lambda a, b: a + b).filter(lambda pair: pair[1] > 1).keys().take(ENTRIES_UP_TO + 1)
-    )
+def _unique_ids(documents: Any) -> tuple[Any, int]:
+    """Documents whose id is empty or repeated get their row's place as id (as the local reader does); and
+    how many documents there are, summed from the same id counts (Spark reuses their shuffle: the table is
+    not parsed again to count its rows)."""
+    per_id = documents.map(lambda item: (item[1].doc_id, 1)).reduceByKey(lambda a, b: a + b)
+    repeated = set(per_id.filter(lambda pair: pair[0] != "" and pair[1] > 1).keys().take(ENTRIES_UP_TO + 1))
     if len(repeated) > ENTRIES_UP_TO:
         raise PilewiseError(f"more than {ENTRIES_UP_TO:,} ids repeat in the id column; pass another --id-column")
 
@@ -300,7 +305,7 @@ def _unique_ids(documents: Any) -> Any:
             return item
         return number, Document(doc.source, doc.source, doc.title, doc.text, doc.date, doc.metadata)
 
-    return documents.map(own_id)
+    return documents.map(own_id), int(per_id.values().sum())
 
 
 def _bounded_entries(entries: Any) -> tuple[list[IngestEntry], list[str]]:
@@ -313,6 +318,8 @@ def _bounded_entries(entries: Any) -> tuple[list[IngestEntry], list[str]]:
 
 
 def _read_files(spark: Any, source: str, limits: ReadLimits, encoding: str | None) -> SparkSource:
+    from pyspark import StorageLevel
+
     try:
         frame = spark.read.format("binaryFile").option("recursiveFileLookup", "true").load(source)
     except Exception as err:
@@ -321,7 +328,9 @@ def _read_files(spark: Any, source: str, limits: ReadLimits, encoding: str | Non
     base = (urlparse(source).path if "://" in source else str(Path(source).resolve())).rstrip("/")
     files = frame.select("path", "length", "content").rdd.sortBy(lambda row: row["path"]).zipWithIndex()
     reader = _FileReader(base, limits, encoding)
-    made = files.mapPartitions(reader.documents)
+    # kept: counting, the report lines and the documents would each read and decode every file again (a
+    # partition of files is at most Spark's 128 MB split; a table, one partition per CSV file, is not kept)
+    made = files.mapPartitions(reader.documents).persist(StorageLevel.MEMORY_AND_DISK)
     documents = made.filter(lambda item: item[0] == "doc").map(lambda item: item[1])
     entries, more = _bounded_entries(made.filter(lambda item: item[0] == "entry").map(lambda item: item[1]))
     # Spark's file sources leave out files of 0 bytes; they are listed here so that each is a report line
@@ -329,7 +338,7 @@ def _read_files(spark: Any, source: str, limits: ReadLimits, encoding: str | Non
     empty = [IngestEntry(reader.relative(path), "skipped", "empty", "0 bytes") for path, size in listed if size == 0]
     if not listed:
         raise PilewiseError(f"no files found under {source!r}; pass a folder of text files or a table")
-    return SparkSource(documents, (*entries, *empty[:ENTRIES_UP_TO]), tuple(more), len(listed))
+    return SparkSource(documents, (*entries, *empty[:ENTRIES_UP_TO]), tuple(more), len(listed), kept=made)
 
 
 def _listed_files(spark: Any, source: str) -> list[tuple[str, int]]:
