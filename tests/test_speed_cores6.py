@@ -86,3 +86,16 @@ def test_a_failed_read_gives_the_threads_back(tmp_path: Path) -> None:
     with pytest.raises(PilewiseError, match="more than --max-documents 100"):
         run_collection(options)
     assert _thread_counts() == before
+
+
+def test_a_worker_that_cannot_start_gives_the_threads_back(monkeypatch: pytest.MonkeyPatch) -> None:
+    _pools_loaded()
+    before = _thread_counts()
+
+    def no_process(*_: object, **__: object) -> None:
+        raise OSError("fork failed")  # what os.fork raises when the system has no process to give (errno EAGAIN)
+
+    monkeypatch.setattr("pilewise.pipeline.ProcessPoolExecutor", no_process)
+    with pytest.raises(OSError, match="fork failed"):
+        _Beside({"threads": (_thread_counts, (), {})}, background=True).__enter__()
+    assert _thread_counts() == before

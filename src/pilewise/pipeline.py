@@ -623,6 +623,9 @@ class _Beside:
             try:  # the worker is forked at the first submit and inherits the jobs
                 self.executor = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("fork"))
                 self.futures = {name: self.executor.submit(_run_handed, name) for name in self.jobs}
+            except BaseException:  # no block to leave: give the threads back here
+                self.__exit__()
+                raise
             finally:
                 _handed = {}
         return self
