@@ -393,11 +393,6 @@ def _kwic_groups(cluster: ClusterSummary, with_pages: bool, shown: Callable[[str
     return [{"term": term, "lines": lines} for term, lines in groups.items()]
 
 
-def _language_line(shares: Sequence[tuple[str, float]]) -> str:
-    """"de 80%, en 20%": a cluster's languages for its card (`languages.shares_line`)."""
-    return shares_line(shares)
-
-
 def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
     largest = max(c.share for c in result.clusters)
     naming = result.naming.clusters[cluster.cluster_id]
@@ -415,7 +410,7 @@ def _card(cluster: ClusterSummary, result: RunResult) -> dict[str, Any]:
         "headline_note": _headline_note(cluster, result),
         "mixed": cluster.mixed,
         "mixed_reason": cluster.mixed_reason,
-        "languages": _language_line(result.languages.clusters[cluster.cluster_id])
+        "languages": shares_line(result.languages.clusters[cluster.cluster_id])
         if result.languages is not None and result.languages.mixed else "",
         "size": cluster.size,
         "share": cluster.share,
