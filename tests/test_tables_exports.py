@@ -171,6 +171,18 @@ class TestQuoting:
         assert [d.doc_id for d in ingested.documents] == ["1", "2", "3", "4", "5"]
         assert ingested.documents[3].text == 'ends here"'
 
+    def test_quoted_prose_with_two_commas_a_line_stays_one_row(self, tmp_path: Path) -> None:
+        # seen in a quotation file written by Python's csv module: every line of the quoted cell splits into
+        # three fields at its commas, but its doubled quotes are escapes, which only a quoted field holds
+        # (RFC 4180 §2.7)
+        text = ('A boy spent years, said the note, collecting stamps.\nHis sister, he said, "bought an album too.'
+                '"\nDad, she buys, everything I buy.\nSon, he said, remember: "imitation."')
+        with (tmp_path / "t.csv").open("w", encoding="utf-8", newline="") as handle:
+            csv.writer(handle).writerows([["id", "file", "text"], ["q1", "sayings", text], ["q2", "sayings", "x"]])
+        ingested = read(tmp_path / "t.csv")
+        assert [(d.doc_id, d.text) for d in ingested.documents] == [("q1", text), ("q2", "x")]
+        assert notes_of(ingested, "unclosed quote") == []
+
     def test_quoted_cells_with_line_breaks_stay_one_row(self, tmp_path: Path) -> None:
         # RFC 4180 §2.6: line breaks inside double quotes belong to the field
         texts = ["Hello, there\nSecond, line", "one\ntwo\nthree\nfour", 'He said ""hi""\nand left']

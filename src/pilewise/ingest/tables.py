@@ -653,7 +653,9 @@ def _runaway(lines: list[str], dialect: dict[str, Any], width: int) -> bool:
     strict mode rejects both. A quote that happens to close cleanly much further down is
     caught when the record's lines after the first (at least three) each read alone as a full
     row of a table of three or more columns; a narrower table would take prose with one comma
-    per line for rows.
+    per line for rows. A doubled quote on those lines is an escaped quote (RFC 4180 §2.7), which
+    writers put only inside quoted fields: such a record is one quoted field, however its lines split
+    at commas (prose with two commas a line, seen in a quotation file).
     """
     try:
         if len(list(csv.reader(lines, strict=True, **dialect))) != 1:
@@ -661,6 +663,8 @@ def _runaway(lines: list[str], dialect: dict[str, Any], width: int) -> bool:
     except csv.Error:
         return True
     rest = lines[1:]
+    if any('""' in line for line in rest):
+        return False
     return width >= 3 and len(rest) >= 3 and all(len(_line_cells(line, dialect)) == width for line in rest)
 
 
