@@ -48,7 +48,7 @@ from pilewise.ingest.dedup import (
 )
 from pilewise.ingest.reading import SourceStream, stream_source
 from pilewise.ingest.redact import redact_document
-from pilewise.ingest.shelf import DocumentShelf
+from pilewise.ingest.shelf import DocumentShelf, document_fields
 from pilewise.model import Collection, Document, Ingested, Population, RunResult, fingerprint_record
 from pilewise.options import (
     STREAM_ABOVE_BYTES,
@@ -522,11 +522,20 @@ def _described(
     shown = [prepared.analyzer.surface(t) for t in prepared.vectors.terms]
     doc_labels = clustering.labels[prepared.collection.text_of_doc]
     with reporter.stage("table columns"):  # first: the rules read the categorical ones
-        doc_columns = metadata_columns(prepared.collection)
+        # every document's id, date and cells in one pass (from a shelf: its small file, without the texts)
+        doc_ids: list[str] = []
+        dates: list[str] = []
+        cell_rows: list[tuple[tuple[str, str], ...]] = []
+        for doc_id, date, cells in document_fields(prepared.collection.documents):
+            doc_ids.append(doc_id)
+            dates.append(date)
+            cell_rows.append(cells)
+        doc_columns = metadata_columns(cell_rows)
+        del cell_rows
         # every document counts, copies too: a copy of a text may carry other cells than its first document
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
         first = prepared.collection.first_doc_of_text
-        columns = {name: [cells[j] for j in first] for name, cells in doc_columns.items()}
+        columns = {name: [column[j] for j in first] for name, column in doc_columns.items()}
     rows = docmap.sample_rows(distinct, docmap.MAP_CAP, options.seed)
     jobs: dict[str, Job] = {
         "map": (docmap.layout, (space[rows], options.seed), {}),
@@ -562,13 +571,12 @@ def _described(
                 trends = counted_trends(population.dated, k, None if options.period == "auto" else options.period,
                                         mixed)
             else:
-                trends = dated_trends(prepared.collection.documents, doc_labels, k, options.period, mixed=mixed)
+                trends = dated_trends(dates, doc_labels, k, options.period, mixed=mixed)
         with reporter.stage("explaining"):  # in the worker: the wait for it
             rules: RuleSet = beside.result("rules")
         with reporter.stage("laying out the map"):
             points: np.ndarray = beside.result("map")
     suggestions = [c.suggested_name for c in clusters]
-    doc_ids = [d.doc_id for d in prepared.collection.documents]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
     naming = carry_names(old_names, doc_ids, clustering.labels[prepared.collection.text_of_doc], space,
                          prepared.collection.text_of_doc, suggestions)
@@ -657,10 +665,9 @@ class _Beside:
         return fn(*args, **kwargs)
 
 
-def dated_trends(documents: Sequence[Document], doc_labels: np.ndarray, k: int, period: str,
+def dated_trends(dates: Sequence[str], doc_labels: np.ndarray, k: int, period: str,
                  mixed: Sequence[bool] = ()) -> Trends | None:
-    """Counts per period and trend readings of every cluster, when any document carries a date."""
-    dates = [doc.date for doc in documents]
+    """Counts per period and trend readings of every cluster, when any document carries a date ("" where not)."""
     if not any(dates):
         return None
     return cluster_trends(dates, doc_labels, k, period=None if period == "auto" else period, mixed=mixed)

@@ -27,7 +27,6 @@ from scipy.stats import chi2_contingency, mannwhitneyu
 
 from pilewise.clustering.kmeans import cluster_sums
 from pilewise.describe.stats import best_first
-from pilewise.model import Collection
 from pilewise.vectors.tfidf import document_frequency, smooth_idf, tfidf_rows
 
 # Column typing (our choices; see analyse_metadata).
@@ -466,11 +465,12 @@ def _quartiles(sample: np.ndarray) -> tuple[float, float, float]:
     return float(q1), float(median), float(q3)
 
 
-def metadata_columns(collection: Collection) -> dict[str, list[str]]:
-    """Extra table columns, one cell per document ("" where a document lacks the column); one pass in reading order."""
+def metadata_columns(rows: Sequence[tuple[tuple[str, str], ...]]) -> dict[str, list[str]]:
+    """Extra table columns from every document's (name, cell) pairs, one cell per document ("" where a document
+    lacks the column); one pass in reading order."""
     cells: dict[str, list[str]] = {}
-    for i, doc in enumerate(collection.documents):
-        row = dict(doc.metadata)
+    for i, metadata in enumerate(rows):
+        row = dict(metadata)
         for name, column in cells.items():
             column.append(row.pop(name, ""))
         for name, value in row.items():  # a column first seen here: earlier documents lack it

@@ -2,7 +2,9 @@
 
 The streaming path writes every document once, as one JSON Lines record, into the run's work
 folder; afterwards the shelf reads any document by its position (one seek and one line) or all of
-them in order. Only the byte offsets (8 bytes per document) stay in memory.
+them in order. Only the byte offsets (8 bytes per document) stay in memory. A second, small file holds
+each document's fields without its text (id, date, table cells), for the passes that need only those:
+at 200,000 documents reading them from the full records took about 0.8 s per pass, three passes a run.
 """
 
 from __future__ import annotations
@@ -16,6 +18,8 @@ import numpy as np
 
 from pilewise.model import Document
 
+DocumentFields = tuple[str, str, tuple[tuple[str, str], ...]]  # doc_id, date, metadata: a document without its text
+
 
 class DocumentShelf(Sequence[Document]):
     """Documents appended in order to one file; readable by position once `close_writing` was called."""
@@ -23,6 +27,8 @@ class DocumentShelf(Sequence[Document]):
     def __init__(self, path: Path) -> None:
         self.path = path
         self._writer = path.open("wb")
+        self.fields_path = path.with_name(f"{path.stem}-fields{path.suffix}")
+        self._fields_writer = self.fields_path.open("wb")
         self._offsets: list[int] = []
         self._end = 0
         self._starts: np.ndarray | None = None
@@ -33,10 +39,13 @@ class DocumentShelf(Sequence[Document]):
         documents = list(documents)
         self.metadata_names.update(name for doc in documents for name, _ in doc.metadata)
         lines = [shelf_record(doc) for doc in documents]
-        self.extend_records(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)))
+        self.extend_records(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)),
+                            b"".join(map(fields_record, documents)))
 
-    def extend_records(self, records: bytes, lengths: np.ndarray) -> None:
-        """Append records made by `shelf_record` (concatenated), given the length of each."""
+    def extend_records(self, records: bytes, lengths: np.ndarray, fields: bytes) -> None:
+        """Append records made by `shelf_record` (concatenated), given the length of each, and the same
+        documents' `fields_record` lines (concatenated)."""
+        self._fields_writer.write(fields)
         starts = self._end + np.concatenate([[0], np.cumsum(lengths)[:-1]]) if lengths.size else lengths
         self._offsets.extend(starts.tolist())
         self._end += len(records)
@@ -44,12 +53,14 @@ class DocumentShelf(Sequence[Document]):
 
     def close_writing(self) -> None:
         self._writer.close()
+        self._fields_writer.close()
         self._starts = np.asarray(self._offsets, dtype=np.int64)
         self._offsets = []
 
     def close(self) -> None:
-        if not self._writer.closed:
-            self._writer.close()
+        for writer in (self._writer, self._fields_writer):
+            if not writer.closed:
+                writer.close()
         if self._reader is not None:
             self._reader.close()
             self._reader = None
@@ -80,6 +91,30 @@ class DocumentShelf(Sequence[Document]):
         with self.path.open("rb") as handle:
             for line in handle:
                 yield _document(line)
+
+
+    def fields(self) -> Iterator[DocumentFields]:
+        """(doc_id, date, metadata) of every document in order, read from the small file of fields."""
+        if self._starts is None:
+            raise RuntimeError("the shelf is still being written")
+        with self.fields_path.open("rb") as handle:
+            for line in handle:
+                doc_id, date, metadata = json.loads(line.decode("utf-8", "surrogatepass"))
+                yield doc_id, date, tuple((str(a), str(b)) for a, b in metadata) if metadata else ()
+
+
+def document_fields(documents: Sequence[Document]) -> Iterator[DocumentFields]:
+    """(doc_id, date, metadata) of every document in order; from a shelf's small file of fields."""
+    if isinstance(documents, DocumentShelf):
+        yield from documents.fields()
+        return
+    for doc in documents:
+        yield doc.doc_id, doc.date, doc.metadata
+
+
+def fields_record(doc: Document) -> bytes:
+    """A document's fields without its text (id, date, table cells) as one line of JSON."""
+    return json.dumps([doc.doc_id, doc.date, doc.metadata], ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
 
 
 def shelf_record(doc: Document) -> bytes:

@@ -32,7 +32,7 @@ from sklearn.utils import murmurhash3_32
 from pilewise.errors import PilewiseError
 from pilewise.ingest.dedup import NO_BOILERPLATE, Boilerplate, distinct_key, find_boilerplate, strip_boilerplate
 from pilewise.ingest.redact import redact_document
-from pilewise.ingest.shelf import DocumentShelf, shelf_record
+from pilewise.ingest.shelf import DocumentShelf, fields_record, shelf_record
 from pilewise.model import Collection, Document, fingerprint_record
 from pilewise.progress import Reporter
 from pilewise.vectors.text import Analyzer
@@ -167,6 +167,7 @@ class ChunkWork:
 
     shelf_lines: bytes  # the redacted documents as shelf records
     line_lengths: np.ndarray
+    field_lines: bytes  # the same documents' fields without their text (`shelf.fields_record`)
     fingerprint_bytes: bytes  # id NUL text NUL of every document, in order
     keys: list[bytes]  # 128-bit digest of each whitespace-collapsed text: exact duplicates share it
     counts: sp.csr_matrix  # hashed term counts of every document (boilerplate lines stripped)
@@ -206,8 +207,8 @@ def process_chunk(
         texts = [strip_boilerplate(text, boilerplate) for text in texts]
     counts, words = hashed_counts(texts, analyzer)
     names = frozenset(name for doc in documents for name, _ in doc.metadata)
-    return ChunkWork(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)), fingerprint,
-                     keys, counts, words, redacted, names)
+    return ChunkWork(b"".join(lines), np.fromiter(map(len, lines), dtype=np.int64, count=len(lines)),
+                     b"".join(map(fields_record, documents)), fingerprint, keys, counts, words, redacted, names)
 
 
 def hashed_counts(texts: list[str], analyzer: Analyzer | None = None) -> tuple[sp.csr_matrix, Counter[str]]:
@@ -264,7 +265,7 @@ def _absorb(job: Any, tally: _Tally, shelf: DocumentShelf, digest: Any, redacted
     """Take in a chunk's work in reading order: shelf, fingerprint, exact duplicates, counts of new texts."""
     done: ChunkWork = job if isinstance(job, ChunkWork) else job.get()
     start = len(shelf)
-    shelf.extend_records(done.shelf_lines, done.line_lengths)
+    shelf.extend_records(done.shelf_lines, done.line_lengths, done.field_lines)
     shelf.metadata_names.update(done.metadata_names)
     digest.update(done.fingerprint_bytes)
     for kind, n in done.redacted.items():
