@@ -12,9 +12,10 @@ from __future__ import annotations
 import json
 from collections.abc import Iterable, Iterator, Sequence
 from pathlib import Path
-from typing import BinaryIO, overload
+from typing import Any, BinaryIO, overload
 
 import numpy as np
+import orjson
 
 from pilewise.model import Document
 
@@ -99,7 +100,7 @@ class DocumentShelf(Sequence[Document]):
             raise RuntimeError("the shelf is still being written")
         with self.fields_path.open("rb") as handle:
             for line in handle:
-                doc_id, date, metadata = json.loads(line.decode("utf-8", "surrogatepass"))
+                doc_id, date, metadata = _loaded(line)
                 yield doc_id, date, tuple((str(a), str(b)) for a, b in metadata) if metadata else ()
 
 
@@ -114,15 +115,32 @@ def document_fields(documents: Sequence[Document]) -> Iterator[DocumentFields]:
 
 def fields_record(doc: Document) -> bytes:
     """A document's fields without its text (id, date, table cells) as one line of JSON."""
-    return json.dumps([doc.doc_id, doc.date, doc.metadata], ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
+    return _dumped([doc.doc_id, doc.date, doc.metadata])
 
 
 def shelf_record(doc: Document) -> bytes:
     """One document as one line of JSON (a list of its fields)."""
-    return json.dumps([doc.doc_id, doc.source, doc.title, doc.text, doc.date, doc.metadata],
-                      ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
+    return _dumped([doc.doc_id, doc.source, doc.title, doc.text, doc.date, doc.metadata])
+
+
+# orjson writes and reads a record in about a fifth of the time of the json module (3.1 s of the 200,000-document
+# run's first pass went to json.dumps). It refuses lone surrogates (a file name or text that was not valid UTF-8
+# keeps its bytes as such): those records are written by the json module with "surrogatepass", which orjson
+# cannot read back, so they are read by the json module as well.
+def _dumped(fields: list[Any]) -> bytes:
+    try:
+        return orjson.dumps(fields) + b"\n"
+    except TypeError:  # orjson.JSONEncodeError: a lone surrogate
+        return json.dumps(fields, ensure_ascii=False).encode("utf-8", "surrogatepass") + b"\n"
+
+
+def _loaded(line: bytes) -> Any:
+    try:
+        return orjson.loads(line)
+    except ValueError:  # orjson.JSONDecodeError: a record with lone surrogates, written by the json module
+        return json.loads(line.decode("utf-8", "surrogatepass"))
 
 
 def _document(line: bytes) -> Document:
-    doc_id, source, title, text, date, metadata = json.loads(line.decode("utf-8", "surrogatepass"))
+    doc_id, source, title, text, date, metadata = _loaded(line)
     return Document(doc_id, source, title, text, date, tuple((str(a), str(b)) for a, b in metadata))
