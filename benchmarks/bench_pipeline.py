@@ -38,8 +38,12 @@ How to run
 
 Options:
   --workdir DIR   keep the generated CSV and the outputs there (default: a temporary folder, removed at the end);
-  --repeat R      run every pipeline R times and report its median run by wall time (the lower middle one for an
-                  even R) with that run's stage timings, and the largest peak memory of all runs;
+  --repeat R      run every pipeline R times, round by round (bare, bare+lsa, pilewise, then again, so that a slow
+                  spell of the machine falls on every pipeline alike), and report its median run by wall time (the
+                  lower middle one for an even R) with that run's stage timings, the largest peak memory of all
+                  runs, and pilewise's wall-time ratio in every round;
+  --pipelines P   the references run besides pilewise, comma-separated (default bare,bare+lsa; bare alone
+                  saves bare+lsa's full LSA, the longest run at 200,000 documents);
   --seed S        seed of the synthetic collection (default 0);
   --threads T     set OMP_NUM_THREADS, OPENBLAS_NUM_THREADS and MKL_NUM_THREADS for every child alike. On a
                   machine shared with other jobs, multi-threaded BLAS can slow down several-fold while it waits
@@ -316,32 +320,62 @@ def pilewise_command() -> list[str]:
     return [script] if script else [sys.executable, "-m", "pilewise"]
 
 
-def measure(
-    name: str, command: list[str], work: Path, repeat: int, labels_of: Any, stages_of: Any, prepare: Any = None
-) -> Measurement:
-    """Run a pipeline `repeat` times; its figures are those of the median run by wall time, peak memory the largest.
+@dataclass
+class Pipeline:
+    """One pipeline to measure: its command and how to read its stages and clusters after a run."""
+
+    name: str
+    command: list[str]
+    labels_of: Any
+    stages_of: Any
+    prepare: Any = None
+    runs: list[tuple[float, float, float, float, dict[str, float], dict[str, Any]]] = field(default_factory=list)
+
+
+def run_once(pipeline: Pipeline, work: Path, r: int, repeat: int) -> None:
+    """Run `pipeline` once and keep its figures (wall, peak memory, CPU, load before, stages, extra)."""
+    if pipeline.prepare:
+        pipeline.prepare()
+    load = os.getloadavg()[0]
+    print(f"  {pipeline.name}: run {r + 1}/{repeat} (load average {load:.2f}) ...", end="", flush=True)
+    wall, peak, cpu = run_measured(pipeline.command, work / f"{pipeline.name}-{r + 1}.log")
+    print(f" {wall:.1f} s, {peak:,.0f} MB, {cpu:.1f} CPU s", flush=True)
+    stages, extra = pipeline.stages_of()
+    extra["nmi"] = pipeline.labels_of()
+    pipeline.runs.append((round(wall, 3), round(peak, 1), round(cpu, 3), round(load, 2), stages, extra))
+
+
+def measurement(pipeline: Pipeline) -> Measurement:
+    """A pipeline's figures: those of its median run by wall time, peak memory the largest.
 
     Stage timings and NMI come from that same median run, so that they add up with its wall time.
     """
-    runs: list[tuple[float, float, float, float, dict[str, float], dict[str, Any]]] = []
-    for r in range(repeat):
-        if prepare:
-            prepare()
-        load = os.getloadavg()[0]
-        print(f"  {name}: run {r + 1}/{repeat} (load average {load:.2f}) ...", end="", flush=True)
-        wall, peak, cpu = run_measured(command, work / f"{name}-{r + 1}.log")
-        print(f" {wall:.1f} s, {peak:,.0f} MB, {cpu:.1f} CPU s", flush=True)
-        stages, extra = stages_of()
-        extra["nmi"] = labels_of()
-        runs.append((round(wall, 3), round(peak, 1), round(cpu, 3), round(load, 2), stages, extra))
+    runs = pipeline.runs
     wall, _, cpu, _, stages, extra = sorted(runs, key=lambda run: run[0])[(len(runs) - 1) // 2]
     nmi = float(extra.pop("nmi"))
     return Measurement(
-        name, command, wall, max(run[1] for run in runs), cpu, nmi,
+        pipeline.name, pipeline.command, wall, max(run[1] for run in runs), cpu, nmi,
         wall_seconds_all=[run[0] for run in runs], peak_rss_mb_all=[run[1] for run in runs],
         cpu_seconds_all=[run[2] for run in runs], load_average_before=[run[3] for run in runs],
         stage_seconds=stages, extra=extra,
     )
+
+
+def measure(
+    name: str, command: list[str], work: Path, repeat: int, labels_of: Any, stages_of: Any, prepare: Any = None
+) -> Measurement:
+    """Run one pipeline `repeat` times in a row (`measurement` of its runs); bench_scale.py measures this way."""
+    pipeline = Pipeline(name, command, labels_of, stages_of, prepare)
+    for r in range(repeat):
+        run_once(pipeline, work, r, repeat)
+    return measurement(pipeline)
+
+
+def round_ratios(results: list[Measurement], reference: str) -> list[float]:
+    """pilewise's wall time over the reference's in each round (the runs of one round follow one another)."""
+    by_name = {m.pipeline: m for m in results}
+    pile, ref = by_name["pilewise"], by_name[reference]
+    return [ratio(a, b) for a, b in zip(pile.wall_seconds_all, ref.wall_seconds_all, strict=True)]
 
 
 # --------------------------------------------------------------------------------------------
@@ -429,8 +463,9 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
         ref: {"time": ratio(pile.wall_seconds, by_name[ref].wall_seconds),
               "cpu": ratio(pile.cpu_seconds, by_name[ref].cpu_seconds),
               "memory": ratio(pile.peak_rss_mb, by_name[ref].peak_rss_mb)}
-        for ref in ("bare", "bare+lsa")
+        for ref in ("bare", "bare+lsa") if ref in by_name
     }
+    rounds = {ref: round_ratios(results, ref) for ref in ratios}
     lines = [
         f"Machine: {info['cpu']}, {info['usable_cores']} usable cores ({info['logical_cores']} logical), "
         f"{info['ram_gb']} GB RAM, {info['os']}",
@@ -449,6 +484,10 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
     lines += ["", "| pilewise / ... | wall time | CPU time | memory |", "|---|---:|---:|---:|"]
     for ref, r in ratios.items():
         lines.append(f"| {ref} | {r['time']:.2f}x | {r['cpu']:.2f}x | {r['memory']:.2f}x |")
+    if any(len(r) > 1 for r in rounds.values()):
+        lines += ["", "Wall-time ratio in each round (the pipelines run one after another in every round, so a slow "
+                  "spell of the machine falls on all of them):"]
+        lines += [f"- pilewise / {ref}: " + ", ".join(f"{x:.2f}x" for x in r) for ref, r in rounds.items()]
     lines += ["", "Stage timings (s):"]
     for m in results:
         lines.append(f"- {m.pipeline}: " + ", ".join(f"{k} {v:.2f}" for k, v in m.stage_seconds.items()))
@@ -475,6 +514,7 @@ def report(n_docs: int, collection: Collection, min_df: int, results: list[Measu
         "machine": info,
         "results": [asdict(m) for m in results],
         "ratios_pilewise_over": ratios,
+        "wall_ratio_by_round": rounds,
         "target_ratio": TARGET_RATIO,
         "target_met": met,
     }
@@ -509,6 +549,8 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--repeat", type=int, default=1, help="runs per pipeline (median time, largest memory)")
     parser.add_argument("--seed", type=int, default=0, help="seed of the synthetic collection")
     parser.add_argument("--profile", action="store_true", help="also run pilewise once under cProfile")
+    parser.add_argument("--pipelines", type=lambda text: tuple(text.split(",")), default=("bare", "bare+lsa"),
+                        help="references to run besides pilewise, comma-separated (default: bare,bare+lsa)")
     parser.add_argument("--threads", type=int, default=None,
                         help="set OMP/OpenBLAS/MKL thread counts of every child (default: the libraries' own)")
     add_child_arguments(parser, ("bare", "bare+lsa"))
@@ -530,8 +572,8 @@ def main(argv: list[str] | None = None) -> None:
         min_df = BARE_MIN_DF
         print(f"  pilewise's own min_df default at this size: {default_min_df(args.docs)}", flush=True)
         planted = read_labels(collection.topics_path, "topic")
-        results: list[Measurement] = []
-        for name in ("bare", "bare+lsa"):
+        pipelines: list[Pipeline] = []
+        for name in [p for p in ("bare", "bare+lsa") if p in args.pipelines]:
             labels_path = work / f"{name}-labels.csv"
             timings_path = work / f"{name}-timings.json"
             command = [sys.executable, str(Path(__file__).resolve()), "--child", name,
@@ -542,8 +584,8 @@ def main(argv: list[str] | None = None) -> None:
                 data = json.loads(timings_path.read_text(encoding="utf-8"))
                 return data["timings_seconds"], {"terms": data["terms"]}
 
-            results.append(measure(
-                name, command, work, args.repeat,
+            pipelines.append(Pipeline(
+                name, command,
                 labels_of=lambda p=labels_path: nmi_against(planted, read_labels(p, "cluster")),
                 stages_of=stages,
             ))
@@ -575,14 +617,19 @@ def main(argv: list[str] | None = None) -> None:
                      "startup_and_imports_seconds": round(startup, 3)}
             return manifest["timings_seconds"], extra
 
-        results.append(measure(
-            "pilewise", command, work, args.repeat,
+        pipelines.append(Pipeline(
+            "pilewise", command,
             labels_of=lambda: nmi_against(planted, read_labels(run_folder() / "assignments.csv", "cluster")),
             stages_of=pilewise_stages,
             prepare=lambda: shutil.rmtree(out, ignore_errors=True),
         ))
+        # round by round (bare, bare+lsa, pilewise, then again), so that the machine's slow and fast spells fall
+        # on every pipeline alike: on the shared 2-core machine the same bare run took 32-38 s within an hour
+        for r in range(args.repeat):
+            for pipeline in pipelines:
+                run_once(pipeline, work, r, args.repeat)
         print()
-        figures = report(args.docs, collection, min_df, results, info)
+        figures = report(args.docs, collection, min_df, [measurement(p) for p in pipelines], info)
         OUT_FOLDER.mkdir(exist_ok=True)
         suffix = f"-threads{args.threads}" if args.threads else ""
         stamp = info["measured_at"].replace("-", "").replace(":", "").replace("+0000", "Z")
