@@ -13,6 +13,7 @@ formula, a footer) or holding a web address come last. No two clusters get the s
 
 from __future__ import annotations
 
+import math
 import re
 from collections import Counter
 from collections.abc import Callable, Sequence
@@ -126,10 +127,15 @@ def term_weights(terms: Sequence[TermScore]) -> dict[str, float]:
 
 
 def carried_weight(text: str, weights: dict[str, float], keys_of: Callable[[str], list[str]]) -> float:
-    """Sum of the weights of the distinct terms (words and adjacent pairs) that `text` holds."""
+    """Sum of the weights of the distinct terms (words and adjacent pairs) that `text` holds.
+
+    Summed with `math.fsum`, whose correctly rounded result does not depend on the order of the terms: a plain
+    sum over the set followed its iteration order, which changes with Python's string hash seed, so two
+    candidates of nearly equal weight could swap places from one run to the next (seen on a change-log mailbox).
+    """
     keys = keys_of(text)
     found = set(keys) | {f"{a} {b}" for a, b in zip(keys, keys[1:], strict=False)}
-    return float(sum(weights.get(k, 0.0) for k in found))
+    return math.fsum(weights.get(k, 0.0) for k in found)
 
 
 def sentences(text: str) -> list[str]:
