@@ -128,11 +128,16 @@ def test_digest_keeps_exactly_the_nearest_rows_of_every_key() -> None:
     assert digest.nearest(keys)[0].size == 0
 
 
-def test_term_holders_are_the_nearest_members_holding_each_term() -> None:
+@pytest.mark.parametrize("block", [None, 700])
+def test_term_holders_are_the_nearest_members_holding_each_term(block: int | None,
+                                                                monkeypatch: pytest.MonkeyPatch) -> None:
+    """Whatever the row blocks (one, or five with ties of distance across them: ties go to the earlier row)."""
+    if block is not None:
+        monkeypatch.setattr(describe, "HOLDER_BLOCK", block)
     rng = np.random.default_rng(4)
     counts = sp.random(3_000, 40, density=0.1, format="csr", random_state=4, data_rvs=lambda m: np.ones(m))
     labels = rng.integers(0, 3, 3_000)
-    distances = rng.random(3_000)
+    distances = np.round(rng.random(3_000), 2)
     pairs = [(0, 5), (1, 5), (2, 17), (1, 39)]
     holders = describe.term_holders(counts, labels, distances, pairs, cap=4)
     dense = counts.toarray() > 0

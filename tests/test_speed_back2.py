@@ -163,3 +163,17 @@ def test_level_terms_from_the_run_clusters_frequencies_equal_a_fresh_count(tree_
         assert merged is None
     # fractional weights: sums in another order could differ in the last bit, so no shortcut either
     assert _merged_run_frequencies((labels, run_df), levels.cuts[finest_k], finest_k, weights + 0.5) is None
+
+
+@pytest.mark.parametrize("tree_kind", ["centroids", "ward"])
+def test_levels_nearest_members_do_not_depend_on_the_row_blocks(tree_kind: str, monkeypatch: pytest.MonkeyPatch
+                                                                 ) -> None:
+    """build_levels finds each cut cluster's nearest member block by block (ties to the earlier row); blocks of 7
+    rows give the same exemplars as one block (the default is 8,192 rows)."""
+    from pilewise.clustering import levels as levels_module
+
+    whole = _levels_case(tree_kind)[0]
+    monkeypatch.setattr(levels_module, "NEAREST_BLOCK", 7)
+    blocked = _levels_case(tree_kind)[0]
+    assert whole.clusters == blocked.clusters
+    assert any(c.exemplar_text > 7 for cut in whole.clusters.values() for c in cut)  # past the first block
