@@ -218,3 +218,17 @@ def test_near_duplicates_are_clustered_once_and_every_copy_is_assigned(tmp_path:
     assert {r["cluster"] for r in auto} == {auto[0]["cluster"]} and {r["copies"] for r in auto} == {"8"}
     page = (out / "runs" / "k4" / "docs" / "d0000000.html").read_text(encoding="utf-8")
     assert "near-duplicate" in page
+
+
+def test_a_folder_of_near_duplicates_names_the_grouping_as_the_cause(tmp_path: Path) -> None:
+    """Six distinct texts that grouping joins into one: the error says so and names --near-duplicate, instead of
+    asking for more documents (before: "found 1 distinct document(s) ... add documents")."""
+    base = "the parcel arrived two days late and the box was wet so please send a replacement for order"
+    for i in range(6):
+        (tmp_path / f"note-{i}.txt").write_text(f"{base} {1000 + i}", encoding="utf-8")
+    result = invoke("run", str(tmp_path), "--k", "2", "--out", str(tmp_path.parent / "out-near"), "--quiet")
+    assert result.exit_code == 1
+    assert result.stderr.strip() == (
+        "pilewise: error: 1 text(s) left of 6 distinct texts after grouping near-duplicates (Jaccard 0.8 or more); "
+        "clustering needs at least 3, so pass --near-duplicate 1 to turn grouping off, or a value nearer 1"
+    )

@@ -349,6 +349,12 @@ def prepare_collection(options: RunOptions, reporter: Reporter, *, k_needed: int
                 texts = [texts[i] for i in near.representative]
                 reporter.say(f"{len(near.group_of) - near.representative.size:,} near-duplicate texts joined "
                              f"their groups; {near.representative.size:,} texts to cluster")
+        if near is not None and near.representative.size < 3:  # the documents were there: grouping joined them
+            raise PilewiseError(
+                f"{near.representative.size} text(s) left of {len(near.group_of):,} distinct texts after grouping "
+                f"near-duplicates (Jaccard {options.near_duplicate:g} or more); clustering needs at least 3, so pass "
+                "--near-duplicate 1 to turn grouping off, or a value nearer 1"
+            )
         check_k(k_needed, int(collection.copies.size),
                 "texts left after grouping near-duplicates (--near-duplicate 1 turns grouping off)")
         with reporter.stage("detecting languages"):
