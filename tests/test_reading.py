@@ -145,3 +145,23 @@ def test_ragged_csv_rows_are_reported_with_their_line(tmp_path: Path) -> None:
     skipped = [(e.source, e.reason, e.detail) for e in ingested.entries if e.status == "skipped"]
     assert skipped == [("t.csv#line3", "malformed row", "3 fields where the header has 2"),
                        ("t.csv#line6", "malformed row", "1 fields where the header has 2")]
+
+
+def test_a_skipped_archive_or_document_says_what_to_do(tmp_path: Path) -> None:
+    """Report lines of archives and of documents whose text needs a converter name the fix (common practice: a
+    skipped file's line says how to make it readable); other skipped types keep their plain line."""
+    folder = tmp_path / "export"
+    folder.mkdir()
+    (folder / "tickets.txt").write_text("the parcel arrived wet", encoding="utf-8")
+    (folder / "older.csv.gz").write_bytes(b"\x1f\x8b\x08\x00")
+    (folder / "contract.docx").write_bytes(b"PK\x03\x04")
+    (folder / "logo.png").write_bytes(b"\x89PNG")
+    details = {e.source: e.detail for e in read(folder).entries if e.status == "skipped"}
+    assert details == {
+        "older.csv.gz": "file type .gz: an archive or compressed file; unpack it and point SOURCE at what it holds",
+        "contract.docx": "file type .docx: its text needs a converter; save it as plain text or as a .csv table first",
+        "logo.png": "file type .png",
+    }
+    with pytest.raises(PilewiseError, match=r"'older.csv.gz' is not a supported file type; an archive or compressed "
+                                            r"file; unpack it and point SOURCE at what it holds; pass a folder"):
+        read(folder / "older.csv.gz")

@@ -47,6 +47,10 @@ UNSUPPORTED_SUFFIXES = {
     ".woff", ".woff2", ".sqlite", ".sqlite3", ".db", ".mdb", ".npy", ".npz", ".pkl", ".pickle", ".h5", ".hdf5",
     ".feather", ".avro", ".orc",
 }
+# what the report line of a skipped archive or document tells the user to do (the fix, not only the type)
+UNPACK_SUFFIXES = {".zip", ".gz", ".tgz", ".bz2", ".xz", ".zst", ".7z", ".rar", ".tar"}
+CONVERT_SUFFIXES = {".pdf", ".doc", ".docx", ".xls", ".xlsx", ".ppt", ".pptx", ".odt", ".ods", ".odp", ".rtf",
+                    ".epub"}
 SNIFF_BYTES = 8192  # the first bytes of a file of no known type that decide whether it is read as text
 _BINARY = "binary content"
 # Read row by row or message by message, so --max-file-mb does not apply to them; .json is parsed whole.
@@ -422,9 +426,11 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool, encoding: s
     if kind == "":
         if single:
             raise PilewiseError(
-                f"{rel!r} is not a supported file type; pass a folder, or a .csv/.tsv/.json/.jsonl/.parquet table"
+                f"{rel!r} is not a supported file type{_what_to_do(suffix, '; ')}; pass a folder, or a "
+                ".csv/.tsv/.json/.jsonl/.parquet table"
             )
-        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "unsupported", f"file type {suffix or '(none)'}"))
+        return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "unsupported",
+                                                  f"file type {suffix or '(none)'}{_what_to_do(suffix, ': ')}"))
     if size == 0:
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "empty", "0 bytes"))
     # tables and mailboxes are read a row or a message at a time, so their size is no risk to memory
@@ -433,6 +439,15 @@ def _plan(path: Path, rel: str, limits: ReadLimits, *, single: bool, encoding: s
         detail = f"{size / 1024 / 1024:.1f} MB; raise --max-file-mb (now {limit_mb:g}) to read it"
         return _Planned(path, rel, 0, IngestEntry(rel, "skipped", "too large", detail))
     return _Planned(path, rel, size, kind=kind)
+
+
+def _what_to_do(suffix: str, lead: str) -> str:
+    """What makes a skipped archive or document readable, after `lead`; "" for other types."""
+    if suffix in UNPACK_SUFFIXES:
+        return f"{lead}an archive or compressed file; unpack it and point SOURCE at what it holds"
+    if suffix in CONVERT_SUFFIXES:
+        return f"{lead}its text needs a converter; save it as plain text or as a .csv table first"
+    return ""
 
 
 def _kind(path: Path, suffix: str, encoding: str | None = None) -> str:
