@@ -167,3 +167,18 @@ def test_silhouette_is_undefined_when_every_point_is_its_own_cluster() -> None:
     # scikit-learn docs: silhouette is defined for 2 <= number of labels <= n - 1.
     scores = assess(np.eye(3), np.array([0, 1, 2]), k=3, seed=0)
     assert scores.silhouette is None and scores.silhouette_reading == "not defined"
+
+
+def test_silhouettes_of_a_small_space_keep_scikit_learns_one_chunk_result() -> None:
+    """Reference library: scikit-learn's silhouette_score in one chunk (its default 1 GB working memory) sets
+    every row's distance to itself to 0. Split into chunks, a row without terms (all zeros) is at cosine
+    distance 1 from itself, so its silhouette moves; up to ONE_CHUNK_MB of distances assess stays in one chunk
+    (1,500 rows here; 16 MB chunks would split them in two, as they once moved three of the demo's)."""
+    rng = np.random.default_rng(3)
+    space = rng.normal(size=(1_500, 40))
+    space[::100] = 0.0  # 15 texts without terms
+    labels = rng.integers(0, 4, 1_500)
+    scores = assess(space, labels, k=4, seed=0)
+    assert quality.distance_chunk_mb(1_500) == quality.ONE_CHUNK_MB
+    assert scores.silhouette == pytest.approx(silhouette_score(space, labels, metric="cosine"), abs=1e-12)
+    assert quality.distance_chunk_mb(5_000) == quality.DISTANCE_CHUNK_MB  # 200 MB of distances: chunked

@@ -28,8 +28,18 @@ BLOCK_ROWS = 50_000
 # scikit-learn computes the silhouettes' distances in chunks of `working_memory` MB (1 GB by default). A chunk
 # is held about twice over (the similarities and the distances made of them): at 64 MB the 5,000-row sample's
 # silhouettes raised the peak memory by 149 MB, at 16 MB by 34 MB, in the same time and with bit-identical
-# widths (5,000 x 100 rows, measured); at 50,000 documents the silhouettes had been the run's peak.
+# widths (5,000 x 100 rows, measured); at 50,000 documents the silhouettes had been the run's peak. Rows that fit
+# in one chunk of ONE_CHUNK_MB keep it: there scikit-learn sets each row's distance to itself to exactly 0, while
+# across chunks a text without terms (a zero row) is at cosine distance 1 from itself, which moved three of the
+# demo's silhouettes by 1/245 when its 1,464 rows were split in two.
 DISTANCE_CHUNK_MB = 16
+ONE_CHUNK_MB = 64
+
+
+def distance_chunk_mb(n_rows: int) -> int:
+    """The `working_memory` for the silhouettes of `n_rows` rows: one chunk up to ONE_CHUNK_MB of distances, as
+    before, else chunks of DISTANCE_CHUNK_MB."""
+    return ONE_CHUNK_MB if n_rows * n_rows * 8 <= ONE_CHUNK_MB * 2**20 else DISTANCE_CHUNK_MB
 
 
 NULL_STARTS = 4  # k-means++ starts for the clustering of the null reference
@@ -84,7 +94,7 @@ def null_silhouette(rows: np.ndarray | sp.csr_matrix, k: int, *, seed: int, star
     present = np.unique(labels).size
     if not 2 <= present <= shuffled.shape[0] - 1:
         return None
-    with config_context(working_memory=DISTANCE_CHUNK_MB):
+    with config_context(working_memory=distance_chunk_mb(shuffled.shape[0])):
         return float(silhouette_samples(shuffled, labels, metric="cosine").mean())
 
 
@@ -109,7 +119,7 @@ def assess(space: np.ndarray | sp.csr_matrix, labels: np.ndarray, *, k: int, see
     silhouette: float | None = None
     null: float | None = None
     if np.unique(sample_labels).size >= 2:
-        with config_context(working_memory=DISTANCE_CHUNK_MB):
+        with config_context(working_memory=distance_chunk_mb(rows.size)):
             widths = silhouette_samples(space[rows], sample_labels, metric="cosine")
         silhouette = float(widths.mean())
         per_cluster = [float(widths[sample_labels == c].mean()) if np.any(sample_labels == c) else float("nan")
