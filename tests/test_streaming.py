@@ -150,6 +150,7 @@ def test_describing_respects_small_digest_bounds(
     monkeypatch.setattr(describe, "HEADLINE_CANDIDATES", 2)  # the nearest members the headline is chosen from
     monkeypatch.setattr(describe, "KWIC_HOLDERS_KEPT", 3)
     monkeypatch.setattr(describe, "ROW_BLOCK", 500)
+    monkeypatch.setattr(describe, "HOLDER_BLOCK", 500)  # the term holders' own block size
     seen: list[tuple[int, int]] = []
     update = NearestDigest.update
 
