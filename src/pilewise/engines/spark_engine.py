@@ -51,6 +51,7 @@ from pilewise.vectors.tfidf import (
     Vectorized,
     VectorSettings,
     alphabetical,
+    fit_sampled,
     lsa_size,
     no_terms_left,
     smooth_idf,
@@ -241,7 +242,7 @@ def prepare_on_spark(spark: Any, options: RunOptions, reporter: Reporter) -> Spa
         reporter.say(f"{len(terms):,} terms kept ({int(is_phrase.sum()):,} two-word phrases); min_df {min_df}")
         fit_sample = [_counted(bag, column_of) for *_, bag in bags.takeSample(False, LSA_FIT_ROWS, options.seed)]
         svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
-        svd.fit(tfidf_rows(space_matrix(fit_sample, space_position, int(space_columns.size)), idf))
+        fit_sampled(svd, tfidf_rows(space_matrix(fit_sample, space_position, int(space_columns.size)), idf))
         project = _Project(column_of, space_position, idf, svd)
         placed = bags.mapPartitions(project.rows).persist(keep)
         without_terms = placed.filter(lambda row: not np.any(space_position[row[3]] >= 0)).count()

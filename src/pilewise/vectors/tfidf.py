@@ -175,6 +175,12 @@ LSA_FIT_ROWS = 20_000  # rows of the seeded sample LSA is fitted on in both mode
 # Rows projected at once when LSA is fitted on a sample: at 50,000 texts, 10,000 rows at a time lowers the
 # step's peak memory from 236 to 150 MB (tracemalloc) with the same space (rows are projected one by one).
 PROJECT_ROWS = 10_000
+# The sampled LSA fit runs in single precision: randomized SVD's time is in the sparse-dense products, which
+# float32 halves (2.62 s against 1.37 s of CPU on 20,000 rows of the 50,000-document benchmark), and the
+# captured variance agrees to six digits (docs/performance.md, "Eighth pass"). The rows are projected on the
+# float32 components in double precision, as `pilewise assign` projects them. A fit on every row (up to
+# LSA_FIT_ROWS texts, the demo among them) stays in double precision.
+LSA_FIT_DTYPE = np.float32
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
 
@@ -543,6 +549,11 @@ def fit_beside(n_texts: int, settings: VectorSettings, workers: int) -> bool:
             and not settings.bigrams_in_space and "fork" in multiprocessing.get_all_start_methods())
 
 
+def fit_sampled(svd: TruncatedSVD, rows: sp.csr_matrix) -> TruncatedSVD:
+    """`svd` fitted on the TF-IDF rows of an LSA sample, in LSA_FIT_DTYPE (both modes, and the Spark engine)."""
+    return svd.fit(rows.astype(LSA_FIT_DTYPE))
+
+
 def lsa_sample(n_rows: int, fit_rows: int, seed: int) -> np.ndarray:
     """The rows (sorted) of the seeded sample that LSA is fitted on."""
     return np.sort(np.random.default_rng(seed).choice(n_rows, min(n_rows, fit_rows), replace=False))
@@ -560,7 +571,7 @@ def _fit_words() -> TruncatedSVD | None:
     idf = smooth_idf(document_frequency(words, copies)[columns], n_documents)
     svd = TruncatedSVD(n_components=components, random_state=settings.seed, algorithm="randomized")
     with one_thread_each():  # the main process counts phrases on the other core meanwhile
-        return svd.fit(tfidf_rows(words[sample][:, columns], idf))
+        return fit_sampled(svd, tfidf_rows(words[sample][:, columns], idf))
 
 
 class FitBeside:
@@ -654,7 +665,7 @@ def weigh_and_reduce(
         if fitted is not None and fitted.n_components == components:
             svd = fitted
         else:
-            svd.fit(tfidf_rows(in_space[sample], idf))
+            fit_sampled(svd, tfidf_rows(in_space[sample], idf))
         space = np.empty((n, components), dtype=space_dtype)
         starts = range(0, n, block_rows)
         for start in track(starts) if track else starts:
