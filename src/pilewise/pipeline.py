@@ -484,9 +484,26 @@ def compute_run(
         prepared = prepare_collection(options, reporter, k_needed=options.k_min if options.k_auto else options.k,
                                       work=work)
         k_min, k_max = check_k_range(options.k_min, options.k_max, int(prepared.weights.size))
-        k, clustering, tree, sweep = _clustered(options, prepared, k_min, k_max, reporter)
+        # The map's layout needs only the space: its worker starts before clustering (see _map_job)
+        with _Beside({"map": _map_job(options, prepared)}, background=_second_core(options)) as early:
+            k, clustering, tree, sweep = _clustered(options, prepared, k_min, k_max, reporter)
+            return _described(options, reporter, prepared, k, k_min, k_max, clustering, tree, sweep, totals,
+                              None, early)
     return _described(options, reporter, prepared, k, k_min, k_max, clustering, tree, sweep, totals,
-                      on_spark.population if on_spark else None)
+                      on_spark.population, None)
+
+
+def _second_core(options: RunOptions) -> bool:
+    """Whether jobs go to a worker process beside this one (a second core; `--workers 1` keeps them here)."""
+    return (options.workers or default_workers()) > 1
+
+
+def _map_job(options: RunOptions, prepared: Prepared) -> Job:
+    """The map's t-SNE layout of a seeded sample of the space. It needs neither the clusters nor anything after
+    them, so local runs start it in a worker before clustering: at 50,000 documents it had been the longest job
+    of the worker beside assessing and describing, which this process then waited for (about 1.3 s)."""
+    rows = docmap.sample_rows(int(prepared.weights.size), docmap.MAP_CAP, options.seed)
+    return (docmap.layout, (prepared.vectors.space[rows], options.seed), {})
 
 
 def _clustered(
@@ -514,14 +531,14 @@ def _clustered(
 def _described(
     options: RunOptions, reporter: Reporter, prepared: Prepared, k: int, k_min: int, k_max: int,
     clustering: Clustering, tree: Tree | None, sweep: Sweep | None, totals: ClusterTotals | None,
-    population: Population | None,
+    population: Population | None, early: _Beside | None,
 ) -> RunResult:
     """Assessing, describing and explaining a clustering (the stages every engine shares), and the map.
 
-    The map's t-SNE and the rules' 126 tree fits need only the space, the counts, the labels and the seed,
-    so they are handed to one worker process (`_Beside`) that runs them on the second core while assessing
-    and describing run here, where there is a second core (not beside Spark's threads). Their results are
-    the same either way (tested).
+    The rules' 126 tree fits need only the counts, the labels and the seed, so they are handed to one worker
+    process (`_Beside`) that runs them on the second core while assessing and describing run here, where there
+    is a second core (not beside Spark's threads). The map's t-SNE is taken from `early`, the worker started
+    before clustering, or done in that worker too (Spark). Their results are the same either way (tested).
     """
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
@@ -542,13 +559,13 @@ def _described(
         metadata = analyse_metadata(doc_columns, doc_labels, np.ones(doc_labels.size), k=k) if doc_columns else None
         first = prepared.collection.first_doc_of_text
         columns = {name: [column[j] for j in first] for name, column in doc_columns.items()}
-    rows = docmap.sample_rows(distinct, docmap.MAP_CAP, options.seed)
     jobs: dict[str, Job] = {
-        "map": (docmap.layout, (space[rows], options.seed), {}),
         "rules": (explain_run, (prepared.vectors.counts, weights, clustering.labels, shown, metadata, columns),
                   {"k": k, "seed": options.seed}),
     }
-    with _Beside(jobs, background=population is None and (options.workers or default_workers()) > 1) as beside:
+    if early is None:
+        jobs["map"] = _map_job(options, prepared)
+    with _Beside(jobs, background=population is None and _second_core(options)) as beside:
         with reporter.stage("assessing"):
             quality = assess(space, clustering.labels, k=k, seed=options.seed)
             sample = stability_rows(distinct, options.seed)
@@ -581,7 +598,7 @@ def _described(
         with reporter.stage("explaining"):  # in the worker: the wait for it
             rules: RuleSet = beside.result("rules")
         with reporter.stage("laying out the map"):
-            points: np.ndarray = beside.result("map")
+            points: np.ndarray = (early or beside).result("map")
     suggestions = [c.suggested_name for c in clusters]
     old_names = find_old_names(options.out / "runs", source=str(options.source), fingerprint=prepared.fingerprint)
     naming = carry_names(old_names, doc_ids, clustering.labels[prepared.collection.text_of_doc], space,
