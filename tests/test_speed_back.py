@@ -110,6 +110,30 @@ def test_a_run_with_the_map_beside_gives_the_files_of_the_serial_run(
     assert differing in ([], ["manifest.json"])  # its timings, its output path and the workers option
 
 
+def test_the_maps_worker_is_forked_before_clustering_and_the_rules_worker_after_it(
+    topic_folder: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The map needs only the space, so its worker starts before clustering (common practice: start independent
+    work as early as its inputs exist); the rules need the labels, so theirs starts after."""
+    from pilewise import pipeline
+
+    events: list[str] = []
+    enter, clustered = pipeline._Beside.__enter__, pipeline._clustered
+
+    def entering(self: _Beside) -> _Beside:
+        events.append("worker: " + ", ".join(sorted(self.jobs)))
+        return enter(self)
+
+    def clustering(*args: object, **kwargs: object) -> object:
+        events.append("clustering")
+        return clustered(*args, **kwargs)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(pipeline._Beside, "__enter__", entering)
+    monkeypatch.setattr(pipeline, "_clustered", clustering)
+    run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "site", seed=1, quiet=True, workers=2))
+    assert events == ["worker: map", "clustering", "worker: rules"]
+
+
 def test_every_stage_of_a_run_has_a_timing(topic_folder: Path, tmp_path: Path) -> None:
     """The benchmark's time outside the recorded stages was language detection, the map and saving the model."""
     outcome = run_collection(RunOptions(source=topic_folder, k=3, out=tmp_path / "site", seed=1, quiet=True))

@@ -537,8 +537,8 @@ def _described(
 
     The rules' 126 tree fits need only the counts, the labels and the seed, so they are handed to one worker
     process (`_Beside`) that runs them on the second core while assessing and describing run here, where there
-    is a second core (not beside Spark's threads). The map's t-SNE is taken from `early`, the worker started
-    before clustering, or done in that worker too (Spark). Their results are the same either way (tested).
+    is a second core (not beside Spark's threads). The map's t-SNE comes from `early`, the worker started before
+    clustering, or (Spark runs) is done here with the rules. Their results are the same either way (tested).
     """
     space, weights = prepared.vectors.space, prepared.weights
     distinct = int(weights.size)
