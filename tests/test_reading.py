@@ -165,3 +165,52 @@ def test_a_skipped_archive_or_document_says_what_to_do(tmp_path: Path) -> None:
     with pytest.raises(PilewiseError, match=r"'older.csv.gz' is not a supported file type; an archive or compressed "
                                             r"file; unpack it and point SOURCE at what it holds; pass a folder"):
         read(folder / "older.csv.gz")
+
+
+def test_gzipped_text_files_are_read_in_place_and_gzipped_archives_and_tables_are_not(tmp_path: Path) -> None:
+    """A gzip file holding one text, HTML or mail file is read as that file. Reference: the standard library's
+    gzip.decompress of the same bytes, read by the same reader. Real files of this machine: the manual pages
+    Debian installs gzipped under /usr/share/man/man1 (roff source, read as plain text, which the line says)."""
+    import gzip
+    import io
+    import tarfile
+
+    from pilewise.ingest.reading import ReadLimits, document_from_bytes
+
+    folder = tmp_path / "export"
+    folder.mkdir()
+    manuals = sorted(Path("/usr/share/man/man1").glob("*.1.gz"))[:3]
+    for page in manuals:
+        (folder / page.name).write_bytes(page.read_bytes())
+    (folder / "ticket.txt.gz").write_bytes(gzip.compress(b"The fern arrived with yellow leaves.\n"))
+    (folder / "cut.txt.gz").write_bytes(gzip.compress(b"a parcel left at the wrong door " * 50)[:40])
+    (folder / "blob.bin.gz").write_bytes(gzip.compress(bytes(range(256)) * 8))
+    (folder / "big.txt.gz").write_bytes(gzip.compress(b"compost " * 200_000))  # 1.6 MB inside 5 KB
+    (folder / "rows.csv.gz").write_bytes(gzip.compress(b"id,text\n1,wet parcel\n"))
+    bundle = io.BytesIO()
+    with tarfile.open(fileobj=bundle, mode="w:gz") as tar:
+        info = tarfile.TarInfo("inside.txt")
+        info.size = 5
+        tar.addfile(info, io.BytesIO(b"hello"))
+    (folder / "bundle.tar.gz").write_bytes(bundle.getvalue())
+    limits = ReadLimits(max_file_bytes=1_000_000)
+    ingested = read(folder, limits=limits)
+    docs = {d.doc_id: d for d in ingested.documents}
+    lines = {e.source: (e.status, e.reason, e.detail) for e in ingested.entries}
+    assert set(docs) == {"ticket.txt.gz", *(page.name for page in manuals)}
+    assert docs["ticket.txt.gz"].text == "The fern arrived with yellow leaves."
+    for page in manuals:
+        expected, _ = document_from_bytes(gzip.decompress(page.read_bytes()), page.name, ".1", limits)
+        assert expected is not None and docs[page.name].text == expected.text
+        assert lines[page.name] == ("document", "read", "decompressed from gzip; file type .1 read as plain text")
+    assert lines["ticket.txt.gz"] == ("document", "read", "decompressed from gzip")
+    assert lines["cut.txt.gz"][:2] == ("skipped", "unreadable") and "damaged gzip data" in lines["cut.txt.gz"][2]
+    assert lines["blob.bin.gz"][:2] == ("skipped", "binary")
+    assert lines["big.txt.gz"] == ("skipped", "too large",
+                                   "more than 0.953674 MB once decompressed; raise --max-file-mb to read it")
+    unpack = "file type .gz: an archive or compressed file; unpack it and point SOURCE at what it holds"
+    assert lines["rows.csv.gz"] == lines["bundle.tar.gz"] == ("skipped", "unsupported", unpack)
+    # nothing lost: every file is a document or a line of the report
+    assert {p.name for p in folder.iterdir()} == set(docs) | {s for s, (status, *_) in lines.items()
+                                                             if status == "skipped"}
+    assert [d.doc_id for d in read(folder / "ticket.txt.gz").documents] == ["ticket.txt.gz"]

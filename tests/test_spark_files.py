@@ -7,6 +7,7 @@ One run serves both checks: a Spark run is some 60 Spark jobs of fixed cost howe
 
 from __future__ import annotations
 
+import gzip
 import mailbox
 import shutil
 from email.message import EmailMessage
@@ -64,6 +65,11 @@ def folder_run(spark: Any, tmp_path_factory: pytest.TempPathFactory) -> tuple[Pa
     (folder / "logo.png").write_bytes(b"\x89PNG\r\n\x1a\n" + bytes(range(256)))
     (folder / "empty.txt").write_bytes(b"")
     (folder / "note.txt").write_text("The oven and the whisk, flour and butter.\n", encoding="utf-8")
+    # gzip files holding one text file are read in place by both readers (a real manual page where there is one)
+    (folder / "recipe.txt.gz").write_bytes(gzip.compress(b"Flour, butter and sugar, whisked in the oven dish.\n"))
+    (folder / "cut.txt.gz").write_bytes(gzip.compress(b"a whisk and an oven " * 40)[:30])
+    for page in sorted(Path("/usr/share/man/man1").glob("*.1.gz"))[:1]:
+        (folder / page.name).write_bytes(page.read_bytes())
     _write_mailboxes(folder)
     local = read(folder)
     with pytest.MonkeyPatch.context() as patch:
@@ -81,6 +87,7 @@ def test_spark_reads_a_folder_of_real_files_like_the_local_reader(folder_run: tu
     report = read_ingest_report(run)
     reasons = {row["source"]: row["reason"] for row in report if row["status"] == "skipped"}
     assert reasons["logo.png"] == "unsupported" and reasons["empty.txt"] == "empty"
+    assert reasons["cut.txt.gz"] == "unreadable" and "recipe.txt.gz" in {row["doc_id"] for row in rows}
     # nothing lost: every file of the folder is the source of a document or a skipped line of the report
     # (a message's source is its mailbox's name, "#msgN" after it)
     accounted = {source.split("#")[0] for source in [*(row["source"] for row in rows), *reasons]}

@@ -9,6 +9,7 @@ few: skipped files and rows, notes), documents stay on Spark.
 
 from __future__ import annotations
 
+import io
 import json
 import os
 import posixpath
@@ -23,6 +24,7 @@ from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import first_line_title
 from pilewise.ingest.reading import (
     _MBOX_FROM_LINE,
+    GZIP_SUFFIX,
     HTML_SUFFIXES,
     MAIL_SUFFIXES,
     MBOX_SUFFIXES,
@@ -33,7 +35,10 @@ from pilewise.ingest.reading import (
     _Progress,
     _read_mbox,
     document_from_bytes,
+    gunzipped_document,
+    gzip_inner_suffix,
     head_not_text,
+    read_gzip,
 )
 from pilewise.ingest.tables import FLATTEN_DEPTH, SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
 from pilewise.model import Document, IngestEntry
@@ -371,6 +376,9 @@ class _FileReader:
         for row, number in rows:
             rel = self.relative(row["path"])
             suffix = posixpath.splitext(rel)[1].lower()
+            if suffix == GZIP_SUFFIX and gzip_inner_suffix(rel) is not None:  # as the local reader
+                yield from self.gunzipped(bytes(row["content"]), rel, number)
+                continue
             if suffix in TABLE_KINDS or suffix in UNSUPPORTED_SUFFIXES:
                 detail = ("the spark engine reads one table at a time; pass this table as SOURCE"
                           if suffix in TABLE_KINDS else f"file type {suffix}")
@@ -392,12 +400,28 @@ class _FileReader:
             if not_text:
                 yield "entry", IngestEntry(rel, "skipped", "binary", f"binary content ({not_text}); no known file type")
                 continue
-            doc, found = document_from_bytes(content, rel, suffix, self.limits, self.encoding)
-            for entry in found:
-                if entry.status != "document" or entry.detail:  # plain "read" lines would repeat assignments.csv
-                    yield "entry", entry
-            if doc is not None:
-                yield "doc", (number * PER_FILE, doc)
+            yield from self.found(*document_from_bytes(content, rel, suffix, self.limits, self.encoding), number)
+
+    def gunzipped(self, content: bytes, rel: str, number: int) -> Iterator[tuple[str, Any]]:
+        """A gzip file holding one text, HTML or mail file, read as the local reader reads it."""
+        unpacked, reason, detail = read_gzip(io.BytesIO(content), self.limits.max_file_bytes)
+        if unpacked is None:
+            yield "entry", IngestEntry(rel, "skipped", reason, detail)
+            return
+        not_text = ("" if gzip_inner_suffix(rel) in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES
+                    else head_not_text(unpacked, self.encoding))
+        if not_text:
+            yield "entry", IngestEntry(rel, "skipped", "binary", f"binary content ({not_text}); no known file type")
+            return
+        yield from self.found(*gunzipped_document(unpacked, rel, self.limits, self.encoding), number)
+
+    @staticmethod
+    def found(doc: Document | None, entries: list[IngestEntry], number: int) -> Iterator[tuple[str, Any]]:
+        for entry in entries:
+            if entry.status != "document" or entry.detail:  # plain "read" lines would repeat assignments.csv
+                yield "entry", entry
+        if doc is not None:
+            yield "doc", (number * PER_FILE, doc)
 
     def messages(self, content: bytes, rel: str, number: int) -> Iterator[tuple[str, Any]]:
         """An mbox file's messages as documents (``file#msgN``), split by the local reader's own code: it reads

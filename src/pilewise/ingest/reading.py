@@ -9,14 +9,17 @@ from __future__ import annotations
 import email
 import email.policy
 import email.utils
+import gzip
 import mailbox
 import os
 import re
 import stat
+import zlib
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, replace
 from email.message import EmailMessage
 from pathlib import Path
+from typing import BinaryIO
 
 from pilewise.errors import PilewiseError
 from pilewise.ingest.plaintext import (
@@ -52,6 +55,9 @@ UNPACK_SUFFIXES = {".zip", ".gz", ".tgz", ".bz2", ".xz", ".zst", ".7z", ".rar", 
 CONVERT_SUFFIXES = {".pdf", ".doc", ".docx", ".xls", ".xlsx", ".ppt", ".pptx", ".odt", ".ods", ".odp", ".rtf",
                     ".epub"}
 SNIFF_BYTES = 8192  # the first bytes of a file of no known type that decide whether it is read as text
+# A gzip file holding one text, HTML or mail file (notes.txt.gz, a manual page such as ls.1.gz) is read in place,
+# as the file it holds; a gzipped table, mailbox or tar archive is still to be unpacked (they are read by path).
+GZIP_SUFFIX = ".gz"
 _BINARY = "binary content"
 # Read row by row or message by message, so --max-file-mb does not apply to them; .json is parsed whole.
 STREAMED_SUFFIXES = {".csv", ".tsv", ".jsonl", ".ndjson", ".parquet"} | MBOX_SUFFIXES
@@ -450,9 +456,44 @@ def _what_to_do(suffix: str, lead: str) -> str:
     return ""
 
 
+def gzip_inner_suffix(name: str) -> str | None:
+    """The suffix of the file a gzip file of this name holds (``notes.txt.gz`` -> ``.txt``, ``ls.1.gz`` -> ``.1``,
+    ``README.gz`` -> ``""``), or None when it is not read in place: a table, a mailbox or a tar archive."""
+    inner = os.path.splitext(os.path.splitext(name)[0])[1].lower()
+    if inner in TABLE_SUFFIXES or inner in MBOX_SUFFIXES or inner == ".tar":
+        return None
+    return inner
+
+
+def read_gzip(handle: BinaryIO, max_bytes: int) -> tuple[bytes | None, str, str]:
+    """The bytes a gzip stream holds, at most `max_bytes` of them: (bytes, "", ""), or (None, reason, detail) for
+    the ingest report when the stream is damaged or holds more (a small file can hold gigabytes)."""
+    try:
+        raw = gzip.GzipFile(fileobj=handle, mode="rb").read(max_bytes + 1)
+    except (OSError, EOFError, zlib.error) as err:  # BadGzipFile is an OSError; a cut-off stream an EOFError
+        return None, "unreadable", f"damaged gzip data ({err or type(err).__name__}); unpack it to see what is left"
+    if len(raw) > max_bytes:
+        limit_mb = max_bytes / 1024 / 1024
+        return None, "too large", f"more than {limit_mb:g} MB once decompressed; raise --max-file-mb to read it"
+    return raw, "", ""
+
+
 def _kind(path: Path, suffix: str, encoding: str | None = None) -> str:
     """How a file is read: "table", "mbox" or "file"; "" for a type pilewise does not read; for a file of
     no known type whose first bytes are not text, "binary content (...)" saying why."""
+    if suffix == GZIP_SUFFIX:
+        inner = gzip_inner_suffix(path.name)
+        if inner is None:
+            return ""
+        if inner in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES:
+            return "file"
+        try:
+            with gzip.open(path, "rb") as stream:
+                head = stream.read(SNIFF_BYTES)
+        except (OSError, EOFError, zlib.error):
+            return "file"  # reading the file itself reports why it cannot be read
+        not_text = head_not_text(head, encoding)
+        return f"{_BINARY} ({not_text})" if not_text else "file"
     if suffix in TABLE_SUFFIXES:
         return "table"
     if suffix in MBOX_SUFFIXES:
@@ -503,11 +544,28 @@ def _read_file(
 ) -> tuple[Document | None, list[IngestEntry]]:
     """One text, HTML or mail file: its document, if any, and its report entries; `encoding` is --encoding,
     `voted` the encoding the folder's vote chose for this file (`plaintext.vote_encoding`)."""
+    suffix = path.suffix.lower()
     try:
-        raw = path.read_bytes()
+        if suffix != GZIP_SUFFIX:
+            raw = path.read_bytes()
+        else:
+            with path.open("rb") as handle:
+                unpacked, reason, detail = read_gzip(handle, limits.max_file_bytes)
+            if unpacked is None:
+                return None, [IngestEntry(rel, "skipped", reason, detail)]
+            return gunzipped_document(unpacked, rel, limits, encoding)
     except OSError as err:
         return None, [IngestEntry(rel, "skipped", "unreadable", err.strerror or str(err))]
-    return document_from_bytes(raw, rel, path.suffix.lower(), limits, encoding, voted)
+    return document_from_bytes(raw, rel, suffix, limits, encoding, voted)
+
+
+def gunzipped_document(
+    unpacked: bytes, rel: str, limits: ReadLimits, encoding: str | None
+) -> tuple[Document | None, list[IngestEntry]]:
+    """`document_from_bytes` of what a gzip file held, read as its inner suffix says; its report line says so."""
+    doc, entries = document_from_bytes(unpacked, rel, gzip_inner_suffix(rel) or "", limits, encoding)
+    return doc, [replace(e, detail="; ".join(filter(None, ["decompressed from gzip", e.detail])))
+                 if e.status == "document" else e for e in entries]
 
 
 def document_from_bytes(
