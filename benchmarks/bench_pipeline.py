@@ -67,6 +67,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Iterable, Iterator
 from dataclasses import asdict, dataclass, field
 from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
@@ -144,6 +145,22 @@ class Collection:
     labels: str = f"{TOPICS} planted topics"
 
 
+def write_collection(folder: Path, stem: str, rows: Iterable[tuple[str, str, int]]) -> tuple[Path, Path]:
+    """Write `folder`/STEM.csv (doc_id,text) and `folder`/STEM-topics.csv (doc_id,topic) from (doc_id, text, topic)."""
+    csv_path, topics_path = folder / f"{stem}.csv", folder / f"{stem}-topics.csv"
+    with csv_path.open("w", encoding="utf-8", newline="") as text_out, topics_path.open(
+        "w", encoding="utf-8", newline=""
+    ) as topic_out:
+        text_writer = csv.writer(text_out, lineterminator="\n")
+        topic_writer = csv.writer(topic_out, lineterminator="\n")
+        text_writer.writerow(["doc_id", "text"])
+        topic_writer.writerow(["doc_id", "topic"])
+        for doc_id, text, topic in rows:
+            text_writer.writerow([doc_id, text])
+            topic_writer.writerow([doc_id, topic])
+    return csv_path, topics_path
+
+
 def gloss_collection(n_docs: int, folder: Path, seed: int) -> Collection:
     """Write `folder`/glosses-N.csv (doc_id,text) and glosses-N-topics.csv (doc_id,topic) from a seeded sample of
     N WordNet noun glosses (real English, 5-30 words each: the length of short survey answers), labelled by their
@@ -155,18 +172,10 @@ def gloss_collection(n_docs: int, folder: Path, seed: int) -> Collection:
     glosses = open_sets.load_wordnet_glosses(sample=n_docs, seed=seed)
     if len(glosses.texts) < n_docs:
         raise SystemExit(f"--glosses: WordNet has {len(glosses.texts):,} noun glosses, fewer than --docs {n_docs:,}")
-    csv_path, topics_path = folder / f"glosses-{n_docs}.csv", folder / f"glosses-{n_docs}-topics.csv"
     names = sorted(set(glosses.labels))
-    with csv_path.open("w", encoding="utf-8", newline="") as text_out, topics_path.open(
-        "w", encoding="utf-8", newline=""
-    ) as topic_out:
-        text_writer = csv.writer(text_out, lineterminator="\n")
-        topic_writer = csv.writer(topic_out, lineterminator="\n")
-        text_writer.writerow(["doc_id", "text"])
-        topic_writer.writerow(["doc_id", "topic"])
-        for d, (text, label) in enumerate(zip(glosses.texts, glosses.labels, strict=True)):
-            text_writer.writerow([f"g{d:07d}", text])
-            topic_writer.writerow([f"g{d:07d}", names.index(label)])
+    csv_path, topics_path = write_collection(folder, f"glosses-{n_docs}", (
+        (f"g{d:07d}", text, names.index(label))
+        for d, (text, label) in enumerate(zip(glosses.texts, glosses.labels, strict=True))))
     words = sum(len(text.split()) for text in glosses.texts)
     return Collection(csv_path, topics_path, n_docs, words, csv_path.stat().st_size, time.perf_counter() - start,
                       labels=f"WordNet noun glosses, {len(names)} lexicographer files")
@@ -198,17 +207,10 @@ def generate_collection(n_docs: int, folder: Path, seed: int) -> Collection:
     # sentences of 6-18 words: a capital letter at the start and a full stop at the end
     sentence_lengths = rng.integers(6, 19, size=total // 6 + n_docs)
 
-    csv_path = folder / f"synthetic-{n_docs}.csv"
-    topics_path = folder / f"synthetic-{n_docs}-topics.csv"
     bounds = np.concatenate([[0], np.cumsum(lengths)])
-    next_sentence = 0
-    with csv_path.open("w", encoding="utf-8", newline="") as text_out, topics_path.open(
-        "w", encoding="utf-8", newline=""
-    ) as topic_out:
-        text_writer = csv.writer(text_out, lineterminator="\n")
-        topic_writer = csv.writer(topic_out, lineterminator="\n")
-        text_writer.writerow(["doc_id", "text"])
-        topic_writer.writerow(["doc_id", "topic"])
+
+    def rows() -> Iterator[tuple[str, str, int]]:
+        next_sentence = 0
         for d in range(n_docs):
             words = tokens[bounds[d] : bounds[d + 1]]
             sentences = []
@@ -219,9 +221,9 @@ def generate_collection(n_docs: int, folder: Path, seed: int) -> Collection:
                 chunk = words[i : i + size]
                 sentences.append(chunk[0].capitalize() + " " + " ".join(chunk[1:]) + ".")
                 i += size
-            doc_id = f"d{d:07d}"
-            text_writer.writerow([doc_id, " ".join(sentences)])
-            topic_writer.writerow([doc_id, int(topics[d])])
+            yield f"d{d:07d}", " ".join(sentences), int(topics[d])
+
+    csv_path, topics_path = write_collection(folder, f"synthetic-{n_docs}", rows())
     return Collection(csv_path, topics_path, n_docs, total, csv_path.stat().st_size, time.perf_counter() - start)
 
 

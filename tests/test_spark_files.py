@@ -68,6 +68,7 @@ def folder_run(spark: Any, tmp_path_factory: pytest.TempPathFactory) -> tuple[Pa
     # gzip files holding one text file are read in place by both readers (a real manual page where there is one)
     (folder / "recipe.txt.gz").write_bytes(gzip.compress(b"Flour, butter and sugar, whisked in the oven dish.\n"))
     (folder / "cut.txt.gz").write_bytes(gzip.compress(b"a whisk and an oven " * 40)[:30])
+    (folder / "nothing.txt.gz").write_bytes(b"")
     for page in sorted(Path("/usr/share/man/man1").glob("*.1.gz"))[:1]:
         (folder / page.name).write_bytes(page.read_bytes())
     _write_mailboxes(folder)
@@ -88,6 +89,9 @@ def test_spark_reads_a_folder_of_real_files_like_the_local_reader(folder_run: tu
     reasons = {row["source"]: row["reason"] for row in report if row["status"] == "skipped"}
     assert reasons["logo.png"] == "unsupported" and reasons["empty.txt"] == "empty"
     assert reasons["cut.txt.gz"] == "unreadable" and "recipe.txt.gz" in {row["doc_id"] for row in rows}
+    local_lines = {e.source: (e.reason, e.detail) for e in local.entries if e.status == "skipped"}
+    assert {row["source"]: (row["reason"], row["detail"]) for row in report if row["source"].endswith(".gz")
+            and row["status"] == "skipped"} == {s: r for s, r in local_lines.items() if s.endswith(".gz")}
     # nothing lost: every file of the folder is the source of a document or a skipped line of the report
     # (a message's source is its mailbox's name, "#msgN" after it)
     accounted = {source.split("#")[0] for source in [*(row["source"] for row in rows), *reasons]}

@@ -25,10 +25,7 @@ from pilewise.ingest.plaintext import first_line_title
 from pilewise.ingest.reading import (
     _MBOX_FROM_LINE,
     GZIP_SUFFIX,
-    HTML_SUFFIXES,
-    MAIL_SUFFIXES,
     MBOX_SUFFIXES,
-    TEXT_SUFFIXES,
     UNSUPPORTED_SUFFIXES,
     ReadLimits,
     _Planned,
@@ -37,7 +34,7 @@ from pilewise.ingest.reading import (
     document_from_bytes,
     gunzipped_document,
     gzip_inner_suffix,
-    head_not_text,
+    not_text_of,
     read_gzip,
 )
 from pilewise.ingest.tables import FLATTEN_DEPTH, SAMPLE_ROWS, ColumnChoice, _choose_columns, _Unusable
@@ -395,8 +392,7 @@ class _FileReader:
                 yield "entry", IngestEntry(rel, "skipped", "too large", f"{row['length']:,} bytes; raise --max-file-mb")
                 continue
             content = bytes(row["content"])
-            not_text = ("" if suffix in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES
-                        else head_not_text(content, self.encoding))  # a file of no known type: text? (as locally)
+            not_text = not_text_of(suffix, content, self.encoding)  # a file of no known type: text? (as locally)
             if not_text:
                 yield "entry", IngestEntry(rel, "skipped", "binary", f"binary content ({not_text}); no known file type")
                 continue
@@ -404,12 +400,14 @@ class _FileReader:
 
     def gunzipped(self, content: bytes, rel: str, number: int) -> Iterator[tuple[str, Any]]:
         """A gzip file holding one text, HTML or mail file, read as the local reader reads it."""
+        if not content:  # as the local reader: an empty file is "empty" before it is anything else
+            yield "entry", IngestEntry(rel, "skipped", "empty", "0 bytes")
+            return
         unpacked, reason, detail = read_gzip(io.BytesIO(content), self.limits.max_file_bytes)
         if unpacked is None:
             yield "entry", IngestEntry(rel, "skipped", reason, detail)
             return
-        not_text = ("" if gzip_inner_suffix(rel) in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES
-                    else head_not_text(unpacked, self.encoding))
+        not_text = not_text_of(gzip_inner_suffix(rel) or "", unpacked, self.encoding)
         if not_text:
             yield "entry", IngestEntry(rel, "skipped", "binary", f"binary content ({not_text}); no known file type")
             return

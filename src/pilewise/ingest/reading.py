@@ -519,6 +519,13 @@ def _not_text(path: Path, encoding: str | None) -> str:
     return head_not_text(head, encoding)
 
 
+def not_text_of(suffix: str, head: bytes, encoding: str | None) -> str:
+    """Why a file of this suffix whose first bytes are `head` is not read: "" for the text, HTML and mail types,
+    read as they are, else `head_not_text` (a file of no known type is read when it starts as text). The Spark
+    reader's rule for the bytes it holds; the local reader's `_kind` decides the same from the file."""
+    return "" if suffix in TEXT_SUFFIXES | HTML_SUFFIXES | MAIL_SUFFIXES else head_not_text(head, encoding)
+
+
 def head_not_text(head: bytes, encoding: str | None) -> str:
     """Why a file's first SNIFF_BYTES are not text, or "" when they are (shared with the Spark reader)."""
     head = head[:SNIFF_BYTES]

@@ -177,9 +177,9 @@ LSA_FIT_ROWS = 20_000  # rows of the seeded sample LSA is fitted on in both mode
 PROJECT_ROWS = 10_000
 # The sampled LSA fit runs in single precision: randomized SVD's time is in the sparse-dense products, which
 # float32 halves (2.62 s against 1.37 s of CPU on 20,000 rows of the 50,000-document benchmark), and the
-# captured variance agrees to six digits (docs/performance.md, "Eighth pass"). The rows are projected on the
-# float32 components in double precision, as `pilewise assign` projects them. A fit on every row (up to
-# LSA_FIT_ROWS texts, the demo among them) stays in double precision.
+# captured variance agrees to five digits (0.275191 against 0.275190 there; docs/performance.md, "Eighth pass").
+# The rows are projected on the float32 components in double precision, as `pilewise assign` projects them. A fit
+# on every row (up to LSA_FIT_ROWS texts, the demo among them) stays in double precision.
 LSA_FIT_DTYPE = np.float32
 MAX_PHRASES = 50_000  # two-word phrases kept at most, the most widespread first
 
